@@ -1,0 +1,68 @@
+"""Command-line entry point: parse arguments, dispatch, map outcomes to exit codes.
+
+Each sub-command lives in ``surfinspect/commands/<name>.py`` and provides
+``HELP`` (one line), ``add_arguments(parser)`` and ``run(args, console) -> int``.
+Input errors raised anywhere below become one line on stderr and exit code 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from typing import Sequence
+
+from ._version import __version__
+from .console import Console
+from .errors import InputError
+from .results import EXIT_INPUT_ERROR
+
+#: Sub-commands in the order ``--help`` lists them.
+COMMANDS = ("inspect", "check", "demo", "batch", "keygen", "sign", "verify", "show", "target", "bias", "gauge")
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # argparse's own usage errors exit 2 too, in one line
+        self.print_usage(sys.stderr)
+        print(f"surfinspect: error: {message}", file=sys.stderr)
+        raise SystemExit(EXIT_INPUT_ERROR)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="surfinspect", description="Measure and judge the surface lay of panels.")
+    parser.add_argument("--version", action="version", version=f"surfinspect {__version__}")
+    parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name in COMMANDS:
+        try:
+            module = importlib.import_module(f".commands.{name}", __package__)
+        except ModuleNotFoundError as exc:
+            if exc.name == f"{__package__}.commands.{name}":
+                continue  # command not built yet
+            raise
+        p = sub.add_parser(name, help=module.HELP, description=module.HELP)
+        module.add_arguments(p)
+        p.set_defaults(_run=module.run)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    console = Console(quiet=args.quiet)
+    if not getattr(args, "_run", None):
+        parser.print_help()
+        return EXIT_INPUT_ERROR
+    try:
+        return int(args._run(args, console))
+    except InputError as exc:
+        for line in exc.problems:
+            console.error(line)
+        return EXIT_INPUT_ERROR
+    except KeyboardInterrupt:
+        console.error("interrupted")
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,20 @@
+"""Exceptions that the command line turns into exit codes."""
+
+from __future__ import annotations
+
+
+class InputError(Exception):
+    """Bad input: a recipe, an image, a study table or a flag.
+
+    The message is one line (or several, one problem per line) that names the
+    file, the field and what is allowed. The command line prints it and exits
+    with code 2; nothing is written for the input concerned.
+    """
+
+    def __init__(self, message: str, problems: list[str] | None = None):
+        super().__init__(message)
+        self.problems = problems or [message]
+
+
+class RecipeError(InputError):
+    """One or more problems found while loading a recipe; ``problems`` lists them all."""

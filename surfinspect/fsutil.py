@@ -1,0 +1,57 @@
+"""Atomic file writes: write to a temporary name in the same folder, then rename."""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import os
+import tempfile
+from pathlib import Path
+from typing import Iterator
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
+    """Yield a temporary path beside ``path``; on success rename it over ``path``.
+
+    On any exception the temporary file is removed and ``path`` is untouched,
+    so a reader never sees a half-written report or result.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix="." + path.name + ".", suffix=".part", dir=path.parent)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        with open(tmp_path, "rb+") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp_path, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            tmp_path.unlink()
+        raise
+
+
+def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> None:
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(data)
+
+
+def write_text_atomic(path: str | os.PathLike, text: str) -> None:
+    write_bytes_atomic(path, text.encode("utf-8"))
+
+
+def sha256_bytes(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def sha256_file(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        while True:
+            block = fh.read(chunk)
+            if not block:
+                break
+            h.update(block)
+    return h.hexdigest()
