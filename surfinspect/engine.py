@@ -80,14 +80,28 @@ def frame_for(recipe: Recipe, image: np.ndarray) -> tuple[Frame, DatumInfo]:
         from .datum import find_part_frame
 
         pf = find_part_frame(image)
-        frame = Frame(origin_px=tuple(pf.origin_px), rotation_deg=pf.rotation_deg, px_per_unit=ppu)
+        # the datum module puts pixel centres at integers; region masks use pixel edges
+        # (pixel i spans [i, i + 1)), so the origin moves by half a pixel
+        origin = (float(pf.origin_px[0]) + 0.5, float(pf.origin_px[1]) + 0.5)
+        frame = Frame(origin_px=origin, rotation_deg=float(pf.rotation_deg), px_per_unit=ppu)
+        q = pf.fit_quality
         info = DatumInfo(
             kind="part-edge",
-            rotation_deg=pf.rotation_deg,
-            origin_px=tuple(float(v) for v in pf.origin_px),
-            fit_quality=float(pf.fit_quality) if pf.fit_quality is not None else None,
+            rotation_deg=float(pf.rotation_deg),
+            origin_px=origin,
+            fit_quality=None if q is None else float(q.edge_rms_px),
             size_px=tuple(float(v) for v in pf.size_px),
             pixel_size_mm=recipe.pixel_size_mm,
+            fit=None
+            if q is None
+            else {
+                "edge_rms_px": round(float(q.edge_rms_px), 4),
+                "filled_share": round(float(q.filled_share), 4),
+                "corner_error_deg": round(float(q.corner_error_deg), 4),
+                "outlier_share": round(float(q.outlier_share), 4),
+                "edge_points": int(q.edge_points),
+                "skew_deg": round(float(pf.skew_deg), 4),
+            },
         )
         return frame, info
     frame = Frame(rotation_deg=recipe.camera_rotation_deg, px_per_unit=ppu)

@@ -10,12 +10,23 @@ from pathlib import Path
 from typing import Iterator
 
 
+def _file_mode() -> int:
+    # mkstemp creates 0600 files; results and reports get the usual mode under the umask
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+_MODE = _file_mode()
+
+
 @contextlib.contextmanager
-def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
+def atomic_path(path: str | os.PathLike, *, mode: int | None = None) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; on success rename it over ``path``.
 
     On any exception the temporary file is removed and ``path`` is untouched,
-    so a reader never sees a half-written report or result.
+    so a reader never sees a half-written report or result. ``mode`` sets the
+    file's permission bits (default: 0666 less the umask).
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -26,6 +37,10 @@ def atomic_path(path: str | os.PathLike) -> Iterator[Path]:
         yield tmp_path
         with open(tmp_path, "rb+") as fh:
             os.fsync(fh.fileno())
+        if mode is None:
+            os.chmod(tmp_path, _MODE)
+        else:
+            os.chmod(tmp_path, mode)
         os.replace(tmp_path, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

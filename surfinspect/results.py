@@ -144,9 +144,10 @@ class DatumInfo:
     kind: str  # "image" or "part-edge"
     rotation_deg: float  # counter-clockwise skew of the part frame against the image
     origin_px: tuple[float, float]
-    fit_quality: float | None = None
+    fit_quality: float | None = None  # RMS distance of edge points to the fitted sides, px
     size_px: tuple[float, float] | None = None
     pixel_size_mm: float | None = None
+    fit: Mapping[str, Any] | None = None  # further fit figures (filled share, corner error, ...)
 
 
 @dataclass(frozen=True)
@@ -278,6 +279,7 @@ def part_to_dict(p: PartResult) -> dict:
             "fit_quality": _num(p.datum.fit_quality, 5),
             "size_px": None if p.datum.size_px is None else [_num(v, 2) for v in p.datum.size_px],
             "pixel_size_mm": p.datum.pixel_size_mm,
+            "fit": None if p.datum.fit is None else dict(p.datum.fit),
         },
         "regions": [region_to_dict(r) for r in p.regions],
     }
@@ -348,6 +350,7 @@ def part_from_dict(d: Mapping[str, Any]) -> PartResult:
             fit_quality=dt.get("fit_quality"),
             size_px=None if dt.get("size_px") is None else tuple(dt["size_px"]),
             pixel_size_mm=dt.get("pixel_size_mm"),
+            fit=dt.get("fit"),
         ),
     )
 

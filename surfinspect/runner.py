@@ -1,0 +1,158 @@
+"""Orchestration shared by the commands that judge parts: read, inspect, write.
+
+Per-part input errors (an unreadable image, a region outside it) are caught
+here and become that part's outcome; nothing is written for such a part.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import socket
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterable, Sequence
+
+import numpy as np
+
+from .console import Console
+from .engine import inspect_image
+from .errors import InputError
+from .fsutil import write_text_atomic
+from .imaging import IMAGE_SUFFIXES, read_image
+from .recipe import Recipe
+from .results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
+
+__all__ = ["PartOutcome", "output_stems", "inspect_path", "find_images", "print_results", "run_exit_code", "write_part_report"]
+
+
+@dataclass(frozen=True)
+class PartOutcome:
+    """One image's outcome: a result, or the input error that stopped it."""
+
+    path: str
+    stem: str
+    result: PartResult | None = None
+    error: str | None = None
+    json_path: str | None = None
+    overlay_path: str | None = None
+
+
+def output_stems(paths: Sequence[str | Path]) -> list[str]:
+    """Output names per image: the file stem, made unique by a numeric suffix on clashes."""
+    seen: dict[str, int] = {}
+    out = []
+    for p in paths:
+        stem = Path(p).stem
+        n = seen.get(stem, 0)
+        seen[stem] = n + 1
+        out.append(stem if n == 0 else f"{stem}-{n + 1}")
+    return out
+
+
+def inspect_path(
+    path: str | Path, recipe: Recipe, out_dir: str | Path, stem: str, *, keep_pixels: bool = False
+) -> tuple[PartOutcome, np.ndarray | None]:
+    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically."""
+    from .overlay import write_overlay_png
+
+    try:
+        loaded = read_image(path)
+        result = inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
+        out = Path(out_dir)
+        json_path = out / f"{stem}.json"
+        overlay_path = out / f"{stem}.overlay.png"
+        write_overlay_png(overlay_path, loaded.pixels, result)
+        write_text_atomic(json_path, dumps(result))
+    except InputError as exc:
+        return PartOutcome(path=str(path), stem=stem, error=str(exc)), None
+    outcome = PartOutcome(
+        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
+    )
+    return outcome, (loaded.pixels if keep_pixels else None)
+
+
+def find_images(folder: str | Path, *, recursive: bool = False) -> list[Path]:
+    """Image files in a folder, sorted by path; raises InputError when there are none."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError(f"{folder}: not a folder of images")
+    pattern = "**/*" if recursive else "*"
+    files = sorted(p for p in folder.glob(pattern) if p.is_file() and p.suffix.lower() in IMAGE_SUFFIXES)
+    if not files:
+        raise InputError(f"{folder}: no images found (allowed suffixes {', '.join(IMAGE_SUFFIXES)})")
+    return files
+
+
+def _fmt_angle(v) -> str:
+    return "-" if v is None else f"{v:.2f}"
+
+
+def print_results(console: Console, outcomes: Iterable[PartOutcome]) -> None:
+    """The short table: part, region, lay, deviation, coherence, verdict."""
+    rows = []
+    for o in outcomes:
+        if o.result is None:
+            rows.append([o.stem, "-", "-", "-", "-", "error"])
+            continue
+        if not o.result.regions:
+            rows.append([o.stem, "-", "-", "-", "-", o.result.verdict.value])
+        for r in o.result.regions:
+            rows.append(
+                [
+                    o.stem,
+                    r.name,
+                    _fmt_angle(r.lay_deg),
+                    "-" if r.deviation_deg is None else f"{r.deviation_deg:+.2f}",
+                    f"{r.coherence:.3f}",
+                    f"{r.verdict.value} ({o.result.verdict.value})",
+                ]
+            )
+    console.table(["part", "region", "lay°", "dev°", "coherence", "verdict (part)"], rows)
+    for o in outcomes:
+        if o.result is not None:
+            for r in o.result.regions:
+                if r.verdict.value != "pass":
+                    console.info(f"  {o.stem} / {r.name}: {'; '.join(r.reasons)}")
+            for reason in o.result.reasons:
+                console.info(f"  {o.stem}: {reason}")
+
+
+def run_exit_code(outcomes: Sequence[PartOutcome]) -> int:
+    """2 when any part had an input error, else the verdict code (0 accept, 1 reject, 3 review)."""
+    if any(o.result is None for o in outcomes):
+        return EXIT_INPUT_ERROR
+    return exit_code([o.result.verdict for o in outcomes])
+
+
+def write_part_report(
+    path: str | Path,
+    results: Sequence[PartResult],
+    images: Sequence[np.ndarray | None],
+    *,
+    operator: str | None = None,
+    report_id: str | None = None,
+    batch_stats: bool = False,
+) -> str:
+    """Write the PDF report for these parts atomically; returns the report id."""
+    from .report import write_report
+
+    now = _dt.datetime.now(_dt.timezone.utc)
+    rid = report_id or f"{results[0].recipe.name}-{now.strftime('%Y%m%dT%H%M%SZ')}"
+    write_report(
+        path,
+        results,
+        images,
+        report_id=rid,
+        operator=operator,
+        station=socket.gethostname(),
+        generated_at=now,
+        batch_stats=batch_stats,
+    )
+    return rid
+
+
+def verdict_counts(results: Iterable[PartResult]) -> dict[str, int]:
+    counts = {v.value: 0 for v in PartVerdict}
+    for r in results:
+        counts[r.verdict.value] += 1
+    return counts
