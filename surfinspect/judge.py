@@ -41,6 +41,10 @@ CELL_MIN_COVER = 0.5
 #: Significance level below which a Rayleigh test says the cells share a direction.
 RAYLEIGH_ALPHA = 0.01
 
+#: A fitted histogram bump counts for a crossed lay when its height is at least this share of
+#: the highest bump's. Chosen on synthetic textures, no source.
+CROSSED_MIN_PROMINENCE = 0.25
+
 #: Coverage factor of the reported uncertainty (k = 2, about 95 %), as in the GUM.
 COVERAGE_K = 2.0
 
@@ -174,32 +178,66 @@ def _uncertainty(lays: np.ndarray, weights: np.ndarray) -> float | None:
 
 
 def _crossed_peaks(hist: Histogram, expected: tuple[float, ...], tolerance: float):
-    """Match each expected direction with the strongest histogram peak near it.
+    """Locate one histogram peak near each expected direction of a crossed lay.
 
-    The histogram is smoothed circularly (period 180°); each peak position is
-    refined as the axial mean of the votes within half a peak width.
-    Returns per expected angle (peak_deg or None, share of votes in the peak).
+    The histogram (period 180°) is modelled as a floor plus one axial von
+    Mises bump per expected direction, ``c + sum_i A_i exp(k_i (cos 2(t - m_i) - 1))``,
+    fitted by least squares from starting values at the expected directions.
+    Fitting all bumps at once keeps overlapping bumps from pulling each
+    other's peak, which picking the highest bins does not.
+
+    Returns
+    -------
+    list of (peak_deg or None, share)
+        Per expected direction: the fitted peak, or None when its bump is
+        missing (amplitude below :data:`CROSSED_MIN_PROMINENCE` of the largest,
+        or it wandered beyond the search window); ``share`` is the bump's
+        share of all the votes above the floor.
+
+    References
+    ----------
+    .. [1] Mardia, K. V., Jupp, P. E. (2000). Directional Statistics, Wiley,
+       section 3.5.4 (von Mises distribution) and 9.3.2 (axial data).
+       :doi:`10.1002/9780470316979`
     """
+    from scipy.optimize import least_squares
+
     w = np.asarray(hist.weights, dtype=np.float64)
     n = w.size
     width = 180.0 / n
-    centres = (np.arange(n) + 0.5) * width
-    kernel = np.exp(-0.5 * (np.arange(-3, 4) / 1.0) ** 2)
-    smooth = np.convolve(np.concatenate([w[-3:], w, w[:3]]), kernel / kernel.sum(), mode="valid")
-    is_peak = (smooth >= np.roll(smooth, 1)) & (smooth > np.roll(smooth, -1))
-    floor = np.median(smooth)
-    found = []
+    t = np.radians(2 * (np.arange(n) + 0.5) * width)
+    k_count = len(expected)
+
+    def model(p):
+        out = np.full(n, p[0])
+        for i in range(k_count):
+            a, mu, kappa = p[1 + 3 * i : 4 + 3 * i]
+            out += a * np.exp(kappa * (np.cos(t - mu) - 1.0))
+        return out
+
+    floor0 = float(w.min())
+    p0 = [floor0]
+    lo, hi = [0.0], [np.inf]
     for e in expected:
-        d = np.abs(wrap_deviation(centres, e))
-        window = d <= max(tolerance, width) + 2 * width
-        cands = np.where(is_peak & window & (smooth > 1.5 * floor))[0]
-        if cands.size == 0:
+        idx = int(np.clip(e / width, 0, n - 1))
+        p0 += [max(float(w[idx]) - floor0, 1e-6), math.radians(2 * e), 4.0]
+        lo += [0.0, -np.inf, 0.2]
+        hi += [np.inf, np.inf, 400.0]
+    fit = least_squares(lambda p: model(p) - w, p0, bounds=(lo, hi))
+    p = fit.x
+    amps = np.array([p[1 + 3 * i] for i in range(k_count)])
+    # votes above the floor in each bump: amplitude times the bump's integral over the circle
+    areas = np.array([p[1 + 3 * i] * np.mean(np.exp(p[3 + 3 * i] * (np.cos(t) - 1.0))) for i in range(k_count)])
+    total = areas.sum()
+    found = []
+    for i, e in enumerate(expected):
+        peak = (math.degrees(p[2 + 3 * i]) / 2.0) % 180.0
+        near = abs(wrap_deviation(peak, e)) <= max(tolerance, width) + 3 * width
+        strong = amps.max() > 0 and amps[i] >= CROSSED_MIN_PROMINENCE * amps.max()
+        if near and strong and total > 0:
+            found.append((peak, float(areas[i] / total)))
+        else:
             found.append((None, 0.0))
-            continue
-        k = cands[np.argmax(smooth[cands])]
-        near = np.abs(wrap_deviation(centres, centres[k])) <= 12.0
-        peak_deg, _ = axial_mean(centres[near], np.maximum(w[near] - floor, 0) + 1e-12)
-        found.append((peak_deg, float(w[near].sum())))
     return found
 
 
@@ -281,7 +319,6 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     if region.lay in (LayPattern.DIRECTIONAL, LayPattern.CIRCULAR, LayPattern.RADIAL):
         if region.lay is LayPattern.DIRECTIONAL:
             deviation = wrap_deviation(lay, region.lay_deg[0])
-            uncertainty = _uncertainty(cell_lay[clear], weights)
             coherence_judged = coherence
             if abs(deviation) > tol:
                 failed = True
@@ -314,11 +351,11 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
             failed = True
             reasons.append(f"no clear lay: coherence {coherence_judged:.2f} is below {region.min_coherence:g}")
         # local check: cells with clear texture that deviate beyond tolerance
-        if clear.any():
-            spread = 1.4826 * float(np.median(np.abs(deviation_cells[clear] - np.median(deviation_cells[clear]))))
-            local_limit = max(tol, 3.0 * spread)
-            extra["local_limit_deg"] = round(local_limit, 3)
-            deviating = clear & (np.abs(deviation_cells) > local_limit)
+        deviating = clear & (np.abs(deviation_cells) > tol)
+        if region.lay is LayPattern.DIRECTIONAL:
+            # the scatter of the cells that follow the region's lay; deviating patches are reported apart
+            keep = clear & ~deviating if (clear & ~deviating).sum() >= 3 else clear
+            uncertainty = _uncertainty(cell_lay[keep], (cells.jxx + cells.jyy)[keep])
     elif region.lay is LayPattern.CROSSED:
         peaks = _crossed_peaks(histogram, region.lay_deg, tol)
         found_lays, devs, shares = [], [], []
