@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from .orientation import CellSums, axial_mean, rayleigh_test, tensor_lay, wrap_deviation
+from .orientation import CellSums, axial_mean, noise_gradient_energy, rayleigh_test, tensor_lay, wrap_deviation
 from .recipe import LayPattern, Region
 from .results import CellGrid, Histogram, Patch, RegionResult, RegionVerdict
 
@@ -34,6 +34,10 @@ __all__ = ["TEXTURE_RATIO_MIN", "RegionMeasurement", "judge_region"]
 #: own (signal energy at least three times the noise energy). Common practice
 #: for a detection threshold on an energy ratio, no source.
 TEXTURE_RATIO_MIN = 4.0
+
+#: Gradient energy of uniform quantisation noise of a 16-bit image (step 1/65535, variance
+#: step^2 / 12) through the default sigma = 1 px derivative: the least noise any image has.
+NOISE_ENERGY_FLOOR = noise_gradient_energy(1.0 / 65535.0 / math.sqrt(12.0), 1.0)
 
 #: A cell takes part in the local check when at least this share of it lies in the region.
 CELL_MIN_COVER = 0.5
@@ -260,7 +264,10 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     lay_img, coherence = tensor_lay(jxx, jxy, jyy)
     lay = (lay_img - m.rotation_deg) % 180.0
     energy = (jxx + jyy) / max(m.region_mask_area, 1.0)
-    ratio = energy / m.noise_energy if m.noise_energy > 0 else math.inf
+    # an image with no noise at all (synthetic, or clipped flat) still has quantisation noise:
+    # floor the noise at that of a 16-bit image, so a flat surface is never called textured
+    noise_energy = max(m.noise_energy, NOISE_ENERGY_FLOOR)
+    ratio = energy / noise_energy
     histogram = _histogram(cells)
     tol = region.tolerance_deg
     base = dict(
@@ -278,7 +285,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     full = np.array(cells.cell_boxes()[..., 2] * cells.cell_boxes()[..., 3], dtype=np.float64)
     cell_energy = (cells.jxx + cells.jyy) / np.maximum(cells.area, 1.0)
     covered = cells.area >= CELL_MIN_COVER * full
-    textured = covered & (cell_energy >= TEXTURE_RATIO_MIN * m.noise_energy)
+    textured = covered & (cell_energy >= TEXTURE_RATIO_MIN * noise_energy)
 
     if ratio < TEXTURE_RATIO_MIN:
         nan = np.full(cells.area.shape, np.nan)

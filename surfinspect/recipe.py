@@ -325,7 +325,6 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set) -> 
         r.p.add(getattr(m, "line", 0), path, f"must be a mapping of region keys (got {_describe(m)})")
         return None
     n_before = len(r.p.items)
-    r.unknown(m, _REGION_KEYS, path)
     name = m.get("name")
     if not isinstance(name, str) or not name.strip():
         r.p.add(m.line, _join(path, "name"), f"every region needs a name (got {_describe(name)})")
@@ -336,6 +335,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set) -> 
         names.add(name)
     if name:
         path = f"{path}({name})"
+    r.unknown(m, _REGION_KEYS, path)
     shape = _parse_shape(r, m, path, allow_annulus=True)
     excludes: list[Shape] = []
     if "exclude" in m:

@@ -66,6 +66,15 @@ def test_polished_blank_is_no_texture_and_part_needs_review():
     assert part.verdict is PartVerdict.REVIEW
 
 
+@pytest.mark.parametrize("value", [0.0, 0.5, 1.0])
+def test_perfectly_uniform_image_is_no_texture(value):
+    # no noise at all: no gradient, so no angle may be invented
+    img = np.full((120, 160), value, np.float32)
+    part = inspect_image(img, directional_recipe((8, 8, 144, 104), 90))
+    assert part.regions[0].verdict is RegionVerdict.NO_TEXTURE
+    assert part.regions[0].lay_deg is None
+
+
 def test_blurred_brushed_surface_at_high_noise_is_no_texture():
     # "No texture" is relative to the image's own noise: a heavily blurred grain under strong
     # camera noise has gradient energy close to the noise's own.
