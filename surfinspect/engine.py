@@ -33,6 +33,12 @@ from .results import (
 
 __all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
 
+#: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
+HISTOGRAM_VOTE_STEP = 2
+
+#: Strips measured at once within one image (OpenCV and NumPy release the GIL).
+THREADS = 2
+
 
 @dataclass(frozen=True)
 class Frame:
@@ -234,7 +240,14 @@ def inspect_image(
         if sig not in noise_energy_by_sigma:
             noise_energy_by_sigma[sig] = noise_gradient_energy(sigma_n, sig)
         cells = cell_sums(
-            pixels, mask, bbox, cell_px=region.cell_px, sigma=sig, angle_offset_deg=frame.rotation_deg
+            pixels,
+            mask,
+            bbox,
+            cell_px=region.cell_px,
+            sigma=sig,
+            angle_offset_deg=frame.rotation_deg,
+            vote_step=HISTOGRAM_VOTE_STEP,
+            threads=THREADS,
         )
         centre_px = None
         if region.centre is not None:

@@ -189,3 +189,18 @@ def test_rotated_histogram_offset():
     assert peak_a == pytest.approx(40.0, abs=0.3)
     assert peak_b == pytest.approx(30.0, abs=0.3)
     assert math.isclose(a.hist.sum(), b.hist.sum(), rel_tol=1e-5)
+
+
+@pytest.mark.parametrize("lay", [0.0, 37.0, 90.0])
+def test_histogram_from_every_second_pixel_keeps_its_shape(lay):
+    # The engine takes histogram votes on a 2x2 pixel lattice (a quarter of the votes). Compared
+    # with all-pixel votes, the normalised region histogram differs by under 2 % of its peak bin,
+    # and its axial mean by under 0.1 deg.
+    img = synth.brushed_panel((256, 256), lay, seed=11)
+    mask = np.ones((240, 240), bool)
+    full = o.cell_sums(img, mask, (8, 8, 240, 240), vote_step=1).hist.sum(axis=(0, 1))
+    half = o.cell_sums(img, mask, (8, 8, 240, 240), vote_step=2).hist.sum(axis=(0, 1))
+    full, half = full / full.sum(), half / half.sum()
+    assert np.abs(full - half).max() < 0.02 * full.max()
+    centres = (np.arange(36) + 0.5) * 5
+    assert abs(o.wrap_deviation(o.axial_mean(centres, full)[0], o.axial_mean(centres, half)[0])) < 0.1
