@@ -20,6 +20,10 @@ __all__ = ["LoadedImage", "read_image", "decode_image", "as_grey_float", "IMAGE_
 
 IMAGE_SUFFIXES = (".png", ".tif", ".tiff", ".jpg", ".jpeg", ".bmp")
 
+# A broken file is reported once, in our words (InputError); OpenCV's own decoder warnings
+# would only repeat it on stderr.
+cv2.utils.logging.setLogLevel(cv2.utils.logging.LOG_LEVEL_SILENT)
+
 
 @dataclass(frozen=True)
 class LoadedImage:
