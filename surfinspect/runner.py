@@ -22,6 +22,9 @@ from .imaging import IMAGE_SUFFIXES, read_image
 from .recipe import Recipe
 from .results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
 
+#: Long side of the overlay PNG, px: a full-size overlay of a 12 MP brushed photo is ~25 MB.
+OVERLAY_MAX_SIDE = 2000
+
 __all__ = ["PartOutcome", "output_stems", "inspect_path", "find_images", "print_results", "run_exit_code", "write_part_report"]
 
 
@@ -61,7 +64,7 @@ def inspect_path(
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
-        write_overlay_png(overlay_path, loaded.pixels, result)
+        write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
     except InputError as exc:
         return PartOutcome(path=str(path), stem=stem, error=str(exc)), None

@@ -221,3 +221,73 @@ def test_spokes_pass_radial():
     assert region.verdict is RegionVerdict.PASS, region.reasons
     circ = inspect_image(img, _pattern_recipe(body.replace("lay: R", "lay: C"))).regions[0]
     assert circ.verdict is RegionVerdict.FAIL
+
+
+# ---------------------------------------------------------------- the part's own frame
+
+PLATE_RECIPE = """\
+recipe: cp-14-test
+revision: 1
+datum: part-edge
+pixel_size_mm: 0.25
+regions:
+  - name: band
+    rect: [4, 4, 112, 28]
+    lay: parallel
+    tolerance_deg: 2.0
+"""
+
+
+@pytest.mark.parametrize("skew", [-11.0, 0.0, 6.5])
+@pytest.mark.parametrize("band_lay", [0.0, 3.2])
+def test_skewed_plate_lay_relative_to_the_part(skew, band_lay):
+    # Ground truth from the rendering: demo.plate_on_fixture turns the plate `skew` deg
+    # counter-clockwise about the image centre and brushes its band at band_lay in the part frame.
+    from surfinspect.demo import PLATE_IMAGE_SHAPE, PLATE_MM, PLATE_PIXEL_MM, plate_on_fixture
+
+    img = plate_on_fixture(skew, band_lay, seed=31)
+    part = inspect_image(img, parse_recipe(PLATE_RECIPE, "plate.yaml"))
+    assert part.datum.kind == "part-edge"
+    assert part.datum.rotation_deg == pytest.approx(skew, abs=0.1)
+    rows, cols = PLATE_IMAGE_SHAPE
+    length, width = (v / PLATE_PIXEL_MM for v in PLATE_MM)
+    t = np.radians(skew)
+    true_origin = np.array([cols / 2, rows / 2]) - np.array([np.cos(t), -np.sin(t)]) * length / 2 - np.array([np.sin(t), np.cos(t)]) * width / 2
+    assert np.hypot(*(np.array(part.datum.origin_px) - true_origin)) < 0.5
+    band = part.regions[0]
+    assert band.deviation_deg == pytest.approx(band_lay, abs=0.2)
+    expected = PartVerdict.ACCEPT if band_lay < 2.0 else PartVerdict.REJECT
+    assert part.verdict is expected, band.reasons
+
+
+def test_millimetre_regions_land_on_the_same_pixels_as_pixel_regions():
+    # Round trip through the part frame: the same region given in mm (0.25 mm/px) and in px.
+    from surfinspect.demo import plate_on_fixture
+    from surfinspect.engine import frame_for, region_masks
+
+    img = plate_on_fixture(4.0, 0.0, seed=2)
+    mm = parse_recipe(PLATE_RECIPE.replace("rect: [4, 4, 112, 28]", "polygon: [[4, 4], [116, 4], [100, 32], [10, 30]]"))
+    px = parse_recipe(
+        PLATE_RECIPE.replace("pixel_size_mm: 0.25\n", "").replace("rect: [4, 4, 112, 28]", "polygon: [[16, 16], [464, 16], [400, 128], [40, 120]]")
+    )
+    (frame_mm, _), (frame_px, _) = frame_for(mm, img), frame_for(px, img)
+    a = region_masks(mm.regions[0], frame_mm, img.shape)
+    b = region_masks(px.regions[0], frame_px, img.shape)
+    assert a[0] == b[0]
+    assert (a[1] == b[1]).all()
+    np.testing.assert_allclose(frame_mm.to_frame(frame_mm.to_image([[10.0, 20.0]])), [[10.0, 20.0]], atol=1e-9)
+
+
+def test_patch_sizes_in_mm_with_pixel_size():
+    img = synth.brushed_panel(SHAPE, 90.0, seed=8, patch_rect=(256, 160, 160, 128), patch_lay_deg=0.0)
+    r = parse_recipe("recipe: t\nrevision: 1\npixel_size_mm: 0.5\nregions:\n  - name: face\n    rect: [8, 8, 304, 224]\n    lay_deg: 90\n    cell_px: 32\n")
+    patch = inspect_image(img, r).regions[0].patches[0]
+    assert patch.bbox_mm == (patch.bbox_px[2] * 0.5, patch.bbox_px[3] * 0.5)
+    assert patch.area_mm2 == pytest.approx(patch.area_px * 0.25)
+
+
+def test_part_not_found_is_review_in_words():
+    img = synth.brushed_panel((200, 300), 0.0, seed=1)  # the panel fills the frame: no edge to find
+    part = inspect_image(img, parse_recipe(PLATE_RECIPE))
+    assert part.verdict is PartVerdict.REVIEW
+    assert part.reasons and part.reasons[0].startswith("part frame not found:")
