@@ -40,6 +40,7 @@ from scipy import stats
 from ._version import __version__
 from .errors import InputError
 from .fsutil import atomic_path
+from .orientation import wrap_deviation
 from .spc import D4_MOVING_RANGE
 
 __all__ = [
@@ -59,7 +60,6 @@ __all__ = [
     "gauge_to_dict",
     "bias_to_dict",
     "write_gauge_pdf",
-    "wrap_deviation",
 ]
 
 #: Significance level above which the part x appraiser interaction is pooled
@@ -96,12 +96,6 @@ class GaugeVerdict(str, enum.Enum):
     ACCEPTABLE = "acceptable"
     CONDITIONAL = "conditional"  # acceptable only with a documented reason
     NOT_ACCEPTABLE = "not-acceptable"
-
-
-def wrap_deviation(deg: np.ndarray | float) -> np.ndarray | float:
-    """Wrap an axial angle difference to (-90, 90] degrees (project convention)."""
-    wrapped = -((90.0 - np.asarray(deg, dtype=float)) % 180.0) + 90.0
-    return float(wrapped) if np.ndim(wrapped) == 0 else wrapped
 
 
 # ------------------------------------------------------------------ study table
@@ -800,7 +794,7 @@ def bias_study(
         raise InputError("bias study: nominal and measured angles must be finite numbers")
     if not 0 < confidence < 1:
         raise InputError(f"bias study: confidence must be in (0, 1) (got {confidence})")
-    deviation = np.asarray(wrap_deviation(m - x))
+    deviation = np.asarray(wrap_deviation(m, x))
     per_nominal = []
     for nominal in np.unique(x):
         d = deviation[x == nominal]

@@ -13,7 +13,6 @@ from surfinspect.gauge import (
     gauge_rr,
     gauge_to_dict,
     read_study_csv,
-    wrap_deviation,
     write_gauge_pdf,
 )
 
@@ -317,14 +316,6 @@ def test_missing_file_is_an_input_error(tmp_path):
 
 
 # ------------------------------------------------------------------ bias and linearity
-
-
-def test_wrap_deviation_follows_the_project_convention():
-    # deviation = measured - expected wrapped to (-90, 90]: expected 179, measured 0.6 -> +1.6
-    assert wrap_deviation(0.6 - 179.0) == pytest.approx(1.6)
-    assert wrap_deviation(90.0) == 90.0
-    assert wrap_deviation(-90.0) == 90.0
-    np.testing.assert_allclose(wrap_deviation(np.array([179.8, -0.2, 91.0])), [-0.2, -0.2, -89.0])
 
 
 def test_bias_per_nominal_on_hand_worked_values_and_scipy():

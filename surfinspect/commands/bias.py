@@ -18,6 +18,7 @@ from ..engine import inspect_image
 from ..errors import InputError
 from ..fsutil import write_text_atomic
 from ..imaging import read_image
+from ..orientation import wrap_deviation
 from ..recipe import load_recipe
 from ..results import EXIT_CODES, PartVerdict
 
@@ -67,7 +68,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
                     "region": region.name,
                     "nominal_deg": float(nominal),
                     "measured_deg": float(region.lay_deg),
-                    "deviation_deg": float(gauge.wrap_deviation(region.lay_deg - nominal)),
+                    "deviation_deg": float(wrap_deviation(region.lay_deg, nominal)),
                 }
             )
     if not measurements:
