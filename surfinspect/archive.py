@@ -922,7 +922,7 @@ class _Verifier:
         elif last > length:
             self.fail(f"audit trail: it holds {last} events but the index records only {length} (events were added behind its back)")
         elif rows and head != prev_sha:
-            self.fail(f"audit trail: the last event's hash does not match the chain head recorded in the index (meta)")
+            self.fail("audit trail: the last event's hash does not match the chain head recorded in the index (meta)")
 
     def _events(self, batch_id: str, kind: EventKind) -> list[tuple]:
         return [e for e in self.events if e[2] == batch_id and e[1] == kind.value]

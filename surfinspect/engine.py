@@ -11,11 +11,13 @@ from __future__ import annotations
 import datetime as _dt
 import math
 from dataclasses import dataclass
+from pathlib import PurePath
 
 import cv2
 import numpy as np
 
 from ._version import __version__
+from .datum import DatumError, find_part_frame
 from .errors import InputError
 from .imaging import as_grey_float
 from .judge import RegionMeasurement, judge_region
@@ -83,8 +85,6 @@ def frame_for(recipe: Recipe, image: np.ndarray) -> tuple[Frame, DatumInfo]:
     """
     ppu = recipe.units_to_px()
     if recipe.datum == "part-edge":
-        from .datum import find_part_frame
-
         pf = find_part_frame(image)
         # the datum module puts pixel centres at integers; region masks use pixel edges
         # (pixel i spans [i, i + 1)), so the origin moves by half a pixel
@@ -208,13 +208,9 @@ def inspect_image(
     if image_info is None:
         image_info = ImageInfo(path="", sha256="", width=cols, height=rows, bit_depth=_bit_depth(image))
     if name is None:
-        from pathlib import PurePath
-
         name = PurePath(image_info.path).stem if image_info.path else "part"
     stamp = inspected_at or _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
     recipe_info = RecipeInfo(name=recipe.name, revision=recipe.revision, sha256=recipe.sha256)
-
-    from .datum import DatumError
 
     try:
         frame, datum = frame_for(recipe, pixels)

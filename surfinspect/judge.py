@@ -19,7 +19,7 @@ Pure functions. The rules (all thresholds come from the recipe region):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
@@ -125,9 +125,8 @@ def fit_centre(m: RegionMeasurement, valid: np.ndarray, *, radial: bool) -> tupl
     return float(cx), float(cy)
 
 
-def _patches(
-    deviating: np.ndarray, m: RegionMeasurement, lay: np.ndarray, expected: np.ndarray
-) -> tuple[Patch, ...]:
+def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray) -> tuple[Patch, ...]:
+    """Connected groups (8-neighbour) of deviating cells, largest first."""
     n, labels = cv2.connectedComponents(deviating.astype(np.uint8), connectivity=8)
     boxes = m.cells.cell_boxes()
     out = []
@@ -245,6 +244,124 @@ def _crossed_peaks(hist: Histogram, expected: tuple[float, ...], tolerance: floa
     return found
 
 
+@dataclass
+class _Verdict:
+    """What the pattern rules decide; collected, then turned into a RegionResult."""
+
+    lay: float | None
+    deviation: float | None = None
+    uncertainty: float | None = None
+    failed: bool = False
+    reasons: list = field(default_factory=list)
+    extra: dict = field(default_factory=dict)
+    deviating: np.ndarray | None = None
+
+    def fail(self, reason: str) -> None:
+        self.failed = True
+        self.reasons.append(reason)
+
+
+@dataclass(frozen=True)
+class _Cells:
+    """The region's cells: lays in the part frame and which cells take part in the checks."""
+
+    lay: np.ndarray
+    coherence: np.ndarray
+    energy: np.ndarray  # jxx + jyy per cell (weights)
+    covered: np.ndarray  # at least CELL_MIN_COVER of the cell in the region
+    textured: np.ndarray  # covered, and gradient energy above the texture threshold
+    clear: np.ndarray  # textured, and coherence at least min_coherence
+
+
+def _cells_of(region: Region, m: RegionMeasurement, noise_energy: float) -> _Cells:
+    cells = m.cells
+    lay, coh = _cell_lays(m)
+    boxes = cells.cell_boxes()
+    covered = cells.area >= CELL_MIN_COVER * (boxes[..., 2] * boxes[..., 3])
+    energy = cells.jxx + cells.jyy
+    textured = covered & (energy / np.maximum(cells.area, 1.0) >= TEXTURE_RATIO_MIN * noise_energy)
+    return _Cells(lay, coh, energy, covered, textured, textured & (coh >= region.min_coherence))
+
+
+def _judge_directional(region: Region, c: _Cells, coherence: float, v: _Verdict) -> None:
+    expected = region.lay_deg[0]
+    v.deviation = wrap_deviation(v.lay, expected)
+    if abs(v.deviation) > region.tolerance_deg:
+        v.fail(f"lay {_fmt(v.lay)} is {abs(v.deviation):.1f}° off {_fmt(expected)} (tolerance {region.tolerance_deg:g}°)")
+    if coherence < region.min_coherence:
+        v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
+    # the scatter of the cells that follow the region's lay; deviating patches are reported apart
+    keep = c.clear & ~v.deviating
+    keep = keep if keep.sum() >= 3 else c.clear
+    v.uncertainty = _uncertainty(c.lay[keep], c.energy[keep])
+
+
+def _judge_centred(region: Region, c: _Cells, centre_px, deviation_cells: np.ndarray, v: _Verdict) -> None:
+    """Circular or radial lay: the cells' deviations from the direction expected where they are."""
+    v.lay = None  # the lay turns across the region: there is no one angle to report
+    if centre_px is None:
+        v.fail("no centre could be fitted to the cell lays; give centre: [x, y] in the recipe")
+        return
+    v.extra["centre_px"] = [round(centre_px[0], 2), round(centre_px[1], 2)]
+    dev = deviation_cells[c.clear] % 180.0
+    if dev.size:
+        mean_dev, _ = axial_mean(dev, c.energy[c.clear])
+        v.deviation = wrap_deviation(mean_dev, 0.0)
+        v.uncertainty = _uncertainty(dev, c.energy[c.clear])
+        v.extra["rms_cell_deviation_deg"] = round(float(np.sqrt(np.mean(deviation_cells[c.clear] ** 2))), 3)
+        what = "circles" if region.lay is LayPattern.CIRCULAR else "radii"
+        if abs(v.deviation) > region.tolerance_deg:
+            v.fail(f"lay is on average {abs(v.deviation):.1f}° off the {what} about the centre (tolerance {region.tolerance_deg:g}°)")
+    # the summed tensor's coherence is low by design here: judge the cells' mean coherence
+    coherence = float(np.average(c.coherence[c.textured], weights=c.energy[c.textured])) if c.textured.any() else 0.0
+    v.extra["mean_cell_coherence"] = round(coherence, 4)
+    if coherence < region.min_coherence:
+        v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
+
+
+def _judge_crossed(region: Region, histogram: Histogram, v: _Verdict) -> None:
+    peaks = _crossed_peaks(histogram, region.lay_deg, region.tolerance_deg)
+    found, devs = [], []
+    for e, (peak, _) in zip(region.lay_deg, peaks):
+        if peak is None:
+            v.fail(f"no grain found near {_fmt(e)} (crossed lay needs both directions)")
+            found.append(None)
+            devs.append(None)
+            continue
+        d = wrap_deviation(peak, e)
+        found.append(round(peak, 3))
+        devs.append(round(d, 3))
+        if abs(d) > region.tolerance_deg:
+            v.fail(f"grain {_fmt(peak)} is {abs(d):.1f}° off {_fmt(e)} (tolerance {region.tolerance_deg:g}°)")
+    v.extra.update(crossed_lay_deg=found, crossed_deviation_deg=devs)
+    if all(p is not None for p, _ in peaks):
+        shares = [share for _, share in peaks]
+        v.extra["balance"] = round(min(shares) / max(sum(shares), 1e-12), 4)  # weaker direction's share; 0.5 = even
+    known = [d for d in devs if d is not None]
+    v.deviation = max(known, key=abs) if known else None
+    v.lay = found[0]
+
+
+def _judge_nondirectional(region: Region, c: _Cells, coherence: float, v: _Verdict) -> None:
+    """Multidirectional or particulate lay: no direction may dominate."""
+    dominant = v.lay
+    v.lay = None
+    if c.textured.sum() >= 2:
+        rt = rayleigh_test(c.lay[c.textured], axial=True)
+        v.extra.update(
+            rayleigh_resultant_length=round(rt.resultant_length, 4),
+            rayleigh_statistic=round(rt.statistic, 3),
+            rayleigh_p=round(rt.p_value, 5),
+        )
+        if rt.p_value < RAYLEIGH_ALPHA:
+            v.fail(f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})")
+    if coherence > region.max_coherence:
+        v.fail(
+            f"dominant direction {_fmt(dominant)} present: coherence {coherence:.2f} exceeds "
+            f"{region.max_coherence:g} for a {region.lay.value} lay"
+        )
+
+
 def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     """Judge one region from its measurement.
 
@@ -259,42 +376,34 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     -------
     RegionResult
     """
-    cells = m.cells
-    jxx, jxy, jyy = cells.jxx.sum(), cells.jxy.sum(), cells.jyy.sum()
-    lay_img, coherence = tensor_lay(jxx, jxy, jyy)
+    sums = m.cells
+    lay_img, coherence = tensor_lay(sums.jxx.sum(), sums.jxy.sum(), sums.jyy.sum())
     lay = (lay_img - m.rotation_deg) % 180.0
-    energy = (jxx + jyy) / max(m.region_mask_area, 1.0)
     # an image with no noise at all (synthetic, or clipped flat) still has quantisation noise:
     # floor the noise at that of a 16-bit image, so a flat surface is never called textured
     noise_energy = max(m.noise_energy, NOISE_ENERGY_FLOOR)
-    ratio = energy / noise_energy
-    histogram = _histogram(cells)
-    tol = region.tolerance_deg
+    ratio = (sums.jxx.sum() + sums.jyy.sum()) / max(m.region_mask_area, 1.0) / noise_energy
+    histogram = _histogram(sums)
+    c = _cells_of(region, m, noise_energy)
     base = dict(
         name=region.name,
         expected_lay_deg=region.expected_lay_deg,
-        tolerance_deg=tol,
+        tolerance_deg=region.tolerance_deg,
         histogram=histogram,
         lay_pattern=region.lay.value,
         outline_px=m.outline_px,
         exclude_px=m.exclude_px,
+        coherence=float(coherence),
     )
     extra: dict = {"texture_to_noise": round(float(ratio), 2)}
 
-    cell_lay, cell_coh = _cell_lays(m)
-    full = np.array(cells.cell_boxes()[..., 2] * cells.cell_boxes()[..., 3], dtype=np.float64)
-    cell_energy = (cells.jxx + cells.jyy) / np.maximum(cells.area, 1.0)
-    covered = cells.area >= CELL_MIN_COVER * full
-    textured = covered & (cell_energy >= TEXTURE_RATIO_MIN * noise_energy)
-
     if ratio < TEXTURE_RATIO_MIN:
-        nan = np.full(cells.area.shape, np.nan)
+        nan = np.full(sums.area.shape, np.nan)
         return RegionResult(
             **base,
             lay_deg=None,
             deviation_deg=None,
             uncertainty_deg=None,
-            coherence=float(coherence),
             defect_area_fraction=0.0,
             patches=(),
             verdict=RegionVerdict.NO_TEXTURE,
@@ -302,146 +411,65 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
                 f"no measurable texture: gradient energy is {ratio:.1f}x the camera noise's "
                 f"(needs at least {TEXTURE_RATIO_MIN:g}x); polished, blurred or blank surface",
             ),
-            cells=CellGrid(cells.origin_px, cells.cell_px, nan, cell_coh, nan, np.zeros(nan.shape, bool)),
+            cells=CellGrid(sums.origin_px, sums.cell_px, nan, c.coherence, nan, np.zeros(nan.shape, bool)),
             extra=extra,
         )
 
-    clear = textured & (cell_coh >= region.min_coherence)
     centre_px = m.centre_px
     if region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL) and centre_px is None:
-        centre_px = fit_centre(m, clear, radial=region.lay is LayPattern.RADIAL)
+        centre_px = fit_centre(m, c.clear, radial=region.lay is LayPattern.RADIAL)
         extra["centre_fitted"] = True
     expected = _expected_per_cell(region, m, centre_px)
-    deviation_cells = wrap_deviation(cell_lay, expected)
-    shown_lay = np.where(textured, cell_lay, np.nan)
-
-    reasons: list[str] = []
-    failed = False
-    deviation = None
-    uncertainty = None
-    region_lay: float | None = lay
-    deviating = np.zeros(cells.area.shape, dtype=bool)
-    weights = (cells.jxx + cells.jyy)[clear]
-
+    deviation_cells = wrap_deviation(c.lay, expected)
+    v = _Verdict(lay=lay, extra=extra, deviating=np.zeros(sums.area.shape, dtype=bool))
     if region.lay in (LayPattern.DIRECTIONAL, LayPattern.CIRCULAR, LayPattern.RADIAL):
-        if region.lay is LayPattern.DIRECTIONAL:
-            deviation = wrap_deviation(lay, region.lay_deg[0])
-            coherence_judged = coherence
-            if abs(deviation) > tol:
-                failed = True
-                reasons.append(
-                    f"lay {_fmt(lay)} is {abs(deviation):.1f}° off {_fmt(region.lay_deg[0])} (tolerance {tol:g}°)"
-                )
-        else:
-            region_lay = None
-            if centre_px is None:
-                failed = True
-                reasons.append("no centre could be fitted to the cell lays; give centre: [x, y] in the recipe")
-                coherence_judged = coherence
-            else:
-                extra["centre_px"] = [round(centre_px[0], 2), round(centre_px[1], 2)]
-                dev_clear = deviation_cells[clear]
-                if dev_clear.size:
-                    mean_dev, _ = axial_mean(dev_clear % 180.0, weights)
-                    deviation = wrap_deviation(mean_dev, 0.0)
-                    uncertainty = _uncertainty(dev_clear % 180.0, weights)
-                    extra["rms_cell_deviation_deg"] = round(float(np.sqrt(np.mean(dev_clear**2))), 3)
-                # the lay turns across the region, so the summed tensor's coherence is low by design:
-                # judge the mean coherence of the cells instead
-                coherence_judged = float(np.average(cell_coh[textured], weights=(cells.jxx + cells.jyy)[textured])) if textured.any() else 0.0
-                extra["mean_cell_coherence"] = round(coherence_judged, 4)
-                what = "circles" if region.lay is LayPattern.CIRCULAR else "radii"
-                if deviation is not None and abs(deviation) > tol:
-                    failed = True
-                    reasons.append(f"lay is on average {abs(deviation):.1f}° off the {what} about the centre (tolerance {tol:g}°)")
-        if coherence_judged < region.min_coherence:
-            failed = True
-            reasons.append(f"no clear lay: coherence {coherence_judged:.2f} is below {region.min_coherence:g}")
-        # local check: cells with clear texture that deviate beyond tolerance
-        deviating = clear & (np.abs(deviation_cells) > tol)
-        if region.lay is LayPattern.DIRECTIONAL:
-            # the scatter of the cells that follow the region's lay; deviating patches are reported apart
-            keep = clear & ~deviating if (clear & ~deviating).sum() >= 3 else clear
-            uncertainty = _uncertainty(cell_lay[keep], (cells.jxx + cells.jyy)[keep])
+        # local check: cells with clear texture whose lay deviates beyond tolerance
+        v.deviating = c.clear & (np.abs(deviation_cells) > region.tolerance_deg)
+    if region.lay is LayPattern.DIRECTIONAL:
+        _judge_directional(region, c, coherence, v)
+    elif region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL):
+        _judge_centred(region, c, centre_px, deviation_cells, v)
     elif region.lay is LayPattern.CROSSED:
-        peaks = _crossed_peaks(histogram, region.lay_deg, tol)
-        found_lays, devs, shares = [], [], []
-        for e, (peak, share) in zip(region.lay_deg, peaks):
-            if peak is None:
-                failed = True
-                reasons.append(f"no grain found near {_fmt(e)} (crossed lay needs both directions)")
-                found_lays.append(None)
-                devs.append(None)
-            else:
-                d = wrap_deviation(peak, e)
-                found_lays.append(round(peak, 3))
-                devs.append(round(d, 3))
-                if abs(d) > tol:
-                    failed = True
-                    reasons.append(f"grain {_fmt(peak)} is {abs(d):.1f}° off {_fmt(e)} (tolerance {tol:g}°)")
-            shares.append(share)
-        extra.update(crossed_lay_deg=found_lays, crossed_deviation_deg=devs)
-        if all(p is not None for p, _ in peaks):
-            balance = min(shares) / max(sum(shares), 1e-12)
-            extra["balance"] = round(balance, 4)  # share of the weaker direction, 0.5 = even
-        known = [d for d in devs if d is not None]
-        deviation = max(known, key=abs) if known else None
-        region_lay = found_lays[0]
+        _judge_crossed(region, histogram, v)
     elif region.lay in (LayPattern.MULTIDIRECTIONAL, LayPattern.PARTICULATE):
-        region_lay = None
-        if textured.sum() >= 2:
-            rt = rayleigh_test(cell_lay[textured], axial=True)
-            extra.update(
-                rayleigh_resultant_length=round(rt.resultant_length, 4),
-                rayleigh_statistic=round(rt.statistic, 3),
-                rayleigh_p=round(rt.p_value, 5),
-            )
-            if rt.p_value < RAYLEIGH_ALPHA:
-                failed = True
-                reasons.append(
-                    f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})"
-                )
-        if coherence > region.max_coherence:
-            failed = True
-            reasons.append(
-                f"dominant direction {_fmt(lay)} present: coherence {coherence:.2f} exceeds {region.max_coherence:g} for a {region.lay.value} lay"
-            )
+        _judge_nondirectional(region, c, coherence, v)
     # LayPattern.ANY: texture is present, nothing more is judged
 
-    patches = _patches(deviating, m, cell_lay, expected) if deviating.any() else ()
+    patches = _patches(v.deviating, m, expected) if v.deviating.any() else ()
     defect = float(sum(p.area_fraction for p in patches))
     if defect > region.max_defect_fraction:
-        failed = True
         biggest = patches[0]
-        reasons.append(
+        v.fail(
             f"{100 * defect:.1f}% of the area deviates (allowed {100 * region.max_defect_fraction:g}%): "
-            f"{len(patches)} patch{'es' if len(patches) > 1 else ''}, largest {100 * biggest.area_fraction:.1f}% with lay {_fmt(biggest.lay_deg)}"
+            f"{len(patches)} patch{'es' if len(patches) > 1 else ''}, largest {100 * biggest.area_fraction:.1f}% "
+            f"with lay {_fmt(biggest.lay_deg)}"
         )
-    if not failed:
+    if not v.failed:
         if region.lay is LayPattern.DIRECTIONAL:
-            reasons.append(f"lay {_fmt(lay)} within {tol:g}° of {_fmt(region.lay_deg[0])} ({_signed(deviation)})")
+            v.reasons.append(
+                f"lay {_fmt(lay)} within {region.tolerance_deg:g}° of {_fmt(region.lay_deg[0])} ({_signed(v.deviation)})"
+            )
         elif region.lay is LayPattern.ANY:
-            reasons.append("texture present (direction not judged)")
+            v.reasons.append("texture present (direction not judged)")
         else:
-            reasons.append(f"{region.lay.value} lay as required")
+            v.reasons.append(f"{region.lay.value} lay as required")
 
     return RegionResult(
         **base,
-        lay_deg=region_lay,
-        deviation_deg=deviation,
-        uncertainty_deg=uncertainty,
-        coherence=float(coherence),
+        lay_deg=v.lay,
+        deviation_deg=v.deviation,
+        uncertainty_deg=v.uncertainty,
         defect_area_fraction=defect,
         patches=patches,
-        verdict=RegionVerdict.FAIL if failed else RegionVerdict.PASS,
-        reasons=tuple(reasons),
+        verdict=RegionVerdict.FAIL if v.failed else RegionVerdict.PASS,
+        reasons=tuple(v.reasons),
         cells=CellGrid(
-            origin_px=cells.origin_px,
-            cell_px=cells.cell_px,
-            lay_deg=shown_lay,
-            coherence=np.where(covered, cell_coh, np.nan),
-            expected_deg=np.where(covered, expected, np.nan),
-            deviating=deviating,
+            origin_px=sums.origin_px,
+            cell_px=sums.cell_px,
+            lay_deg=np.where(c.textured, c.lay, np.nan),
+            coherence=np.where(c.covered, c.coherence, np.nan),
+            expected_deg=np.where(c.covered, expected, np.nan),
+            deviating=v.deviating,
         ),
-        extra=extra,
+        extra=v.extra,
     )

@@ -11,7 +11,7 @@ from __future__ import annotations
 import enum
 import hashlib
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -523,12 +523,5 @@ def load_recipe(path: str | Path) -> Recipe:
         text = data.decode("utf-8")
     except UnicodeDecodeError:
         raise RecipeError(f"{path}:1: recipe: not a UTF-8 text file") from None
-    recipe = parse_recipe(text, str(path))
     # the recipe hash covers the file's exact bytes
-    return _replace_sha(recipe, hashlib.sha256(data).hexdigest())
-
-
-def _replace_sha(recipe: Recipe, sha: str) -> Recipe:
-    from dataclasses import replace
-
-    return replace(recipe, sha256=sha)
+    return replace(parse_recipe(text, str(path)), sha256=hashlib.sha256(data).hexdigest())

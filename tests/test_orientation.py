@@ -117,7 +117,9 @@ def test_cell_histogram_linear_votes_match_direct_sum():
     np.add.at(ref, (rows // 16, cols // 16, (lo + 1) % 12), mag * f)
     np.testing.assert_allclose(cs.hist, ref, atol=2e-3 * ref.max())
     np.testing.assert_allclose(cs.hist.sum(axis=-1), ref.sum(axis=-1), rtol=1e-5)
-    np.testing.assert_allclose(cs.area, [[16 * 16 - np.sum(~mask[i*16:(i+1)*16, j*16:(j+1)*16]) if j < 4 else 16 * 11 - np.sum(~mask[i*16:(i+1)*16, 64:75]) for j in range(5)] if i < 3 else [12 * (16 if j < 4 else 11) for j in range(5)] for i in range(4)])
+    # area: region pixels per cell, counted directly from the mask (cells clipped to the 75x60 box)
+    expected_area = [[mask[i * 16 : (i + 1) * 16, j * 16 : (j + 1) * 16].sum() for j in range(5)] for i in range(4)]
+    np.testing.assert_allclose(cs.area, expected_area)
 
 
 def test_strips_join_seamlessly():
