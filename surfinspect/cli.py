@@ -32,6 +32,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="surfinspect", description="Measure and judge the surface lay of panels.")
     parser.add_argument("--version", action="version", version=f"surfinspect {__version__}")
     parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    # -q also after the command name; SUPPRESS keeps the sub-parser from resetting a -q given before it
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print nothing but errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
         try:
@@ -40,7 +43,7 @@ def build_parser() -> argparse.ArgumentParser:
             if exc.name == f"{__package__}.commands.{name}":
                 continue  # command not built yet
             raise
-        p = sub.add_parser(name, help=module.HELP, description=module.HELP)
+        p = sub.add_parser(name, help=module.HELP, description=module.HELP, parents=[common])
         module.add_arguments(p)
         p.set_defaults(_run=module.run)
     return parser

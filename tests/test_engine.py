@@ -291,3 +291,18 @@ def test_part_not_found_is_review_in_words():
     part = inspect_image(img, parse_recipe(PLATE_RECIPE))
     assert part.verdict is PartVerdict.REVIEW
     assert part.reasons and part.reasons[0].startswith("part frame not found:")
+
+
+def test_uncertainty_covers_the_error_about_95_percent_of_the_time():
+    # A k = 2 expanded uncertainty should cover the true error for ~95 % of parts (GUM, JCGM
+    # 100:2008, 6.2). Measured over independent textures whose grain is correlated over more than
+    # a cell (along 30 px, cells 24 px), the case where single-cell scatter understates the error.
+    r = directional_recipe((20, 20, 448, 112), 3.5, cell_px=24)
+    covered, ratios = 0, []
+    for seed in range(40):
+        tex = synth.brushed_texture((160, 500), 3.5, seed=seed, along_px=30.0)
+        region = inspect_image(synth.shade_and_noise(tex, seed=seed, contrast=0.07, noise=0.008), r).regions[0]
+        covered += abs(region.deviation_deg) <= region.uncertainty_deg
+        ratios.append(region.uncertainty_deg)
+    assert covered >= 34  # at least 85 % of 40
+    assert np.mean(ratios) < 0.5  # and it is not uselessly wide
