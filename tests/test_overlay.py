@@ -14,7 +14,17 @@ import pytest
 
 from surfinspect import overlay
 from surfinspect.errors import InputError
-from surfinspect.overlay import PALETTE, REGION_LOOKS, build_scene, dash_pieces, render_overlay, write_overlay_png
+from surfinspect.overlay import (
+    PALETTE,
+    REGION_LOOKS,
+    axis_polylines,
+    build_scene,
+    dash_pieces,
+    expected_varies,
+    place_labels,
+    render_overlay,
+    write_overlay_png,
+)
 from surfinspect.results import (
     CellGrid,
     DatumInfo,
@@ -124,6 +134,62 @@ def make_pad(*, textured: bool = False) -> RegionResult:
         reasons=() if textured else ("no measurable texture: coherence 0.03 below 0.2",),
         outline_px=(_rect_outline(*PAD_RECT),),
         cells=CellGrid((x, y), CELL, lay, np.full(shape, 0.5), np.zeros(shape), np.zeros(shape, bool)),
+    )
+
+
+RING_CENTRE = (220.0, 180.0)  # image px
+RING_ORIGIN = (100, 60)  # top-left of the ring region's cell grid, image px
+RING_CELLS = 12  # 12 x 12 cells of CELL px
+RING_RADIUS = 120.0
+RING_WRONG = (slice(0, 3), slice(4, 8))  # cells whose lay runs along the radius instead
+
+
+def tangent_deg(x: float, y: float, centre=RING_CENTRE) -> float:
+    """Analytic lay of circles about ``centre`` at image point (x, y): the radius turned by 90 degrees.
+
+    The radius direction is (x - cx, -(y - cy)) with +Y up (rows grow down).
+    """
+    return (math.degrees(math.atan2(-(y - centre[1]), x - centre[0])) + 90.0) % 180.0
+
+
+def make_ring(*, wrong: bool = True, fitted: bool = False, name: str = "ring") -> RegionResult:
+    """A circular-lay region: expected lay tangent to circles about RING_CENTRE, cell by cell."""
+    x0, y0 = RING_ORIGIN
+    n = RING_CELLS
+    i, j = np.indices((n, n))
+    cx, cy = x0 + (j + 0.5) * CELL, y0 + (i + 0.5) * CELL
+    inside = np.hypot(cx - RING_CENTRE[0], cy - RING_CENTRE[1]) < RING_RADIUS - 0.5 * CELL
+    expected = np.where(inside, np.vectorize(tangent_deg)(cx, cy), np.nan)
+    lay = expected.copy()
+    flags = np.zeros((n, n), bool)
+    if wrong:
+        block = np.zeros((n, n), bool)
+        block[RING_WRONG] = True
+        block &= inside
+        lay[block] = (expected[block] + 90.0) % 180.0
+        flags = block
+    t = np.linspace(0.0, 2 * math.pi, 48, endpoint=False)
+    outline = tuple((RING_CENTRE[0] + RING_RADIUS * math.cos(a), RING_CENTRE[1] + RING_RADIUS * math.sin(a)) for a in t)
+    extra = {"centre_px": list(RING_CENTRE), "mean_cell_coherence": 0.9123, "rms_cell_deviation_deg": 0.512, "texture_to_noise": 88.51}
+    if fitted:
+        extra["centre_fitted"] = True
+    return RegionResult(
+        name=name,
+        expected_lay_deg=None,
+        tolerance_deg=4.0,
+        lay_deg=None,
+        deviation_deg=0.437,
+        uncertainty_deg=0.05,
+        coherence=0.0123,
+        defect_area_fraction=0.0,
+        patches=(),
+        histogram=_histogram(None),
+        verdict=RegionVerdict.FAIL if wrong else RegionVerdict.PASS,
+        reasons=("lay is on average 0.4° off the circles about the centre (tolerance 4°)",) if wrong else ("circular lay as required",),
+        lay_pattern="circular",
+        outline_px=(outline,),
+        cells=CellGrid(RING_ORIGIN, CELL, lay, np.full((n, n), 0.9), expected, flags),
+        extra=extra,
     )
 
 
@@ -327,3 +393,124 @@ def test_line_widths_grow_with_picture():
     small = overlay._RasterPainter(np.zeros((300, 400, 3), np.uint8), 1.0)
     large = overlay._RasterPainter(np.zeros((3000, 4000, 3), np.uint8), 1.0)
     assert small.width("outline") == 2 and large.width("outline") == 16
+
+
+def _axial_angle(segment) -> float:
+    """Screen angle of an image-px segment, counter-clockwise with +Y up, in [0, 180)."""
+    d = np.asarray(segment[1]) - np.asarray(segment[0])
+    return math.degrees(math.atan2(-d[1], d[0])) % 180.0
+
+
+def test_expected_direction_drawn_per_cell_where_it_varies():
+    part = make_part(regions=(make_ring(wrong=False),))
+    ring = build_scene(part, WIDTH, HEIGHT).regions[0]
+    cells = part.regions[0].cells
+    # counting: one tick per cell that has an expected lay (the cells inside the circle)
+    assert len(ring.expected_glyphs) == int(np.isfinite(cells.expected_deg).sum()) > 50
+    for seg in ring.expected_glyphs:
+        mid = (seg[0] + seg[1]) / 2
+        # analytic: circles about the centre run perpendicular to the radius through the cell centre
+        want = tangent_deg(*mid)
+        got = _axial_angle(seg)
+        assert min(abs(got - want), 180 - abs(got - want)) < 1e-6
+    # the region's one-direction arrows are not drawn: there is no one direction
+    assert ring.expected_screen_deg == () and ring.measured_screen_deg == ()
+    # a region with one expected direction everywhere gets no per-cell ticks
+    assert len(build_scene(make_part(), WIDTH, HEIGHT).regions[0].expected_glyphs) == 0
+
+
+def test_expected_varies_is_axial():
+    # axial directions: 179.99 and 0.01 are 0.02 degrees apart, one direction for the recipe
+    assert not expected_varies(np.array([[179.99, 0.01], [np.nan, 0.0]]))
+    assert expected_varies(np.array([[0.0, 10.0]]))
+    assert not expected_varies(np.array([[np.nan, 45.0]]))
+
+
+def test_deviating_ring_cell_shows_expected_tick_across_measured_line():
+    part = make_part(regions=(make_ring(),))
+    picture = render_overlay(make_pixels(lay_deg=0.0), part)
+    i, j = 2, 6  # a deviating cell inside the circle, clear of the label and the centre
+    assert part.regions[0].cells.deviating[i, j]
+    cx, cy = RING_ORIGIN[0] + (j + 0.5) * CELL, RING_ORIGIN[1] + (i + 0.5) * CELL
+    expected = math.radians(tangent_deg(cx, cy))
+    # the tick (0.95 of a cell) reaches beyond the measured line (0.65 of a cell): between the two
+    # lengths, along the expected direction, the picture shows the expected colour
+    r = 0.4 * CELL
+    px = picture[int(round(cy - r * math.sin(expected))), int(round(cx + r * math.cos(expected)))]
+    assert nearest_palette_name(px) in ("expected", "halo-light")
+    # the measured line (along the radius, here near vertical) runs across it in the deviating colour;
+    # sampled row by row on the line (OpenCV puts integer coordinates at pixel centres)
+    # the line is 1 px wide here and blends with its black edge, which scales R, G and B alike: so the
+    # hue identifies it, G / R = 159 / 230 = 0.69 for Okabe-Ito orange (0.44 for the vermillion of "fail")
+    measured = expected + math.pi / 2
+    hits = 0
+    for row in range(int(cy) - 4, int(cy) + 5):
+        col = int(round(cx + (cy - row) / math.tan(measured)))
+        r, g, _ = max((tuple(int(v) for v in picture[row, c]) for c in (col - 1, col, col + 1)), key=lambda p: p[0])
+        hits += r > 150 and 0.62 < g / r < 0.76
+    assert hits >= 7
+
+
+def test_lay_centre_marked_and_labelled():
+    part = make_part(regions=(make_ring(fitted=True),))
+    scene = build_scene(part, WIDTH, HEIGHT)
+    assert scene.regions[0].lay_centre == RING_CENTRE and scene.regions[0].lay_centre_fitted
+    with_centre = render_overlay(make_pixels(), part).astype(int)
+    plain = make_ring(fitted=True)
+    plain = RegionResult(**{**plain.__dict__, "extra": {"texture_to_noise": 88.51}})
+    without = render_overlay(make_pixels(), make_part(regions=(plain,))).astype(int)
+    # reference: the centre the result file gives (extra.centre_px); the marker's white arms reach
+    # about 0.9 arrow heads (16 units of 0.48 px) from it, and only the marker differs between the two
+    x, y = int(RING_CENTRE[0]), int(RING_CENTRE[1])
+    changed = np.argwhere(np.abs(with_centre - without).sum(axis=2) > 60)
+    near = np.hypot(changed[:, 1] - x, changed[:, 0] - y) < 12
+    assert near.sum() > 20
+    label = changed[~near]  # and the label box "ring centre (fitted)" beside it, nothing else
+    assert len(label) and (label[:, 1] >= x).all() and (np.abs(label[:, 0] - y) < 30).all()
+    arm = with_centre[y - 1 : y + 2, x + 5 : x + 7].min(axis=2)
+    assert arm.max() > 230  # white on the arm, away from the ring around the centre
+
+
+def test_place_labels_keeps_boxes_apart_and_inside():
+    boxes = [(10.0, 10.0, 40.0, 10.0)] * 3 + [(95.0, 95.0, 20.0, 10.0)]
+    spots = place_labels(boxes, (100.0, 100.0), gap=1.0, obstacles=[(60.0, 0.0, 40.0, 40.0)])
+    assert spots[0] == (10.0, 10.0)  # the first keeps its place
+    placed = [(x, y, w, h) for (x, y), (_, _, w, h) in zip(spots, boxes)]
+    for k, (x, y, w, h) in enumerate(placed):
+        assert 0 <= x <= 100 - w and 0 <= y <= 100 - h  # inside the picture
+        for a, b, c, d in placed[k + 1 :] + [(60.0, 0.0, 40.0, 40.0)]:
+            # analytic: two boxes overlap when both their x and y intervals overlap
+            assert x + w <= a or a + c <= x or y + h <= b or b + d <= y
+
+
+def test_frame_axes_have_heads_and_stay_on_the_picture():
+    # origin 30 px below the picture's top: a full-length +Y axis would leave the picture
+    datum = DatumInfo("part-edge", 0.0, (40.0, 30.0), size_px=(400.0, 300.0))
+    f = build_scene(make_part(datum=datum), WIDTH, HEIGHT).frame
+    assert 0.0 <= f.y_tip[1] < 30.0 and f.x_tip[0] - 40.0 == pytest.approx(0.15 * WIDTH)
+    _, barb, _ = axis_polylines((0.0, 0.0), (10.0, 0.0), 3.0)
+    # analytic: a barb leaves the tip at 150 degrees from the shaft, 3 px long
+    d = barb[1] - barb[0]
+    assert np.allclose(barb[0], (10.0, 0.0)) and math.hypot(*d) == pytest.approx(3.0)
+    assert math.degrees(math.atan2(-d[1], d[0])) == pytest.approx(150.0)
+
+
+def test_patch_label_names_patch():
+    assert overlay.patch_label(3) == "P3"
+
+
+def test_crossed_lay_draws_each_grain_found():
+    import dataclasses
+
+    face = dataclasses.replace(
+        make_face(deviating=False),
+        lay_pattern="crossed",
+        expected_lay_deg=(30.0, 120.0),
+        lay_deg=None,
+        extra={"crossed_lay_deg": [None, 116.7], "crossed_deviation_deg": [None, -3.3]},
+    )
+    datum = DatumInfo("part-edge", 2.0, (10.0, 350.0))
+    region = build_scene(make_part(regions=(face,), datum=datum), WIDTH, HEIGHT).regions[0]
+    # reference: the result's extra.crossed_lay_deg (the one grain found), turned by the datum's skew
+    assert region.measured_screen_deg == pytest.approx((118.7,))
+    assert region.expected_screen_deg == pytest.approx((32.0, 122.0))

@@ -19,12 +19,30 @@ import numpy as np
 import pytest
 from pypdf import PdfReader
 from pypdf.generic import ContentStream
+from test_overlay import (
+    RING_CENTRE,
+    make_face,
+    make_pad,
+    make_part,
+    make_pixels,
+    make_ring,
+    nearest_palette_name,
+)
 
 from surfinspect import results
 from surfinspect.errors import InputError
-from surfinspect.report import CAUTION, PICTURE_MAX_PX, format_angle, format_signed_angle, render_report, write_report
+from surfinspect.report import (
+    CAUTION,
+    PICTURE_MAX_PX,
+    NotInspected,
+    format_angle,
+    format_fixed,
+    format_signed_angle,
+    render_report,
+    signoff_state,
+    write_report,
+)
 from surfinspect.results import DatumInfo, SignOff
-from test_overlay import make_face, make_pad, make_part, make_pixels, nearest_palette_name
 
 WHEN = datetime(2031, 4, 2, 9, 0, 0, tzinfo=timezone.utc)
 REPORT_ID = "B-2031-0402-01"
@@ -132,8 +150,8 @@ def test_large_picture_is_downsampled_to_the_page():
     assert len(image.get_data()) < 1_500_000
 
 
-def _ctm_of_operator(page, reader, operator: bytes, operands: list[float]) -> np.ndarray:
-    """The current transformation matrix in force where ``operator`` with ``operands`` is first drawn."""
+def _ctm_where(page, reader, wanted) -> np.ndarray:
+    """The current transformation matrix in force at the first operation ``wanted(operands, operator)`` accepts."""
     ctm = np.eye(3)
     stack = []
     for args, op in ContentStream(page.get_contents(), reader).operations:
@@ -144,9 +162,14 @@ def _ctm_of_operator(page, reader, operator: bytes, operands: list[float]) -> np
         elif op == b"cm":
             a, b, c, d, e, f = (float(v) for v in args)
             ctm = np.array([[a, b, 0], [c, d, 0], [e, f, 1]]) @ ctm  # PDF 32000-1:2008, 8.3.4
-        elif op == operator and [float(v) for v in args] == operands:
+        elif wanted(args, op):
             return ctm
-    raise AssertionError(f"no {operator!r} with operands {operands} on the page")
+    raise AssertionError("the operation is not on the page")
+
+
+def _ctm_of_operator(page, reader, operator: bytes, operands: list[float]) -> np.ndarray:
+    """The current transformation matrix in force where ``operator`` with ``operands`` is first drawn."""
+    return _ctm_where(page, reader, lambda args, op: op == operator and [float(v) for v in args] == operands)
 
 
 def test_patch_box_drawn_where_the_json_says(three, tmp_path):
@@ -218,30 +241,58 @@ def test_signoff_block_empty_then_filled():
     signed = PdfReader(io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN, signoff=sign)))
     text = signed.pages[0].extract_text()
     assert "NOT SIGNED" not in text
-    for value in ("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
+    for value in ("Anna Berg", "APPROVED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
         assert value in text
 
 
-def test_batch_statistics_page_matches_independent_capability():
-    deviations = [0.10, -0.20, 0.15, 0.00, -0.10, 0.05, 2.60, 0.12, -0.05, 0.08, -0.15, 0.02]
-    parts = [
+def _stats_batch(deviations):
+    return [
         make_part(f"LW-220-{k + 1:04d}", regions=(make_face(deviating=False, lay_deg=90.0 + d),))
         for k, d in enumerate(deviations)
     ]
+
+
+STATS_DEVIATIONS = [0.10, -0.20, 0.15, 0.00, -0.10, 0.05, 2.60, 0.12, -0.05, 0.08, -0.15, 0.02]
+
+
+def test_batch_statistics_page_matches_independent_capability():
+    parts = _stats_batch(STATS_DEVIATIONS)
     pdf = render_report(parts, [None] * len(parts), report_id="S", generated_at=WHEN, batch_stats=True)
     texts = page_texts(PdfReader(io.BytesIO(pdf)))
-    stats = next(t for t in texts if t.lstrip().startswith("Batch statistics"))
+    k_stats = next(k for k, t in enumerate(texts) if t.lstrip().startswith("Batch statistics"))
+    stats = " ".join(texts[k_stats].split())
     # Montgomery (2013), ch. 6.4 and 8.2: sigma = mean moving range / d2, d2 = 1.128 for n = 2;
     # Cp = (USL - LSL) / 6 sigma; Cpk = min(USL - mean, mean - LSL) / 3 sigma
-    x = np.array([round(d, 3) for d in deviations])
+    x = np.array([round(d, 3) for d in STATS_DEVIATIONS])
     sigma = np.abs(np.diff(x)).mean() / 1.128
     cp = 6.0 / (6 * sigma)
     cpk = min(3.0 - x.mean(), x.mean() + 3.0) / (3 * sigma)
     assert f"Cp {cp:.2f}" in stats and f"Cpk {cpk:.2f}" in stats
-    # the 2.6 deg panel lies beyond mean + 2.66 mean(MR) (same reference): it is named
-    ucl = x.mean() + 2.66 * np.abs(np.diff(x)).mean()
-    assert x[6] > ucl
-    assert "Outside control limits: #7 LW-220-0007" in " ".join(stats.split())
+    # the 2.6 deg panel lies beyond mean + 2.66 mean(MR) (same reference): it is listed as #7 with
+    # why, and the two moving ranges around it (|x7 - x6| and |x8 - x7|, hand-computed 2.55 and 2.48)
+    # exceed 3.267 mean(MR): the later part of each pair, #7 and #8, is named
+    mr_bar = np.abs(np.diff(x)).mean()
+    assert x[6] > x.mean() + 2.66 * mr_bar and abs(x[6] - x[5]) > 3.267 * mr_bar and abs(x[7] - x[6]) > 3.267 * mr_bar
+    assert "7 LW-220-0007" in stats and "deviation outside the control limits" in stats
+    assert "8 LW-220-0008" in stats and "deviation jump from #7 above the moving-range limit" in stats
+    # the summary gives the same capability and points at the statistics page
+    summary = " ".join(texts[0].split())
+    assert f"Cp {cp:.2f} · Cpk {cpk:.2f}" in summary and f"(page {k_stats + 1})" in summary
+
+
+def test_batch_statistics_mark_parts_beyond_tolerance_inside_control_limits():
+    # a spread-out batch: wide control limits, yet one part lies beyond the 3 deg tolerance
+    deviations = [-2.0, 2.2, -1.5, 3.4, -2.5, 1.8, -1.0, 2.4]
+    parts = _stats_batch(deviations)
+    pdf = render_report(parts, [None] * len(parts), report_id="S", generated_at=WHEN, batch_stats=True)
+    texts = page_texts(PdfReader(io.BytesIO(pdf)))
+    stats = " ".join(next(t for t in texts if t.lstrip().startswith("Batch statistics")).split())
+    x = np.array(deviations)
+    # Montgomery (2013), ch. 6.4: X limits mean +- 2.66 mean(MR); #4 is inside them but beyond +3 deg
+    assert x.mean() + 2.66 * np.abs(np.diff(x)).mean() > 3.4
+    assert "4 LW-220-0004" in stats and "deviation beyond the tolerance ± 3.00°" in stats
+    assert "deviation outside the control limits" not in stats
+    assert "1 beyond the tolerance" in " ".join(texts[0].split())
 
 
 def test_extra_pages_come_last_with_footer():
@@ -289,6 +340,19 @@ def test_bad_inputs():
         render_report([part], [np.zeros((10, 10), np.float32)], report_id="E")
 
 
+def test_numbers_round_half_up_from_the_json_digits():
+    # common practice, no source: a reader rounds the file's decimal digits by hand, half away from
+    # zero; Python's decimal module with ROUND_HALF_UP is the independent reference for the examples
+    from decimal import ROUND_HALF_UP, Decimal
+
+    for value in (0.125, 2.675, -0.125, 96.005, 179.995):
+        want = Decimal(str(value)).quantize(Decimal("0.01"), rounding=ROUND_HALF_UP)
+        assert format_fixed(value, 2) == f"{want:.2f}"
+    assert format_fixed(0.125, 2) == "0.13" and f"{0.125:.2f}" == "0.12"  # binary rounding would differ
+    assert format_signed_angle(6.005) == "+6.01°" and format_angle(179.995, axial=True) == "0.00°"
+    assert format_fixed(None, 2) == "—" and format_fixed(float("nan"), 3) == "—"
+
+
 def test_signed_zero_is_printed_without_sign():
     # analytic: Python's format rounding to 2 decimals; 179.996 rounds to 180.00, the axial 0.00
     assert format_signed_angle(-0.001) == "0.00°" and format_signed_angle(0.006) == "+0.01°"
@@ -311,3 +375,109 @@ def test_part_without_regions_and_iso_time_string():
     assert "No region was measured" in texts[1] and "REVIEW" in texts[1]
     with pytest.raises(InputError, match=r"generated_at: not an ISO 8601 time \(got 'yesterday'"):
         render_report([lost], [None], report_id="Z", generated_at="yesterday")
+
+
+def test_every_page_footer_says_whether_the_report_is_signed():
+    parts = batch_of_three()
+    pixels = [make_pixels()] * 3
+    unsigned = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN))))
+    assert all("NOT SIGNED" in t for t in unsigned)
+    comment = "Released after re-brushing of panel 0002; " + "checked against drawing LW-220 sheet 2 " * 4
+    sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
+    signed = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign))))
+    # reference: the SignOff fields of results.py, printed verbatim on every page
+    assert all(signoff_state(sign) in t and "NOT SIGNED" not in t for t in signed)
+    assert signoff_state(sign) == "Signed: APPROVED by Anna Berg, 2031-04-02T10:30:00Z"
+    # a long comment wraps inside the block: every word is there, and the block ends before the parts table
+    summary = signed[0]
+    assert " ".join(comment.split()) in " ".join(summary.split())
+    assert summary.index("sheet 2") < summary.index("Parts (rejected first")
+
+
+def test_not_inspected_parts_are_counted_listed_and_paged():
+    parts = batch_of_three()
+    lost = NotInspected("LW-220-0009.png", "e" * 64, "not a readable image (the file may be truncated)")
+    pdf = render_report(parts, [make_pixels()] * 3, report_id="N", generated_at=WHEN, not_inspected=[lost])
+    texts = page_texts(PdfReader(io.BytesIO(pdf)))
+    summary = " ".join(texts[0].split())
+    assert "NOT INSPECTED" in summary and "1 not inspected" in summary
+    assert "LW-220-0009.png" in summary and "not a readable image" in summary
+    # listed after the reject and before the part that needs review (a hold, like the rejects)
+    assert summary.index("LW-220-0002") < summary.index("LW-220-0009.png") < summary.index("LW-220-0003")
+    k = next(i for i, t in enumerate(texts) if t.lstrip().startswith("Parts not inspected: 1 of 4"))
+    assert "e" * 64 in texts[k].replace("\n", "")
+    row = summary[summary.index("LW-220-0009.png") :].split("truncated)")[1].split()[0]
+    assert row == str(k + 1)  # the summary's page column points at the list
+    with pytest.raises(InputError, match=r"not_inspected\[0\]: not a NotInspected \(got tuple\)"):
+        render_report(parts, [None] * 3, report_id="N", not_inspected=[("a", "b", "c")])
+
+
+def test_summary_numbers_parts_in_production_order():
+    parts = batch_of_three()  # production order: 0001 accepted, 0002 rejected, 0003 review
+    texts = page_texts(PdfReader(io.BytesIO(render_report(parts, [None] * 3, report_id="O", generated_at=WHEN))))
+    tokens = texts[0].split()  # pypdf gives the table cell by cell: the number comes just before the name
+    numbers = {tokens[k + 1]: tokens[k] for k in range(len(tokens) - 1) if tokens[k + 1].startswith("LW-220-000")}
+    assert numbers == {"LW-220-0002": "2", "LW-220-0003": "3", "LW-220-0001": "1"}
+    assert [t for t in tokens if t.startswith("LW-220-000")] == ["LW-220-0002", "LW-220-0003", "LW-220-0001"]
+    assert "Part #2 of 3" in texts[part_page_index(texts, "LW-220-0002")]
+
+
+def test_verdict_sentence_wraps_instead_of_cutting_off():
+    face = make_face(deviating=False, lay_deg=90.0)
+    long_reason = "no measurable texture: gradient energy is 1.0x the camera noise's (needs at least 4x); polished, blurred or blank surface"
+    import dataclasses
+
+    blank = dataclasses.replace(make_pad(), reasons=(long_reason,))
+    part = make_part(regions=(face, blank))
+    texts = page_texts(PdfReader(io.BytesIO(render_report([part], [None], report_id="W", generated_at=WHEN))))
+    header = " ".join(texts[1].split("Image file")[0].split())
+    assert f"Needs review: pad: {long_reason}" in header and "…" not in header
+    one = make_part(regions=(face,))
+    texts = page_texts(PdfReader(io.BytesIO(render_report([one], [None], report_id="W", generated_at=WHEN))))
+    assert "The region is within its limits." in texts[1]
+
+
+def test_circular_region_is_reported_per_cell_not_as_no_texture():
+    ring = make_ring()
+    part = make_part(regions=(ring,))
+    pdf = render_report([part], [make_pixels()], report_id="C", generated_at=WHEN)
+    texts = page_texts(PdfReader(io.BytesIO(pdf)))
+    assert len(texts) == 2  # the part and its figures fit one page
+    page = " ".join(texts[1].split())
+    row = page[page.index("ring (circular lay, ISO 1302 C)") :]
+    row = row[: row.index("Reasons:")]
+    assert "tangent to circles" in row and "per cell (picture)" in row and "no texture" not in row
+    # the verdict rests on the cells' mean coherence (extra.mean_cell_coherence), printed as in the JSON
+    assert "0.912 cell mean" in row and "+0.44° mean of cells" in row
+    assert f"centre ({RING_CENTRE[0]:.1f}, {RING_CENTRE[1]:.1f}) px in the image, from the recipe" in page
+    assert "region-summed coherence 0.012 (not judged" in page and "RMS cell deviation 0.51°" in page
+    # the cell-deviation chart counts the cells within tolerance; analytic: the wrong cells are turned
+    # by exactly 90 degrees, every other measured cell by 0
+    cells = ring.cells
+    measured = int(np.isfinite(cells.lay_deg).sum())
+    within = measured - int(cells.deviating.sum())
+    assert f"{within} of {measured} cells within ± 4.00°" in page
+    assert "expected tangent to circles: varies per cell" in page
+
+
+def test_picture_fills_the_page_when_the_part_fits_on_it():
+    def drawn_height(pdf: bytes) -> float:
+        reader = PdfReader(io.BytesIO(pdf))
+        page = reader.pages[1]
+        name = next(iter(page["/Resources"]["/XObject"]))
+        ctm = _ctm_where(page, reader, lambda args, op: op == b"Do" and args[0] == name)
+        return abs(ctm[1, 1])  # PDF 32000-1:2008, 8.9.4: an image fills the unit square, so its height is the y scale
+
+    tall = make_part(regions=(make_face(deviating=False),), width=300, height=600)
+    pdf = render_report([tall], [make_pixels(300, 600)], report_id="P", generated_at=WHEN)
+    assert len(PdfReader(io.BytesIO(pdf)).pages) == 2
+    assert 340.0 < drawn_height(pdf) <= 470.0  # taller than the default, and the part still on one page
+    many = make_part(regions=tuple(make_face(name=f"zone-{k}", deviating=False) for k in range(14)), width=300, height=600)
+    assert drawn_height(render_report([many], [make_pixels(300, 600)], report_id="P", generated_at=WHEN)) == pytest.approx(340.0, abs=0.01)
+
+
+def test_patch_table_names_patches_as_the_picture_does():
+    texts = page_texts(PdfReader(io.BytesIO(render_report([make_part()], [None], report_id="T", generated_at=WHEN))))
+    table = " ".join(texts[1].split("Deviating patches")[1].split())
+    # PATCH_CELLS of test_overlay: cols 8..11 and rows 4..6 of 20 px cells from (20, 20)
+    assert "face P1 180, 100, 80, 60" in table
