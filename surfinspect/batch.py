@@ -254,6 +254,8 @@ class _Recorder:
         self.recorded = 0
 
     def error(self, key: str, message: str) -> None:
+        # the part's name within the batch folder, not this station's full path, goes into the record
+        message = message.replace(str(self.paths[key]), key)
         self._record(key, archive_mod.error_record_json(key, self.hashes[key], message), None)
 
     def worker_output(self, out: dict) -> None:
@@ -375,7 +377,7 @@ def render_batch_report(
 
     Pictures are read from the archived images (the bytes that were
     inspected), as 8-bit grey to keep the memory of a large batch down. Parts
-    whose image could not be read are listed on pages of their own at the end.
+    whose image could not be read are counted on the summary and listed with their reasons.
     The signed edition is rendered with the unsigned report's own generation
     time, so that the two differ only in the sign-off block.
 
@@ -384,7 +386,7 @@ def render_batch_report(
     InputError
         When no part of the batch could be inspected (there is nothing to report).
     """
-    from .report import render_report
+    from .report import NotInspected, render_report
 
     batch = arc.batch(batch_id)
     stored = _stored_parts(arc, batch_id)
@@ -402,43 +404,13 @@ def render_batch_report(
         generated_at=None if stamp is None else datetime.fromisoformat(stamp.replace("Z", "+00:00")),
         signoff=signoff,
         batch_stats=True,
-        extra_pages=_not_inspected_pages(failed, len(stored)),
+        not_inspected=[NotInspected(key, sha, error) for key, sha, error in failed],
     )
 
 
 def _picture_uint8(path: Path) -> np.ndarray:
     pixels = read_image(path).pixels
     return np.clip(np.rint(pixels * 255.0), 0, 255).astype(np.uint8)
-
-
-_ROWS_PER_PAGE = 40
-
-
-def _not_inspected_pages(failed: Sequence[tuple[str, str, str]], total: int) -> list[Callable]:
-    """Pages listing the parts whose image could not be read (so that none is silently missing)."""
-    pages = []
-    for start in range(0, len(failed), _ROWS_PER_PAGE):
-        chunk = failed[start : start + _ROWS_PER_PAGE]
-
-        def draw(c, page_size, chunk=chunk, start=start) -> None:
-            width, height = page_size
-            x, y = 36.0, height - 50.0
-            c.setFont("Helvetica-Bold", 13)
-            c.drawString(x, y, f"Parts not inspected: {len(failed)} of {total}")
-            c.setFont("Helvetica", 8)
-            y -= 16
-            c.drawString(x, y, "These images could not be read. Each counts as needing review; it is not accepted.")
-            y -= 20
-            for n, (key, sha, error) in enumerate(chunk, start=start + 1):
-                c.setFont("Helvetica-Bold", 8)
-                c.drawString(x, y, f"{n}. {key}   NOT INSPECTED")
-                c.setFont("Helvetica", 7)
-                c.drawString(x + 12, y - 9, (error if len(error) <= 130 else error[:129] + "…"))
-                c.drawString(x + 12, y - 18, f"file SHA-256 {sha or '(file could not be read)'}")
-                y -= 30
-
-        pages.append(draw)
-    return pages
 
 
 def export_batch(arc: archive_mod.Archive, batch_id: str, out_dir: str | os.PathLike) -> list[Path]:

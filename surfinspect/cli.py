@@ -62,6 +62,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         for line in exc.problems:
             console.error(line)
         return EXIT_INPUT_ERROR
+    except OSError as exc:
+        # an output that cannot be written (a file where a folder is wanted, no permission, disk
+        # full): a usage problem, not a verdict. Writes are atomic, so nothing half-written remains.
+        where = exc.filename or "output"
+        console.error(f"{where}: cannot write or read ({exc.strerror or exc.__class__.__name__})")
+        return EXIT_INPUT_ERROR
     except KeyboardInterrupt:
         console.error("interrupted")
         return 130

@@ -70,3 +70,25 @@ def sha256_file(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
                 break
             h.update(block)
     return h.hexdigest()
+
+
+def ensure_output_dir(path: str | os.PathLike, flag: str) -> Path:
+    """Make the output folder given by a command-line flag, or say in one line why it cannot be.
+
+    Raises
+    ------
+    InputError
+        When ``path`` is a file, or the folder cannot be made or written.
+    """
+    from .errors import InputError
+
+    out = Path(path)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"{flag} {out}: not a folder (a file of that name exists; allowed: a folder or a new name)")
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"{flag} {out}: cannot make the folder ({exc.strerror or exc})") from None
+    if not os.access(out, os.W_OK):
+        raise InputError(f"{flag} {out}: the folder is not writable")
+    return out

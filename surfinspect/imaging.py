@@ -75,14 +75,16 @@ def decode_image(data: bytes, name: str) -> tuple[np.ndarray, int]:
     """
     if not data:
         raise InputError(f"{name}: image file is empty")
+    if _looks_truncated(data):  # checked first: the decoder would print its own complaint
+        raise InputError(f"{name}: image file is truncated (its end marker is missing)")
     buf = np.frombuffer(data, dtype=np.uint8)
-    raw = cv2.imdecode(buf, cv2.IMREAD_UNCHANGED | cv2.IMREAD_ANYDEPTH)
+    # ANYCOLOR (not UNCHANGED) so that a camera's EXIF orientation tag is applied: the picture
+    # is measured the way it is seen, and lay angles refer to that view
+    raw = cv2.imdecode(buf, cv2.IMREAD_ANYCOLOR | cv2.IMREAD_ANYDEPTH)
     if raw is None or raw.size == 0:
         raise InputError(
             f"{name}: not a readable image (allowed PNG, TIFF, JPEG, BMP at 8 or 16 bits; the file may be truncated)"
         )
-    if _looks_truncated(data, name):
-        raise InputError(f"{name}: image file is truncated (its end marker is missing)")
     if raw.dtype not in (np.uint8, np.uint16):
         raise InputError(f"{name}: unsupported sample type {raw.dtype} (allowed 8- or 16-bit integer images)")
     bit_depth = 16 if raw.dtype == np.uint16 else 8
@@ -95,7 +97,7 @@ def decode_image(data: bytes, name: str) -> tuple[np.ndarray, int]:
     return as_grey_float(raw), bit_depth
 
 
-def _looks_truncated(data: bytes, name: str) -> bool:
+def _looks_truncated(data: bytes) -> bool:
     # OpenCV fills a truncated PNG or JPEG with grey and only warns; check the end markers.
     if data[:8] == b"\x89PNG\r\n\x1a\n":
         return b"IEND" not in data[-16:]

@@ -320,9 +320,9 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
 }
 
 
-def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set) -> Region | None:
+def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, line: int) -> Region | None:
     if not isinstance(m, _Map):
-        r.p.add(getattr(m, "line", 0), path, f"must be a mapping of region keys (got {_describe(m)})")
+        r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
         return None
     n_before = len(r.p.items)
     name = m.get("name")
@@ -365,8 +365,8 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set) -> 
         if not isinstance(spelled, str) or spelled not in LAY_SPELLINGS:
             allowed = ", ".join(LAY_SPELLINGS)
             r.p.add(m.line_of("lay"), _join(path, "lay"), f"unknown lay pattern (got {_describe(spelled)}, allowed {allowed})")
-        else:
-            pattern, fixed = LAY_SPELLINGS[spelled]
+            return None  # what lay_deg must be depends on the pattern: nothing more to check
+        pattern, fixed = LAY_SPELLINGS[spelled]
     lay_deg: tuple[float, ...] = ()
     where = _join(path, "lay_deg")
     raw = m.get("lay_deg")
@@ -377,15 +377,24 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set) -> 
             lay_deg = (fixed,)
         elif raw is None:
             r.p.add(m.line, where, "missing: a directional region needs lay_deg (allowed 0 <= lay_deg < 180), or give lay: multidirectional, circular, ...")
-        elif not _is_number(raw) or not (0 <= raw < 180):
-            r.p.add(m.line_of("lay_deg"), where, f"out of range (got {_describe(raw)}, allowed a number 0 <= lay_deg < 180)")
+        elif not _is_number(raw):
+            r.p.add(m.line_of("lay_deg"), where, f"must be a number (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
+        elif not (0 <= raw < 180):
+            r.p.add(m.line_of("lay_deg"), where, f"out of range (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
         else:
             lay_deg = (float(raw),)
     elif pattern is LayPattern.CROSSED:
         v = r.numbers(raw, m.line_of("lay_deg"), where, 2, "[a, b] for a crossed lay")
         if v is not None:
+            tol = params.get("tolerance_deg") or REGION_DEFAULTS["tolerance_deg"]
             if not all(0 <= a < 180 for a in v):
                 r.p.add(m.line_of("lay_deg"), where, f"angles out of range (got {list(v)}, allowed 0 <= a < 180)")
+            elif abs(((v[0] - v[1]) + 90) % 180 - 90) <= 2 * tol:
+                r.p.add(
+                    m.line_of("lay_deg"),
+                    where,
+                    f"the two directions must differ by more than twice the tolerance (got {list(v)}, tolerance {tol:g}°)",
+                )
             else:
                 lay_deg = v
     elif raw is not None:
@@ -484,7 +493,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
     else:
         names: set[str] = set()
         for i, item in enumerate(raw_regions):
-            reg = _parse_region(r, item, f"regions[{i}]", defaults, names)
+            reg = _parse_region(r, item, f"regions[{i}]", defaults, names, raw_regions.lines[i])
             if reg is not None:
                 regions.append(reg)
 

@@ -45,7 +45,7 @@ import os
 import socket
 from dataclasses import dataclass
 from datetime import datetime, timezone
-from decimal import ROUND_HALF_UP, Decimal
+from decimal import Decimal
 from typing import Callable, Iterable, Mapping, Sequence
 from xml.sax.saxutils import escape
 
@@ -60,6 +60,7 @@ from reportlab.platypus import Flowable, Paragraph, Table, TableStyle
 
 from . import fsutil
 from .errors import InputError
+from .formatting import ANGLE_DECIMALS, format_angle, format_fixed, format_signed_angle
 from .orientation import wrap_deviation
 from .overlay import (
     PALETTE,
@@ -103,7 +104,6 @@ __all__ = [
 ]
 
 #: Decimals of every angle the report prints (values rounded from the JSON form).
-ANGLE_DECIMALS = 2
 PAGE_SIZE = A4
 #: Long side of the embedded photo at most (about 220 dpi across the page's text width).
 PICTURE_MAX_PX = 1600
@@ -129,45 +129,6 @@ _BODY = ParagraphStyle("body", fontName="Helvetica", fontSize=8, leading=10)
 _SMALL = ParagraphStyle("small", fontName="Helvetica", fontSize=7, leading=8.6)
 _CELL = ParagraphStyle("cell", fontName="Helvetica", fontSize=7.5, leading=9)
 _CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName="Helvetica-Bold")
-
-
-def format_fixed(value: float | None, decimals: int, *, signed: bool = False) -> str:
-    """A number from the result file with ``decimals`` decimals, rounded half away from zero.
-
-    The value is rounded from its shortest decimal form (the digits the JSON
-    file shows), so a reader who rounds the JSON's number by hand gets the
-    printed one: 0.125 prints as 0.13, where binary rounding would give 0.12.
-    A value that rounds to zero has no sign. None (and NaN) is a dash.
-    """
-    if value is None or not math.isfinite(float(value)):
-        return "—"
-    exact = Decimal(repr(float(value)))
-    rounded = exact.quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_UP)
-    if rounded == 0:
-        rounded = abs(rounded)  # no "-0.00": a sign that rounds away says nothing
-        return f"{rounded:.{decimals}f}"
-    return f"{rounded:+.{decimals}f}" if signed else f"{rounded:.{decimals}f}"
-
-
-def format_angle(value: float | None, *, axial: bool = False) -> str:
-    """An angle as the report prints it: ``ANGLE_DECIMALS`` decimals and a degree sign; None is a dash.
-
-    Rounding as :func:`format_fixed`. With ``axial=True`` (a lay direction,
-    in [0, 180)) a value that rounds to 180 is printed as 0, the same direction.
-    """
-    if value is None:
-        return "—"
-    text = format_fixed(value, ANGLE_DECIMALS)
-    if axial and Decimal(text) >= 180:
-        text = format_fixed(float(Decimal(text) - 180), ANGLE_DECIMALS)
-    return text + "°"
-
-
-def format_signed_angle(value: float | None) -> str:
-    """A deviation as the report prints it: signed, ``ANGLE_DECIMALS`` decimals; None is a dash."""
-    if value is None:
-        return "—"
-    return format_fixed(value, ANGLE_DECIMALS, signed=True) + "°"
 
 
 def _percent(share: float | None) -> str:

@@ -20,7 +20,8 @@ from .errors import InputError
 from .fsutil import write_text_atomic
 from .imaging import IMAGE_SUFFIXES, read_image
 from .recipe import Recipe
-from .results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
+from .formatting import format_angle, format_fixed, format_signed_angle
+from .results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code, part_to_dict
 
 #: Long side of the overlay PNG, px: a full-size overlay of a 12 MP brushed photo is ~25 MB.
 OVERLAY_MAX_SIDE = 2000
@@ -67,50 +68,67 @@ def inspect_path(
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
     except InputError as exc:
-        return PartOutcome(path=str(path), stem=stem, error=str(exc)), None
+        text = str(exc)
+        # a recipe problem found on this image (a region outside it) must say which image
+        if str(path) not in text:
+            text = f"{path}: {text}"
+        return PartOutcome(path=str(path), stem=stem, error=text), None
     outcome = PartOutcome(
         path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
     )
     return outcome, (loaded.pixels if keep_pixels else None)
 
 
-def find_images(folder: str | Path, *, recursive: bool = False) -> list[Path]:
-    """Image files in a folder, sorted by path; raises InputError when there are none."""
+def find_images(folder: str | Path, *, recursive: bool = False, exclude: Sequence[str | Path] = ()) -> list[Path]:
+    """Image files in a folder, sorted by path; raises InputError when there are none.
+
+    Overlay pictures this tool wrote (``*.overlay.png``) and anything under the
+    ``exclude`` folders (a batch's own output and archive) are never parts.
+    """
     folder = Path(folder)
     if not folder.is_dir():
         raise InputError(f"{folder}: not a folder of images")
+    skip = [Path(e).resolve() for e in exclude]
     pattern = "**/*" if recursive else "*"
-    files = sorted(p for p in folder.glob(pattern) if p.is_file() and p.suffix.lower() in IMAGE_SUFFIXES)
+
+    def wanted(p: Path) -> bool:
+        if not p.is_file() or p.suffix.lower() not in IMAGE_SUFFIXES or p.name.endswith(".overlay.png"):
+            return False
+        resolved = p.resolve()
+        return not any(resolved.is_relative_to(d) for d in skip)
+
+    files = sorted(p for p in folder.glob(pattern) if wanted(p))
     if not files:
         raise InputError(f"{folder}: no images found (allowed suffixes {', '.join(IMAGE_SUFFIXES)})")
     return files
 
 
-def _fmt_angle(v) -> str:
-    return "-" if v is None else f"{v:.2f}"
-
-
 def print_results(console: Console, outcomes: Iterable[PartOutcome]) -> None:
-    """The short table: part, region, lay, deviation, coherence, verdict."""
+    """The short table: part, region, lay, deviation, coherence, verdict.
+
+    Numbers are printed from the result's JSON form, rounded as the report rounds them.
+    """
     rows = []
+    outcomes = list(outcomes)
     for o in outcomes:
         if o.result is None:
-            rows.append([o.stem, "-", "-", "-", "-", "error"])
+            rows.append([o.stem, "—", "—", "—", "—", "error"])
             continue
-        if not o.result.regions:
-            rows.append([o.stem, "-", "-", "-", "-", o.result.verdict.value])
-        for r in o.result.regions:
+        d = part_to_dict(o.result)
+        if not d["regions"]:
+            rows.append([o.stem, "—", "—", "—", "—", d["verdict"]])
+        for r in d["regions"]:
             rows.append(
                 [
                     o.stem,
-                    r.name,
-                    _fmt_angle(r.lay_deg),
-                    "-" if r.deviation_deg is None else f"{r.deviation_deg:+.2f}",
-                    f"{r.coherence:.3f}",
-                    f"{r.verdict.value} ({o.result.verdict.value})",
+                    r["name"],
+                    format_angle(r["lay_deg"], axial=True),
+                    format_signed_angle(r["deviation_deg"]),
+                    format_fixed(r["coherence"], 3),
+                    f"{r['verdict']} ({d['verdict']})",
                 ]
             )
-    console.table(["part", "region", "lay°", "dev°", "coherence", "verdict (part)"], rows)
+    console.table(["part", "region", "lay", "deviation", "coherence", "verdict (part)"], rows)
     for o in outcomes:
         if o.result is not None:
             for r in o.result.regions:

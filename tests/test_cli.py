@@ -144,3 +144,20 @@ def test_demo_parts_regenerate_identically(tmp_path: Path):
         stored = cv2.imread(str(ROOT / "demo_parts" / path.name), cv2.IMREAD_UNCHANGED)
         again = cv2.imread(str(path), cv2.IMREAD_UNCHANGED)
         assert stored is not None and (stored == again).all(), path.name
+
+
+def test_output_folder_that_is_a_file_is_an_input_error(setup):
+    tmp, recipe, good, _, _ = setup
+    blocker = tmp / "taken"
+    blocker.write_text("not a folder")
+    _assert_input_error(run("inspect", recipe, good, "--out", blocker), "--out", "not a folder")
+    _assert_input_error(run("demo", "--out", blocker, "--project", ROOT), "not a folder")
+    assert blocker.read_text() == "not a folder"
+
+
+def test_an_error_found_on_an_image_names_the_image(setup):
+    tmp, _, good, _, _ = setup
+    r = tmp / "wide.yaml"
+    r.write_text(RECIPE.replace("[10, 10, 300, 220]", "[10, 10, 500, 220]"))
+    p = run("inspect", r, good, "--out", tmp / "o")
+    _assert_input_error(p, f"{good}: {r}:")

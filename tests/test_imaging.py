@@ -80,3 +80,19 @@ def test_array_policy_names_bad_shapes_and_dtypes():
         as_grey_float(np.zeros((2, 3, 5)))
     with pytest.raises(ValueError, match=r"got int64"):
         as_grey_float(np.zeros((4, 4), np.int64))
+
+
+def test_jpeg_exif_orientation_is_applied(tmp_path: Path):
+    # A camera stores a portrait shot as landscape pixels plus EXIF Orientation = 6 (rotate 90 deg
+    # clockwise to view). Reference: Pillow's ImageOps.exif_transpose of the same file.
+    from PIL import Image, ImageOps
+
+    stored = synth.to_uint8(synth.brushed_panel((60, 90), 0.0, seed=3))  # horizontal grain as stored
+    p = tmp_path / "portrait.jpg"
+    exif = Image.Exif()
+    exif[0x0112] = 6
+    Image.fromarray(stored, mode="L").save(p, quality=95, exif=exif)
+    seen = np.asarray(ImageOps.exif_transpose(Image.open(p))).astype(np.float32) / 255
+    loaded = read_image(p).pixels
+    assert loaded.shape == seen.shape == (90, 60)
+    assert np.abs(loaded - seen).max() < 2 / 255
