@@ -395,8 +395,14 @@ def _judge_crossed(region: Region, histogram: Histogram, v: _Verdict) -> None:
     v.lay = found[0]
 
 
-def _judge_nondirectional(region: Region, c: _Cells, coherence: float, v: _Verdict) -> None:
-    """Multidirectional or particulate lay: no direction may dominate."""
+def _judge_nondirectional(region: Region, c: _Cells, cells: CellSums, coherence: float, v: _Verdict) -> None:
+    """Multidirectional or particulate lay: no direction may dominate.
+
+    Two Rayleigh tests over the cells: on their lays (a shared direction), and
+    on the phase of the fourth angular harmonic of their orientation histograms
+    (a shared pair of directions at right angles: a crossed lay, whose summed
+    tensor and doubled angles cancel and would pass the first test).
+    """
     dominant = v.lay
     v.lay = None
     if c.textured.sum() >= 2:
@@ -408,6 +414,16 @@ def _judge_nondirectional(region: Region, c: _Cells, coherence: float, v: _Verdi
         )
         if rt.p_value < RAYLEIGH_ALPHA:
             v.fail(f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})")
+        centres = np.radians((np.arange(cells.bins) + 0.5) * 180.0 / cells.bins)
+        fourfold = np.tensordot(cells.hist[c.textured], np.exp(4j * centres), axes=([1], [0]))
+        r4 = rayleigh_test(np.degrees(np.angle(fourfold)))
+        v.extra.update(rayleigh_crossed_resultant_length=round(r4.resultant_length, 4), rayleigh_crossed_p=round(r4.p_value, 5))
+        if r4.p_value < RAYLEIGH_ALPHA:
+            a = (r4.mean_deg / 4.0) % 90.0
+            v.fail(
+                f"cells share a crossed pattern near {_fmt(a)} and {_fmt(a + 90.0)} "
+                f"(Rayleigh p = {r4.p_value:.2g} < {RAYLEIGH_ALPHA:g} on the four-fold harmonic)"
+            )
     if coherence > region.max_coherence:
         v.fail(
             f"dominant direction {_fmt(dominant)} present: coherence {coherence:.2f} exceeds "
@@ -485,7 +501,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     elif region.lay is LayPattern.CROSSED:
         _judge_crossed(region, histogram, v)
     elif region.lay in (LayPattern.MULTIDIRECTIONAL, LayPattern.PARTICULATE):
-        _judge_nondirectional(region, c, coherence, v)
+        _judge_nondirectional(region, c, sums, coherence, v)
     # LayPattern.ANY: texture is present, nothing more is judged
 
     patches = _patches(v.deviating, m, expected) if v.deviating.any() else ()

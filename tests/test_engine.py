@@ -178,11 +178,22 @@ def test_isotropic_texture_passes_multidirectional_and_fails_directional():
     region = inspect_image(img, multi).regions[0]
     assert region.verdict is RegionVerdict.PASS, region.reasons
     assert region.lay_deg is None
-    assert region.extra["rayleigh_p"] > 0.01
+    assert region.extra["rayleigh_p"] > 0.01 and region.extra["rayleigh_crossed_p"] > 0.01
     directional = _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay_deg: 90\n")
     region = inspect_image(img, directional).regions[0]
     assert region.verdict is RegionVerdict.FAIL
     assert any("no clear lay" in t for t in region.reasons)
+
+
+def test_crossed_at_right_angles_fails_multidirectional():
+    # Two lays 90 deg apart cancel in the summed tensor and in doubled angles (coherence ~0.08),
+    # so only the four-fold harmonic of the cell histograms shows the shared pair of directions.
+    tex = synth.brushed_texture(PATTERN_SHAPE, 30.0, seed=1) + synth.brushed_texture(PATTERN_SHAPE, 120.0, seed=2)
+    img = synth.shade_and_noise(tex / tex.std(), seed=3)
+    region = inspect_image(img, _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay: M\n    cell_px: 32\n")).regions[0]
+    assert region.coherence < 0.1
+    assert region.verdict is RegionVerdict.FAIL
+    assert any("crossed pattern near 3" in t for t in region.reasons), region.reasons  # 30 and 120 deg, to ~2 deg
 
 
 def test_brushed_texture_fails_multidirectional():
