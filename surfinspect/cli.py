@@ -45,13 +45,15 @@ def build_parser() -> argparse.ArgumentParser:
             raise
         p = sub.add_parser(name, help=module.HELP, description=module.HELP, parents=[common])
         module.add_arguments(p)
-        p.set_defaults(_run=module.run)
+        p.set_defaults(_run=module.run, _parser=p)
     return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args, unknown = parser.parse_known_args(argv)
+    if unknown:  # name them with the sub-command's own usage, not the top-level one
+        getattr(args, "_parser", parser).error(f"unrecognized arguments: {' '.join(unknown)}")
     console = Console(quiet=args.quiet)
     if not getattr(args, "_run", None):
         parser.print_help()
