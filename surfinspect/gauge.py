@@ -161,7 +161,9 @@ def read_study_csv(path: str | Path, *, measure: Measure | None = None) -> Study
         unknown columns, empty labels, a value that is not a finite number, a
         repeated (part, appraiser, trial), a part not measured by every
         appraiser, a missing trial, fewer than 2 parts, appraisers or trials,
-        an image table without ``measure``, an image that cannot be measured.
+        an image table without ``measure``, a value table with ``measure``,
+        an image that cannot be measured. Problems of balance are listed
+        compactly (see :func:`_balanced_layout`).
     """
     path = Path(path)
     name = str(path)
@@ -203,6 +205,12 @@ def read_study_csv(path: str | Path, *, measure: Measure | None = None) -> Study
             if value_column == "image" and measure is None:
                 raise InputError(
                     f"{name}:{line}: header: the table lists images; give a recipe and region to measure them"
+                )
+            if value_column == "value" and measure is not None:
+                # a recipe given for a table of values would be ignored without a word
+                raise InputError(
+                    f"{name}:{line}: header: the table holds measured values, so a recipe has nothing to measure "
+                    "(allowed: a recipe with an image column, or a value column without a recipe)"
                 )
             continue
         if len(record) != len(header):
@@ -259,53 +267,132 @@ class _Layout:
         return (len(self.parts), len(self.appraisers), len(self.trials))
 
 
+#: Problems of balance listed one by one; the rest are counted in the summary line.
+MAX_BALANCE_LINES = 5
+
+
+def _intended_set(sets: Sequence[frozenset[str]], every_label: Sequence[str]) -> frozenset[str]:
+    """The labels a table was meant to have: its most common set of at least 2 labels.
+
+    One stray row then shows as one extra row, not as a label missing from
+    every other cell. A tie goes to the larger set; with no set of 2 or more
+    (a study needs at least 2), every label seen is taken as intended.
+    """
+    counts: dict[frozenset[str], int] = {}
+    for labels in sets:
+        counts[labels] = counts.get(labels, 0) + 1
+    candidates = [labels for labels in counts if len(labels) >= 2]
+    if not candidates:
+        return frozenset(every_label)
+    return max(candidates, key=lambda labels: (counts[labels], len(labels)))
+
+
+def _plural(count: int, word: str) -> str:
+    return f"{count} {word}" if count == 1 else f"{count} {word}s"
+
+
 def _balanced_layout(name: str, rows: list[tuple[int, str, str, str, str]]) -> _Layout:
-    problems: list[str] = []
+    """Check that the rows form a balanced crossed study and index them.
+
+    Every problem names its line; rows that break the balance (a repeated
+    cell, an appraiser or trial that the rest of the table does not have) are
+    named themselves, and a missing measurement is named at the first line of
+    its part or cell. At most :data:`MAX_BALANCE_LINES` are listed, then one
+    summary line counts them all.
+    """
     if not rows:
         raise InputError(f"{name}: the study table has a header but no measurements")
     parts: dict[str, int] = {}
     appraisers: dict[str, int] = {}
     trials: dict[str, int] = {}
     seen: dict[tuple[str, str, str], int] = {}
+    repeated: list[tuple[int, str]] = []
     first_line_of_part: dict[str, int] = {}
-    first_line_of_cell: dict[tuple[str, str], int] = {}
-    cell_trials: dict[tuple[str, str], set[str]] = {}
+    lines_of_cell: dict[tuple[str, str], list[tuple[int, str]]] = {}
     for line, part, appraiser, trial, _ in rows:
         parts.setdefault(part, len(parts))
         appraisers.setdefault(appraiser, len(appraisers))
         trials.setdefault(trial, len(trials))
         first_line_of_part.setdefault(part, line)
-        first_line_of_cell.setdefault((part, appraiser), line)
         key = (part, appraiser, trial)
         if key in seen:
-            problems.append(
-                f"{name}:{line}: part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
-                "(allowed: one value per part, appraiser and trial)"
-            )
-        else:
-            seen[key] = line
-        cell_trials.setdefault((part, appraiser), set()).add(trial)
+            repeated.append((line, f"part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
+                             "(allowed: one value per part, appraiser and trial)"))
+            continue
+        seen[key] = line
+        lines_of_cell.setdefault((part, appraiser), []).append((line, trial))
+
+    appraisers_of_part = {part: frozenset(a for p, a in lines_of_cell if p == part) for part in parts}
+    study_appraisers = _intended_set(list(appraisers_of_part.values()), list(appraisers))
+    shown_appraisers = ", ".join(a for a in appraisers if a in study_appraisers)
+    cells = [cell for cell in lines_of_cell if cell[1] in study_appraisers]
+    study_trials = _intended_set([frozenset(t for _, t in lines_of_cell[c]) for c in cells], list(trials))
+    shown_trials = ", ".join(t for t in trials if t in study_trials)
+
+    extra_appraisers: list[tuple[int, str]] = []
+    missing_appraisers: list[tuple[int, str]] = []
+    extra_trials: list[tuple[int, str]] = []
+    missing_trials: list[tuple[int, str]] = []
+    extra_rows = len(repeated)
+    missing_values = 0
+    for (part, appraiser), cell_rows in lines_of_cell.items():
+        if appraiser not in study_appraisers:
+            extra_rows += len(cell_rows)
+            where = ", ".join(str(line) for line, _ in cell_rows)
+            extra_appraisers.append((cell_rows[0][0], (
+                f"part {part!r}, appraiser {appraiser!r}: an appraiser the other parts do not have "
+                f"({_plural(len(cell_rows), 'row')}: {'line' if len(cell_rows) == 1 else 'lines'} {where}; "
+                f"the study's appraisers: {shown_appraisers})"
+            )))
+            continue
+        for line, trial in cell_rows:
+            if trial not in study_trials:
+                extra_rows += 1
+                extra_trials.append((line, (
+                    f"part {part!r}, appraiser {appraiser!r}, trial {trial!r}: a trial the other cells do not have "
+                    f"(the study's trials: {shown_trials})"
+                )))
+        absent = [t for t in trials if t in study_trials and t not in {tr for _, tr in cell_rows}]
+        if absent:
+            missing_values += len(absent)
+            missing_trials.append((cell_rows[0][0], (
+                f"part {part!r}, appraiser {appraiser!r} has no trial {', '.join(absent)} "
+                f"(trials in the study: {shown_trials})"
+            )))
+    for part, line in first_line_of_part.items():
+        absent = [a for a in appraisers if a in study_appraisers and a not in appraisers_of_part[part]]
+        if absent:
+            missing_values += len(absent) * len(study_trials)
+            present = [a for a in appraisers if a in study_appraisers and a in appraisers_of_part[part]]
+            by = f"by appraiser(s) {', '.join(present)} only" if present else "by none of the study's appraisers"
+            missing_appraisers.append((line, (
+                f"part {part!r} is measured {by}; missing {', '.join(absent)} "
+                "(a crossed study needs every part measured by every appraiser)"
+            )))
+
+    # Categories in this order, each by line: what is wrong with a part before what is wrong with a cell.
+    balance = [
+        f"{name}:{line}: {text}"
+        for group in (repeated, extra_appraisers, missing_appraisers, extra_trials, missing_trials)
+        for line, text in sorted(group, key=lambda item: item[0])
+    ]
+    problems = balance[:MAX_BALANCE_LINES]
     if len(parts) < 2:
         problems.append(f"{name}: the study needs at least 2 parts (got {len(parts)})")
-    if len(appraisers) < 2:
-        problems.append(f"{name}: the study needs at least 2 appraisers or setups (got {len(appraisers)})")
-    if len(trials) < 2:
-        problems.append(f"{name}: the study needs at least 2 trials per part and appraiser (got {len(trials)})")
-    for part, line in first_line_of_part.items():
-        missing = [a for a in appraisers if (part, a) not in cell_trials]
-        if missing:
-            present = [a for a in appraisers if (part, a) in cell_trials]
-            problems.append(
-                f"{name}:{line}: part {part!r} is measured by appraiser(s) {', '.join(present)} only; "
-                f"missing {', '.join(missing)} (a crossed study needs every part measured by every appraiser)"
-            )
-    for cell, labels in cell_trials.items():
-        missing_trials = [t for t in trials if t not in labels]
-        if missing_trials:
-            problems.append(
-                f"{name}:{first_line_of_cell[cell]}: part {cell[0]!r}, appraiser {cell[1]!r} has no trial "
-                f"{', '.join(missing_trials)} (trials in the study: {', '.join(trials)})"
-            )
+    if len(study_appraisers) < 2:
+        problems.append(f"{name}: the study needs at least 2 appraisers or setups (got {len(study_appraisers)})")
+    if len(study_trials) < 2:
+        problems.append(f"{name}: the study needs at least 2 trials per part and appraiser (got {len(study_trials)})")
+    if balance:
+        counted = [_plural(extra_rows, "extra row")] if extra_rows else []
+        counted += [_plural(missing_values, "missing value")] if missing_values else []
+        listed = f"; {len(balance) - MAX_BALANCE_LINES} more not listed" if len(balance) > MAX_BALANCE_LINES else ""
+        shape = (len(parts), len(study_appraisers), len(study_trials))
+        problems.append(
+            f"{name}: the study is not balanced ({', '.join(counted)}{listed}): a crossed study has one value "
+            f"per part, appraiser and trial, {shape[0]} x {shape[1]} x {shape[2]} = {math.prod(shape)} rows "
+            f"(got {len(rows)})"
+        )
     _raise_all(problems)
     indices = tuple((parts[p], appraisers[a], trials[t]) for _, p, a, t, _ in rows)
     return _Layout(tuple(parts), tuple(appraisers), tuple(trials), indices)
@@ -546,18 +633,21 @@ def gauge_rr(
     .. [3] D. C. Montgomery and G. C. Runger, *Quality Engineering* 6(2),
        289-305, 1993. doi:10.1080/08982119308919024 (DOI from memory).
     """
+    # Settings are checked first and are not about the table, so their messages do not name it.
+    if not (math.isfinite(tolerance) and tolerance > 0):
+        raise InputError(f"tolerance: must be a width > 0 (got {tolerance:g})")
+    if basis not in ("both", "tolerance", "total-variation"):
+        raise InputError(f"basis: unknown (got {basis!r}, allowed both, tolerance, total-variation)")
+    if not 0 < interaction_alpha < 1:
+        raise InputError(f"interaction_alpha: must be in (0, 1) (got {interaction_alpha:g})")
+    if resolution is not None and not (math.isfinite(resolution) and resolution >= 0):
+        raise InputError(f"resolution: must be a number >= 0 (got {resolution:g})")
     y = np.asarray(values, dtype=float)
     where = f"{source}: " if source else "gauge study: "
     if y.ndim != 3 or min(y.shape) < 2:
         raise InputError(f"{where}values must have shape (parts, appraisers, trials), each at least 2 (got {y.shape})")
     if not np.isfinite(y).all():
         raise InputError(f"{where}values must all be finite numbers")
-    if not (math.isfinite(tolerance) and tolerance > 0):
-        raise InputError(f"{where}tolerance: must be a width > 0 (got {tolerance})")
-    if basis not in ("both", "tolerance", "total-variation"):
-        raise InputError(f"{where}basis: unknown (got {basis!r}, allowed both, tolerance, total-variation)")
-    if not 0 < interaction_alpha < 1:
-        raise InputError(f"{where}interaction_alpha: must be in (0, 1) (got {interaction_alpha})")
     p, o, r = y.shape
     part_labels = tuple(parts) if parts is not None else tuple(str(i + 1) for i in range(p))
     appraiser_labels = tuple(appraisers) if appraisers is not None else tuple(chr(ord("A") + j) for j in range(o))
@@ -627,8 +717,6 @@ def gauge_rr(
     if resolution is None:
         resolution_used, resolution_source = _apparent_resolution(y), "apparent"
     else:
-        if not (math.isfinite(resolution) and resolution >= 0):
-            raise InputError(f"{where}resolution: must be a number >= 0 (got {resolution})")
         resolution_used, resolution_source = float(resolution), "given"
 
     verdict, reasons = _judge(pct_tv, pct_tol, ndc, resolution_used, resolution_source, tolerance, basis)

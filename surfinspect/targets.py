@@ -42,6 +42,8 @@ __all__ = [
     "write_target_png",
     "target_recipe_yaml",
     "write_target_recipe",
+    "check_dpi",
+    "check_recipe_tolerance",
 ]
 
 GRATING_KINDS = ("sine", "square")
@@ -58,6 +60,18 @@ FIDUCIAL_LINE_MM = 0.3
 SCALE_BAR_MM = 50.0
 #: Fewest pixels per period: below this the derivative filters of the engine lose accuracy.
 MIN_PERIOD_PX = 4.0
+#: Raster resolutions allowed, dots per inch: from a coarse screen target to a
+#: fine photo print (common practice, no source).
+DPI_RANGE = (50.0, 4800.0)
+#: Largest raster rendered, in megapixels (a PNG sheet, or all rasters of a PDF):
+#: an A4 sheet at about 1400 dpi. Larger requests are refused before anything is allocated.
+MAX_RASTER_MEGAPIXELS = 200.0
+#: Allowed tolerance of a written recipe's regions, degrees: the range a recipe's tolerance_deg accepts.
+TOLERANCE_RANGE_DEG = (0.0, 45.0)  # lower end excluded
+#: Smallest side of a recipe region after the inset, pixels (common practice, no source).
+MIN_REGION_PX = 16
+#: Pixels rendered at a time: bounds the float64 work arrays of a large grating to a few tens of MB.
+_STRIP_PIXELS = 1 << 22
 #: Grating grey levels: mean and amplitude on the [0, 1] scale (dark 0.1, light 0.9).
 GRATING_MEAN = 0.5
 GRATING_AMPLITUDE = 0.4
@@ -108,15 +122,54 @@ def render_grating(
     InputError
         Unknown kind, a period of 2 px or less, or a bad ``supersample``.
     """
+    _check_grating(kind, period_px, supersample)
+    grating = np.empty(shape, dtype=np.float32)
+    for first_row, strip in _grating_strips(
+        shape, lay_deg, period_px, kind=kind, amplitude=amplitude, mean=mean, phase=phase, supersample=supersample
+    ):
+        grating[first_row : first_row + strip.shape[0]] = strip
+    return grating
+
+
+def _check_grating(kind: str, period_px: float, supersample: int) -> None:
     if kind not in GRATING_KINDS:
         raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
     if not period_px > 2.0:
         raise InputError(f"grating period: must exceed 2 px, the sampling limit (got {period_px:.3g} px)")
-    if kind == "sine":
-        return sine_grating(shape, lay_deg, period_px, amplitude=amplitude, mean=mean, phase=phase)
-    s = int(supersample)
-    if s < 1:
+    if kind == "square" and int(supersample) < 1:
         raise InputError(f"supersample: must be a whole number >= 1 (got {supersample})")
+
+
+def _grating_strips(shape, lay_deg, period_px, *, kind, amplitude, mean, phase, supersample):
+    """Yield ``(first_row, strip)``: the grating of :func:`render_grating` a band of rows at a time."""
+    s = int(supersample)
+    rows, cols = shape
+    work_per_row = max(1, cols) * (s * s if kind == "square" else 1)
+    strip_rows = max(1, _STRIP_PIXELS // work_per_row)
+    normal_y = math.cos(math.radians(lay_deg))
+    for first_row in range(0, rows, strip_rows):
+        # The strip's top row sits at y_up = -first_row: the same pattern with the phase moved along the normal.
+        strip_phase = math.fmod(phase - 2 * math.pi * normal_y * first_row / period_px, 2 * math.pi)
+        strip_shape = (min(strip_rows, rows - first_row), cols)
+        if kind == "sine":
+            strip = sine_grating(strip_shape, lay_deg, period_px, amplitude=amplitude, mean=mean, phase=strip_phase)
+        else:
+            strip = _square_block(strip_shape, lay_deg, period_px, amplitude, mean, strip_phase, s)
+        yield first_row, strip
+
+
+def _grating_uint8(shape, lay_deg, period_px, *, kind):
+    """:func:`render_grating` as 8-bit grey, converted a strip at a time (no full-size float copy)."""
+    _check_grating(kind, period_px, 4)
+    grating = np.empty(shape, dtype=np.uint8)
+    for first_row, strip in _grating_strips(
+        shape, lay_deg, period_px, kind=kind, amplitude=GRATING_AMPLITUDE, mean=GRATING_MEAN, phase=0.0, supersample=4
+    ):
+        grating[first_row : first_row + strip.shape[0]] = to_uint8(strip)
+    return grating
+
+
+def _square_block(shape, lay_deg, period_px, amplitude, mean, phase, s):
     rows, cols = shape
     # Sub-sample k of pixel c sits at c + (k + 0.5)/s - 0.5; the fine grid's own
     # origin is c's first sub-sample, so shift the phase to keep pixel centres
@@ -231,6 +284,29 @@ def layout_targets(
     return tuple(sheets)
 
 
+def check_dpi(dpi: float, flag: str) -> None:
+    """Refuse a raster resolution outside :data:`DPI_RANGE`; the message names ``flag``."""
+    lo, hi = DPI_RANGE
+    if not (math.isfinite(dpi) and lo <= dpi <= hi):
+        raise InputError(f"{flag}: must be {lo:g} <= dpi <= {hi:g} (got {dpi:g})")
+
+
+def check_recipe_tolerance(tolerance_deg: float) -> None:
+    """Refuse a region tolerance that a recipe would not accept (see :data:`TOLERANCE_RANGE_DEG`)."""
+    lo, hi = TOLERANCE_RANGE_DEG
+    if not (math.isfinite(tolerance_deg) and lo < tolerance_deg <= hi):
+        raise InputError(f"--tolerance-deg: must be {lo:g} < tolerance <= {hi:g} degrees (got {tolerance_deg:g})")
+
+
+def _check_raster_size(rows: int, cols: int, dpi: float, flag: str, what: str) -> None:
+    megapixels = rows * cols / 1e6
+    if megapixels > MAX_RASTER_MEGAPIXELS:
+        raise InputError(
+            f"{flag}: {what} at {dpi:g} dpi would be {megapixels:,.0f} megapixels "
+            f"(allowed at most {MAX_RASTER_MEGAPIXELS:g}; a lower {flag}, or fewer or smaller gratings)"
+        )
+
+
 def _period_px(period_mm: float, dpi: float, what: str) -> float:
     if not (math.isfinite(period_mm) and period_mm > 0):
         raise InputError(f"--period-mm: must be > 0 (got {period_mm:g})")
@@ -281,29 +357,34 @@ def render_sheet(
     """
     from PIL import Image, ImageDraw
 
+    if kind not in GRATING_KINDS:
+        raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
+    check_dpi(dpi, "--dpi")
     period_px = _period_px(period_mm, dpi, "--dpi")
     px_per_mm = dpi / MM_PER_INCH
     to_px = lambda v: int(round(v * px_per_mm))  # noqa: E731
-    sheet_px = np.ones((to_px(sheet.size_mm[1]), to_px(sheet.size_mm[0])), dtype=np.float32)
+    rows, cols = to_px(sheet.size_mm[1]), to_px(sheet.size_mm[0])
+    _check_raster_size(rows, cols, dpi, "--dpi", f"a sheet of {cols} x {rows} px")
+    sheet_px = np.full((rows, cols), 255, dtype=np.uint8)  # white; 8-bit from the start, no float sheet
     rects = []
     for g in sheet.gratings:
         x, y, w, h = (to_px(v) for v in g.rect_mm)
-        sheet_px[y : y + h, x : x + w] = render_grating((h, w), g.lay_deg, period_px, kind=kind)
+        sheet_px[y : y + h, x : x + w] = _grating_uint8((h, w), g.lay_deg, period_px, kind=kind)
         rects.append((x, y, w, h))
     # Fiducials and the scale bar are axis-aligned bars: drawn exactly on the pixel grid.
     arm, line = to_px(FIDUCIAL_ARM_MM), max(1, to_px(FIDUCIAL_LINE_MM))
     for g in sheet.gratings:
         for cx, cy in _fiducial_centres(g.rect_mm):
             px, py = to_px(cx), to_px(cy)
-            sheet_px[py - line // 2 : py - line // 2 + line, px - arm : px + arm + 1] = 0.0
-            sheet_px[py - arm : py + arm + 1, px - line // 2 : px - line // 2 + line] = 0.0
+            sheet_px[py - line // 2 : py - line // 2 + line, px - arm : px + arm + 1] = 0
+            sheet_px[py - arm : py + arm + 1, px - line // 2 : px - line // 2 + line] = 0
     bar_x, bar_y = to_px(MARGIN_MM), to_px(MARGIN_MM + SCALE_BAR_Y_MM)
-    sheet_px[bar_y : bar_y + max(1, to_px(0.6)), bar_x : bar_x + to_px(SCALE_BAR_MM) + 1] = 0.0
+    sheet_px[bar_y : bar_y + max(1, to_px(0.6)), bar_x : bar_x + to_px(SCALE_BAR_MM) + 1] = 0
     for k in range(int(SCALE_BAR_MM // 10) + 1):
         tx = bar_x + to_px(10.0 * k)
-        sheet_px[bar_y - to_px(2.0) : bar_y, tx : tx + line] = 0.0
+        sheet_px[bar_y - to_px(2.0) : bar_y, tx : tx + line] = 0
 
-    image = Image.fromarray(to_uint8(sheet_px), mode="L")
+    image = Image.fromarray(sheet_px, mode="L")
     draw = ImageDraw.Draw(image)
     font = _font(max(10, to_px(3.2)))
     small = _font(max(8, to_px(2.4)))
@@ -340,17 +421,39 @@ def write_target_png(
     size_mm: tuple[float, float],
     dpi: float,
     kind: str = "sine",
+    recipe_path: str | Path | None = None,
+    recipe_name: str | None = None,
+    tolerance_deg: float = 0.5,
 ) -> tuple[TargetSheet, tuple[tuple[int, int, int, int], ...]]:
     """Write one PNG sheet holding every grating, with its resolution recorded (pHYs).
 
+    With ``recipe_path``, also write the recipe of :func:`target_recipe_yaml`
+    (named ``recipe_name``, default ``target-<png name>``); it is built before
+    either file is written, so a recipe that cannot be made leaves no PNG.
+
     Returns the sheet and each grating's rectangle in image pixels.
+
+    Raises
+    ------
+    InputError
+        A bad layout, a ``dpi`` outside :data:`DPI_RANGE`, a sheet over
+        :data:`MAX_RASTER_MEGAPIXELS`, a period under :data:`MIN_PERIOD_PX`,
+        or (with a recipe) a bad ``tolerance_deg`` or gratings too small for a region.
     """
     from PIL import Image
 
+    if recipe_path is not None:
+        check_recipe_tolerance(tolerance_deg)
     (sheet,) = layout_targets(lays_deg, size_mm, page_mm=None)
     image, rects = render_sheet(sheet, period_mm=period_mm, dpi=dpi, kind=kind)
+    recipe_text = None
+    if recipe_path is not None:
+        name = recipe_name or f"target-{Path(path).stem}"
+        recipe_text = target_recipe_yaml(name, sheet, rects, tolerance_deg=tolerance_deg)
     with atomic_path(path) as tmp:
         Image.fromarray(image, mode="L").save(tmp, format="PNG", dpi=(dpi, dpi))
+    if recipe_text is not None:
+        write_text_atomic(recipe_path, recipe_text)
     return sheet, rects
 
 
@@ -366,11 +469,23 @@ def target_recipe_yaml(
 
     Regions are inset by ``inset_px`` from the grating edges so that the
     derivative filters see grating only.
+
+    Raises
+    ------
+    InputError
+        ``tolerance_deg`` outside what a recipe accepts (0 < tolerance <= 45),
+        or a grating whose region would be under :data:`MIN_REGION_PX` a side.
     """
     import yaml
 
+    check_recipe_tolerance(tolerance_deg)
     regions = []
     for g, (x, y, w, h) in zip(sheet.gratings, rects_px):
+        if min(w, h) - 2 * inset_px < MIN_REGION_PX:
+            raise InputError(
+                f"--size-mm: a grating of {w} x {h} px leaves a region under {MIN_REGION_PX} px a side "
+                f"inside its {inset_px} px margin (allowed: larger gratings or a higher --dpi)"
+            )
         regions.append(
             {
                 "name": f"lay-{g.lay_deg:g}".replace(".", "p"),
@@ -414,7 +529,12 @@ def write_target_pdf(
         raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
     sheets = layout_targets(lays_deg, size_mm)
     if kind == "sine":
+        check_dpi(raster_dpi, "--raster-dpi")
         raster_period_px = _period_px(period_mm, raster_dpi, "--raster-dpi")
+        tiles = [_raster_shape(g.rect_mm, raster_dpi) for sheet in sheets for g in sheet.gratings]
+        _check_raster_size(
+            sum(rows * cols for rows, cols in tiles), 1, raster_dpi, "--raster-dpi", f"the {len(tiles)} grating rasters"
+        )
     else:
         _period_px(period_mm, 1200.0, "a 1200 dpi printer")  # vector stripes: only a printable period is checked
     page_h = A4[1]
@@ -446,9 +566,8 @@ def write_target_pdf(
             for g in sheet.gratings:
                 gx, gy, gw, gh = g.rect_mm
                 if kind == "sine":
-                    cols = max(1, int(round(gw * raster_dpi / MM_PER_INCH)))
-                    rows = max(1, int(round(gh * raster_dpi / MM_PER_INCH)))
-                    tile = to_uint8(render_grating((rows, cols), g.lay_deg, raster_period_px, kind="sine"))
+                    rows, cols = _raster_shape(g.rect_mm, raster_dpi)
+                    tile = _grating_uint8((rows, cols), g.lay_deg, raster_period_px, kind="sine")
                     drawn_w = cols * MM_PER_INCH / raster_dpi  # whole pixels, equal pitch on both axes
                     drawn_h = rows * MM_PER_INCH / raster_dpi
                     c.drawImage(
@@ -479,6 +598,14 @@ def write_target_pdf(
             c.showPage()
         c.save()
     return sheets
+
+
+def _raster_shape(rect_mm: tuple[float, float, float, float], raster_dpi: float) -> tuple[int, int]:
+    """(rows, cols) of a grating's raster in the PDF: its size rounded to whole pixels."""
+    return (
+        max(1, int(round(rect_mm[3] * raster_dpi / MM_PER_INCH))),
+        max(1, int(round(rect_mm[2] * raster_dpi / MM_PER_INCH))),
+    )
 
 
 def _draw_square_stripes(c, box_pt: tuple[float, float, float, float], lay_deg: float, period_pt: float) -> None:

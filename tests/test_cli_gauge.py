@@ -1,6 +1,8 @@
 """The qualification commands end to end: ``gauge``, ``target`` and ``bias``."""
 
 import json
+import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -72,10 +74,80 @@ def test_gauge_malformed_table_exits_2_naming_the_row_and_writes_nothing(tmp_pat
     assert not out_json.exists()
 
 
-def test_gauge_bad_tolerance_exits_2(tmp_path, capsys):
+def _refused(capsys, argv, folder):
+    """Run, expect exit 2, one line on stderr and no new file in ``folder``; return that line."""
+    before = sorted(folder.rglob("*"))
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert len(err.splitlines()) == 1 and "Traceback" not in err, err
+    assert sorted(folder.rglob("*")) == before
+    return err.strip()
+
+
+@pytest.mark.parametrize(
+    ("flags", "message"),
+    [
+        (["--tolerance", "-1"], r"--tolerance: must be > 0 \(got -1\)$"),
+        (["--tolerance", "0"], r"--tolerance: must be > 0 \(got 0\)$"),
+        (["--tolerance", "nan"], r"--tolerance: must be > 0 \(got nan\)$"),
+        (["--tolerance", "30", "--interaction-alpha", "1"], r"--interaction-alpha: must be 0 < value < 1 \(got 1\)$"),
+        (["--tolerance", "30", "--resolution", "-0.1"], r"--resolution: must be >= 0 \(got -0.1\)$"),
+    ],
+)
+def test_gauge_bad_flag_exits_2_naming_the_flag_not_the_table(tmp_path, capsys, flags, message):
     study = _write_study(tmp_path / "study.csv", HAND_TABLE)
-    assert main(["gauge", str(study), "--tolerance", "-1"]) == 2
-    assert "tolerance: must be a width > 0" in capsys.readouterr().err
+    line = _refused(capsys, ["gauge", str(study), *flags], tmp_path)
+    assert re.search(r"^surfinspect: error: " + message, line), line
+
+
+def test_gauge_extra_trial_row_gives_two_lines_naming_it(tmp_path, capsys):
+    study = _write_study(tmp_path / "study.csv", _study(4, appraiser_sigma=0.1))  # 10 x 3 x 3 on lines 2-91
+    study.write_text(study.read_text() + "CP-14-01,A,4,0.5\n")
+    assert main(["gauge", str(study), "--tolerance", "40"]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 2
+    assert "study.csv:92: part 'CP-14-01', appraiser 'A', trial '4': a trial the other cells do not have" in err[0]
+    assert "the study is not balanced (1 extra row)" in err[1] and "10 x 3 x 3 = 90 rows (got 91)" in err[1]
+
+
+def test_gauge_recipe_with_a_table_of_values_exits_2(tmp_path, capsys):
+    png, recipe = _render_target(tmp_path, lays="90")
+    study = _write_study(tmp_path / "study.csv", HAND_TABLE)
+    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--recipe", str(recipe)], tmp_path)
+    assert "study.csv:1: header: the table holds measured values, so a recipe has nothing to measure" in line
+
+
+def _unwritable(tmp_path, case, flag, ext):
+    """An output path that cannot be written, and the one line expected for it."""
+    if case == "a folder":
+        path = tmp_path / "adir"
+        path.mkdir()
+        return path, f"surfinspect: error: {flag}: {path} is a folder (allowed: a file name)"
+    if case == "no parent":
+        path = tmp_path / "nope" / f"out.{ext}"
+        return path, f"surfinspect: error: {flag}: {path}: the folder {path.parent} does not exist (create it first)"
+    (tmp_path / "afile").write_text("x")
+    path = tmp_path / "afile" / f"out.{ext}"
+    return path, f"surfinspect: error: {flag}: {path}: {tmp_path / 'afile'} is a file, not a folder"
+
+
+@pytest.mark.parametrize("case", ["a folder", "no parent", "parent is a file"])
+@pytest.mark.parametrize(("flag", "ext"), [("--json", "json"), ("--pdf", "pdf")])
+def test_gauge_unwritable_output_exits_2_before_any_work(tmp_path, capsys, case, flag, ext):
+    study = _write_study(tmp_path / "study.csv", HAND_TABLE)
+    path, expected = _unwritable(tmp_path, case, flag, ext)
+    assert _refused(capsys, ["gauge", str(study), "--tolerance", "30", flag, str(path)], tmp_path) == expected
+
+
+def test_gauge_outputs_must_not_overwrite_the_study_or_each_other(tmp_path, capsys):
+    study = _write_study(tmp_path / "study.csv", HAND_TABLE)
+    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--json", str(study)], tmp_path)
+    assert line.endswith(f"--json: {study} is also the study table; it would be overwritten (choose another name)")
+    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--pdf", str(tmp_path / "r.png")], tmp_path)
+    assert line.endswith(f"--pdf: {tmp_path / 'r.png'}: the name must end in .pdf")
+    same = str(tmp_path / "r.pdf")
+    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--json", same, "--pdf", same], tmp_path)
+    assert line.endswith(f"--pdf: {same} is also the --json file; it would be overwritten (choose another name)")
 
 
 def test_target_pdf_and_bad_angle(tmp_path, capsys):
@@ -85,6 +157,41 @@ def test_target_pdf_and_bad_angle(tmp_path, capsys):
     assert main(["target", "--lay", "0,190", "--period-mm", "1", "--size-mm", "40", "30", "--out", str(tmp_path / "x.pdf")]) == 2
     assert "--lay: 190 is outside the allowed range" in capsys.readouterr().err
     assert not (tmp_path / "x.pdf").exists()
+
+
+_TARGET = ["target", "--lay", "0,90", "--period-mm", "1", "--size-mm", "18", "18"]
+
+
+@pytest.mark.parametrize("case", ["a folder", "no parent", "parent is a file"])
+@pytest.mark.parametrize(("png", "ext"), [((), "pdf"), (("--png",), "png")])
+def test_target_unwritable_out_exits_2(tmp_path, capsys, case, png, ext):
+    path, expected = _unwritable(tmp_path, case, "--out", ext)
+    assert _refused(capsys, [*_TARGET, *png, "--out", str(path)], tmp_path) == expected
+
+
+@pytest.mark.parametrize(
+    ("flags", "message"),
+    [
+        (["--png", "--out", "{d}/t.pdf"], "--out: {d}/t.pdf: the name must end in .png"),
+        (["--out", "{d}/t.png"], "--out: {d}/t.png: the name must end in .pdf"),
+        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.png"], "--recipe: {d}/t.png: the name must end in .yaml or .yml"),
+        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "0"],
+         "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got 0)"),
+        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "-1"],
+         "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got -1)"),
+        (["--png", "--dpi", "100000", "--out", "{d}/t.png"], "--dpi: must be 50 <= dpi <= 4800 (got 100000)"),
+        (["--raster-dpi", "10", "--out", "{d}/t.pdf"], "--raster-dpi: must be 50 <= dpi <= 4800 (got 10)"),
+        # two 150 x 250 mm gratings in one column: sheet 15 + 150 + 15 = 180 mm wide and
+        # 15 + 22 + 2 * (250 + 9 + 14) - 14 + 15 = 584 mm high; at 4800 / 25.4 px per mm: 34016 x 110362 px
+        (["--png", "--dpi", "4800", "--size-mm", "150", "250", "--out", "{d}/t.png"],
+         "--dpi: a sheet of 34016 x 110362 px at 4800 dpi would be 3,754 megapixels (allowed at most 200"),
+        (["--png", "--dpi", "100", "--out", "{d}/t.png"], "--period-mm: 1 mm is 3.94 px at 100 dpi (--dpi); allowed at least 4"),
+        (["--lay", "180", "--out", "{d}/t.pdf"], "--lay: 180 is outside the allowed range 0 <= lay < 180 degrees"),
+    ],
+)
+def test_target_bad_flags_exit_2_and_write_nothing(tmp_path, capsys, flags, message):
+    line = _refused(capsys, [*_TARGET, *(f.format(d=tmp_path) for f in flags)], tmp_path)
+    assert message.format(d=tmp_path) in line
 
 
 def _render_target(tmp_path, lays="0,30,60,90,150", kind=()):
@@ -131,6 +238,23 @@ def test_bias_region_without_texture_exits_3(tmp_path, capsys):
     Image.fromarray(to_uint8(polished_blank(shape, seed=3))).save(blank)
     assert main(["bias", str(recipe), str(png), str(blank)]) == 3
     assert "blank.png: region lay-0: no measurable texture" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("case", ["a folder", "no parent", "parent is a file"])
+def test_bias_unwritable_json_exits_2_before_any_work(tmp_path, capsys, case):
+    png, recipe = _render_target(tmp_path, lays="0")
+    path, expected = _unwritable(tmp_path, case, "--json", "json")
+    assert _refused(capsys, ["bias", str(recipe), str(png), "--json", str(path)], tmp_path) == expected
+    line = _refused(capsys, ["bias", str(recipe), str(png), "--json", str(png)], tmp_path)
+    assert line.endswith(f"--json: {png} is also an input image; it would be overwritten (choose another name)")
+
+
+@pytest.mark.parametrize("max_bias", ["-1", "0"])
+def test_bias_max_bias_must_be_positive(tmp_path, capsys, max_bias):
+    png, recipe = _render_target(tmp_path, lays="0")
+    line = _refused(capsys, ["bias", str(recipe), str(png), "--max-bias", max_bias, "--json", str(tmp_path / "b.json")],
+                    tmp_path)
+    assert line == f"surfinspect: error: --max-bias: must be > 0 (got {max_bias})"
 
 
 def test_bias_unknown_region_exits_2(tmp_path, capsys):

@@ -234,6 +234,14 @@ def test_gauge_rr_bad_input(values, kwargs, message):
         gauge_rr(values, **kwargs)
 
 
+def test_setting_errors_do_not_name_the_table():
+    # a bad setting is not a problem of the file it came with
+    with pytest.raises(InputError, match=r"^tolerance: must be a width > 0 \(got -2\)$"):
+        gauge_rr(np.arange(8.0).reshape(2, 2, 2), tolerance=-2.0, source="gauge.csv")
+    with pytest.raises(InputError, match=r"^resolution: must be a number >= 0 \(got -0.1\)$"):
+        gauge_rr(np.arange(8.0).reshape(2, 2, 2), tolerance=2.0, resolution=-0.1, source="gauge.csv")
+
+
 # ------------------------------------------------------------------ study CSV
 
 def _write(tmp_path, text, name="study.csv"):
@@ -302,6 +310,63 @@ def test_every_problem_is_listed(tmp_path):
     with pytest.raises(InputError, match=r"study\.csv:3: value: not a number .*and 1 more") as info:
         read_study_csv(_write(tmp_path, "\n".join(lines)))
     assert len(info.value.problems) == 2 and info.value.problems[1].startswith(f"{tmp_path / 'study.csv'}:6:")
+
+
+def _crossed_rows(parts=5, appraisers=("ann", "bob", "cy"), trials=2):
+    """Header plus one row per part, appraiser and trial: line n + 1 of the file is item n."""
+    rows = ["part,appraiser,trial,value"]
+    for i in range(parts):
+        for j, appraiser in enumerate(appraisers):
+            for k in range(trials):
+                rows.append(f"P{i + 1},{appraiser},{k + 1},{i + 0.1 * j + 0.01 * k}")
+    return rows
+
+
+def _problems(tmp_path, rows, **kwargs):
+    with pytest.raises(InputError) as info:
+        read_study_csv(_write(tmp_path, "\n".join(rows) + "\n"), **kwargs)
+    return info.value.problems
+
+
+def test_one_extra_trial_row_is_named_alone_with_a_summary(tmp_path):
+    # 5 x 3 x 2 = 30 rows on lines 2-31; the extra trial of P1 / ann is line 32.
+    rows = _crossed_rows() + ["P1,ann,3,0.5"]
+    with pytest.raises(InputError, match=r"study\.csv:32: part 'P1', appraiser 'ann', trial '3': a trial the other "
+                       r"cells do not have \(the study's trials: 1, 2\) \(and 1 more\)"):
+        read_study_csv(_write(tmp_path, "\n".join(rows)))
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == 2
+    assert problems[1].endswith("study.csv: the study is not balanced (1 extra row): a crossed study has one value "
+                                "per part, appraiser and trial, 5 x 3 x 2 = 30 rows (got 31)")
+
+
+def test_rows_of_an_appraiser_the_other_parts_lack_are_named_together(tmp_path):
+    rows = _crossed_rows() + ["P3,dan,1,0.1", "P3,dan,2,0.3"]
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == 2
+    assert problems[0].endswith("study.csv:32: part 'P3', appraiser 'dan': an appraiser the other parts do not have "
+                                "(2 rows: lines 32, 33; the study's appraisers: ann, bob, cy)")
+    assert "(2 extra rows)" in problems[1] and "5 x 3 x 2 = 30 rows (got 32)" in problems[1]
+
+
+def test_many_balance_problems_are_listed_up_to_the_limit_then_counted(tmp_path):
+    from surfinspect.gauge import MAX_BALANCE_LINES
+
+    # trial 2 of ann dropped for every part: 5 cells miss a trial, plus P5 measured by ann and bob only
+    rows = [r for r in _crossed_rows() if not r.endswith(tuple(f",ann,2,{i}.01" for i in range(5)))]
+    rows = [r for r in rows if not r.startswith("P5,cy,")]
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == MAX_BALANCE_LINES + 1
+    assert "part 'P5' is measured by appraiser(s) ann, bob only; missing cy" in problems[0]
+    assert all("has no trial 2" in p for p in problems[1:MAX_BALANCE_LINES])
+    # 5 trials of ann and the 2 trials of P5 / cy are missing: 7 values, 6 problems, 5 listed
+    assert "(7 missing values; 1 more not listed)" in problems[-1] and "(got 23)" in problems[-1]
+
+
+def test_a_recipe_for_a_table_of_values_is_refused(tmp_path):
+    with pytest.raises(InputError, match=r"study\.csv:1: header: the table holds measured values, so a recipe has "
+                       r"nothing to measure"):
+        read_study_csv(_write(tmp_path, "\n".join(_crossed_rows())), measure=lambda path: 0.0)
 
 
 def test_single_appraiser_study_is_refused(tmp_path):

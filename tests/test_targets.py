@@ -6,12 +6,14 @@ import numpy as np
 import pytest
 
 from surfinspect.errors import InputError
+from surfinspect import targets
 from surfinspect.targets import (
     A4_MM,
     MM_PER_INCH,
     SCALE_BAR_MM,
     layout_targets,
     render_grating,
+    render_sheet,
     target_recipe_yaml,
     write_target_pdf,
     write_target_png,
@@ -217,3 +219,77 @@ def test_rendered_png_target_is_measured_with_bias_under_005_deg(tmp_path, kind)
     assert [b.nominal_deg for b in study.per_nominal] == nominals
     for b in study.per_nominal:
         assert abs(b.bias_deg) < 0.05, (b.nominal_deg, b.bias_deg)
+
+
+# ------------------------------------------------------------------ limits and large rasters
+
+
+@pytest.mark.parametrize("kind", ["sine", "square"])
+def test_grating_rendered_in_strips_equals_the_whole_grating(monkeypatch, kind):
+    lay, period, shape = 23.0, 6.7, (53, 41)
+    whole = render_grating(shape, lay, period, kind=kind)
+    monkeypatch.setattr(targets, "_STRIP_PIXELS", 41 * 16 * 3)  # 3 rows a strip (square: 16 sub-samples a pixel)
+    strips = render_grating(shape, lay, period, kind=kind)
+    np.testing.assert_allclose(strips, whole, atol=1e-6)
+    if kind == "sine":
+        # Analytic: 0.5 + 0.4 sin(2 pi u / period) with u = -sin(lay) x + cos(lay) y_up, y_up = -row, at pixel centres.
+        t = math.radians(lay)
+        rows, cols = np.mgrid[0 : shape[0], 0 : shape[1]]
+        u = -math.sin(t) * cols + math.cos(t) * -rows
+        np.testing.assert_allclose(strips, 0.5 + 0.4 * np.sin(2 * math.pi * u / period), atol=1e-6)
+
+
+@pytest.mark.parametrize("dpi", [49.0, 4801.0, float("nan"), -600.0])
+def test_png_dpi_outside_the_allowed_range_is_refused_and_nothing_written(tmp_path, dpi):
+    with pytest.raises(InputError, match=r"--dpi: must be 50 <= dpi <= 4800 \(got "):
+        write_target_png(tmp_path / "t.png", [0], period_mm=1.0, size_mm=(20, 20), dpi=dpi)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_sheet_over_the_megapixel_limit_is_refused_before_it_is_allocated():
+    (sheet,) = layout_targets([0, 45, 90, 135], (80, 100), page_mm=None)
+    dpi = 4800.0
+    # Expected size from the sheet's millimetres: rows and columns = mm * dpi / 25.4, rounded.
+    cols, rows = (round(v * dpi / MM_PER_INCH) for v in sheet.size_mm)
+    assert rows * cols > 200e6
+    with pytest.raises(InputError, match=rf"--dpi: a sheet of {cols} x {rows} px at 4800 dpi would be .* megapixels "
+                       r"\(allowed at most 200"):
+        render_sheet(sheet, period_mm=1.0, dpi=dpi)
+
+
+def test_pdf_rasters_over_the_megapixel_limit_are_refused(tmp_path):
+    # Four 80 x 100 mm sine rasters at 4800 dpi: 4 * 15118 * 18898 px = 1143 megapixels.
+    with pytest.raises(InputError, match=r"--raster-dpi: the 4 grating rasters at 4800 dpi would be 1,143 megapixels"):
+        write_target_pdf(tmp_path / "t.pdf", [0, 45, 90, 135], period_mm=1.0, size_mm=(80, 100), raster_dpi=4800)
+    with pytest.raises(InputError, match=r"--raster-dpi: must be 50 <= dpi <= 4800 \(got 20\)"):
+        write_target_pdf(tmp_path / "t.pdf", [0], period_mm=1.0, size_mm=(20, 20), raster_dpi=20)
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("tolerance", [0.0, -0.5, 45.5, float("inf")])
+def test_recipe_tolerance_outside_what_a_recipe_accepts_leaves_no_png(tmp_path, tolerance):
+    with pytest.raises(InputError, match=r"--tolerance-deg: must be 0 < tolerance <= 45 degrees \(got "):
+        write_target_png(tmp_path / "t.png", [0], period_mm=1.0, size_mm=(20, 20), dpi=150,
+                         recipe_path=tmp_path / "t.yaml", tolerance_deg=tolerance)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_recipe_tolerance_range_is_the_one_recipes_accept(tmp_path):
+    from surfinspect.errors import RecipeError
+    from surfinspect.recipe import load_recipe
+
+    sheet, rects = write_target_png(tmp_path / "t.png", [30], period_mm=1.0, size_mm=(20, 20), dpi=150,
+                                    recipe_path=tmp_path / "t.yaml", tolerance_deg=45.0)
+    assert load_recipe(tmp_path / "t.yaml").regions[0].tolerance_deg == 45.0  # the upper end is accepted
+    # the lower end is excluded by the recipe loader too (the reason for the check)
+    text = target_recipe_yaml("t", sheet, rects, tolerance_deg=1.0).replace("tolerance_deg: 1.0", "tolerance_deg: 0")
+    (tmp_path / "zero.yaml").write_text(text)
+    with pytest.raises(RecipeError, match="tolerance_deg"):
+        load_recipe(tmp_path / "zero.yaml")
+
+
+def test_grating_too_small_for_a_recipe_region_is_refused(tmp_path):
+    # 4 mm at 150 dpi is 24 px: 24 - 2 * 8 px margin = 8 px, under the 16 px smallest region side.
+    with pytest.raises(InputError, match=r"--size-mm: a grating of 24 x 24 px leaves a region under 16 px"):
+        write_target_png(tmp_path / "t.png", [0], period_mm=1.0, size_mm=(4, 4), dpi=150, recipe_path=tmp_path / "t.yaml")
+    assert list(tmp_path.iterdir()) == []

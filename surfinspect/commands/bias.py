@@ -21,6 +21,7 @@ from ..imaging import read_image
 from ..orientation import wrap_deviation
 from ..recipe import load_recipe
 from ..results import EXIT_CODES, PartVerdict
+from ._checks import check_number, check_output_file
 
 HELP = "measure known-angle target images: bias and repeatability per nominal angle, linearity line"
 
@@ -31,19 +32,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--nominal-lay", type=float, metavar="DEG",
                         help="nominal lay of every region (default: each region's lay_deg in the recipe)")
     parser.add_argument("--region", action="append", metavar="NAME", help="use only this region (repeatable)")
-    parser.add_argument("--max-bias", type=float, metavar="DEG", help="exit 1 when any nominal's |bias| exceeds DEG")
+    parser.add_argument("--max-bias", type=float, metavar="DEG",
+                        help="exit 1 when any nominal's |bias| exceeds DEG (> 0)")
     parser.add_argument("--json", metavar="FILE", help="write the measurements and the study as JSON")
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    check_number("--max-bias", args.max_bias, lo=0.0, lo_open=True)
+    if args.nominal_lay is not None and not 0.0 <= args.nominal_lay < 180.0:
+        raise InputError(f"--nominal-lay: {args.nominal_lay:g} is outside the allowed range 0 <= lay < 180 degrees")
+    if args.json:
+        inputs = [("the recipe", args.recipe), *(("an input image", image) for image in args.images)]
+        check_output_file("--json", args.json, not_same_as=inputs)
     recipe = load_recipe(args.recipe)
     names = [r.name for r in recipe.regions]
     wanted = args.region or names
     unknown = [n for n in wanted if n not in names]
     if unknown:
         raise InputError(f"--region: {', '.join(unknown)} not in {args.recipe} (allowed {', '.join(names)})")
-    if args.nominal_lay is not None and not 0.0 <= args.nominal_lay < 180.0:
-        raise InputError(f"--nominal-lay: {args.nominal_lay:g} is outside the allowed range 0 <= lay < 180 degrees")
 
     measurements = []
     missing = []

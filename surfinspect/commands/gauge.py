@@ -13,13 +13,13 @@ from __future__ import annotations
 
 import argparse
 import json
-
 from pathlib import Path
 
 from .. import gauge
 from ..console import Console
 from ..errors import InputError
 from ..fsutil import write_text_atomic
+from ._checks import check_number, check_output_file
 
 HELP = "analyse a gauge R&R study table (part, appraiser, trial, value) by the ANOVA method"
 
@@ -87,8 +87,16 @@ def _image_measure(recipe_path: str, region_name: str | None) -> gauge.Measure:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    check_number("--tolerance", args.tolerance, lo=0.0, lo_open=True)
+    check_number("--resolution", args.resolution, lo=0.0)
+    check_number("--interaction-alpha", args.interaction_alpha, lo=0.0, hi=1.0, lo_open=True, hi_open=True)
     if args.region and not args.recipe:
         raise InputError("--region: only with --recipe (for a table of images)")
+    inputs = [("the study table", args.study), ("the recipe", args.recipe)]
+    if args.json:
+        check_output_file("--json", args.json, not_same_as=inputs)
+    if args.pdf:
+        check_output_file("--pdf", args.pdf, suffixes=(".pdf",), not_same_as=[*inputs, ("the --json file", args.json)])
     measure = _image_measure(args.recipe, args.region) if args.recipe else None
     table = gauge.read_study_csv(args.study, measure=measure)
     study = gauge.gauge_rr(
