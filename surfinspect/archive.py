@@ -51,7 +51,7 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 
 from . import signing
 from .errors import InputError
-from .fsutil import atomic_path, sha256_bytes, sha256_file
+from .fsutil import atomic_path, ensure_output_dir, sha256_bytes, sha256_file
 from .results import SCHEMA as RESULT_SCHEMA
 from .results import PartVerdict, SignOff
 
@@ -293,19 +293,43 @@ class Archive:
     def __init__(self, root: str | os.PathLike, *, create: bool = False):
         self.root = Path(root)
         index = self.root / INDEX_NAME
-        if not index.exists():
+        if self.root.exists() and not self.root.is_dir():
+            allowed = "an archive folder, or a new name to make one" if create else "an archive folder"
+            raise InputError(f"--archive {self.root}: not a folder (a file of that name exists; allowed: {allowed})")
+        # an index of 0 bytes holds nothing yet (sqlite makes the file before its first write)
+        existed = index.is_file() and index.stat().st_size > 0
+        if not existed and not index.exists():
             if not create:
                 raise InputError(f"{self.root}: not a surfinspect archive (no {INDEX_NAME}; run `surfinspect batch` first)")
-        if create:
-            (self.root / OBJECTS_DIR).mkdir(parents=True, exist_ok=True)
-        self._db = sqlite3.connect(index, timeout=BUSY_TIMEOUT_S, isolation_level=None)
-        self._db.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
-        self._ensure_schema(create)
+            ensure_output_dir(self.root, "--archive")
+        try:
+            self._db = sqlite3.connect(index, timeout=BUSY_TIMEOUT_S, isolation_level=None)
+        except sqlite3.DatabaseError as exc:
+            raise InputError(f"{index}: cannot open the archive index ({exc})") from None
+        try:
+            self._db.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
+            # an existing file is checked before anything is written into it or beside it
+            if existed:
+                self._check_format()
+            if create:
+                self._make_objects_dir()
+                self._create_schema()
+            if not existed:
+                self._check_format()
+        except BaseException:
+            self._db.close()
+            raise
 
     # -- connection and transactions
 
-    def _ensure_schema(self, create: bool) -> None:
-        if create:
+    def _make_objects_dir(self) -> None:
+        try:
+            (self.root / OBJECTS_DIR).mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise InputError(f"--archive {self.root}: cannot make its {OBJECTS_DIR} folder ({exc.strerror or exc})") from None
+
+    def _create_schema(self) -> None:
+        try:
             with self._write() as db:
                 for statement in filter(None, (s.strip() for s in _SCHEMA_SQL.split(";"))):
                     db.execute(statement)
@@ -313,13 +337,21 @@ class Archive:
                 db.execute("INSERT OR IGNORE INTO meta VALUES ('created_at', ?)", (utc_now(),))
                 db.execute("INSERT OR IGNORE INTO meta VALUES ('chain_length', '0')")
                 db.execute("INSERT OR IGNORE INTO meta VALUES ('chain_head_sha256', ?)", (GENESIS_SHA256,))
+        except sqlite3.DatabaseError as exc:
+            raise InputError(f"{self.root / INDEX_NAME}: cannot write the archive index ({exc})") from None
+
+    def _check_format(self) -> None:
+        index = self.root / INDEX_NAME
         try:
             fmt = self._db.execute("SELECT value FROM meta WHERE key = 'format'").fetchone()
         except sqlite3.DatabaseError as exc:
-            raise InputError(f"{self.root / INDEX_NAME}: not a surfinspect archive index ({exc})") from None
+            raise InputError(
+                f"{index}: not a surfinspect archive index ({exc}); allowed: the index of an archive made by "
+                "`surfinspect batch`, or a new --archive folder"
+            ) from None
         if fmt is None or fmt[0] != ARCHIVE_FORMAT:
             got = None if fmt is None else fmt[0]
-            raise InputError(f"{self.root / INDEX_NAME}: meta.format: unknown archive format (got {got!r}, allowed {ARCHIVE_FORMAT!r})")
+            raise InputError(f"{index}: meta.format: unknown archive format (got {got!r}, allowed {ARCHIVE_FORMAT!r})")
 
     @contextlib.contextmanager
     def _write(self) -> Iterator[sqlite3.Connection]:
@@ -822,6 +854,7 @@ def sign_batch(
         key_fingerprint=key.fingerprint,
         comment=record["comment"],
         record_sha256=sha256_bytes(signing.canonical_record_bytes(record)),
+        report_sha256=batch.report_sha256,
     )
     edition = render_edition(signoff)
     return archive.add_signoff(

@@ -24,7 +24,10 @@ import io
 import json
 import multiprocessing
 import os
+import signal
 import tempfile
+import threading
+import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
@@ -38,7 +41,7 @@ import numpy as np
 from . import archive as archive_mod
 from . import results
 from .errors import InputError
-from .fsutil import sha256_file, write_bytes_atomic
+from .fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
 from .imaging import read_image
 from .recipe import Recipe, load_recipe
 from .runner import find_images, inspect_path, output_stems
@@ -49,6 +52,7 @@ __all__ = [
     "BatchOutcome",
     "PartDone",
     "TEST_EXIT_AT_PART_ENV",
+    "TEST_HOLD_FROM_PART_ENV",
     "discover_images",
     "run_batch",
     "batch_exit_code",
@@ -59,6 +63,11 @@ __all__ = [
 
 #: Test hook: when set to N, the worker that takes the batch's N-th part (1-based) ends abruptly.
 TEST_EXIT_AT_PART_ENV = "SURFINSPECT_TEST_EXIT_AT_PART"
+#: Test hook: when set to N, workers wait (up to a minute) before the batch's N-th part and every later one.
+TEST_HOLD_FROM_PART_ENV = "SURFINSPECT_TEST_HOLD_FROM_PART"
+_TEST_HOLD_S = 60.0
+#: Exit status of a worker that ends because the batch process is gone.
+_EXIT_PARENT_GONE = 75
 
 CSV_COLUMNS = (
     "batch_id",
@@ -126,8 +135,15 @@ class BatchOutcome:
 # ------------------------------------------------------------------ planning
 
 
-def discover_images(folder: str | os.PathLike, *, recursive: bool = False) -> list[tuple[str, Path]]:
+def discover_images(
+    folder: str | os.PathLike, *, recursive: bool = False, exclude: Sequence[str | os.PathLike] = ()
+) -> list[tuple[str, Path]]:
     """Image files in ``folder`` as (part key, path), sorted; the key is the path below ``folder``, '/'-separated.
+
+    Overlays this tool wrote (``*.overlay.png``) are never parts, nor is
+    anything under an ``exclude`` folder that lies inside ``folder`` (the
+    batch's own ``--out`` and ``--archive``); an ``exclude`` folder that is
+    ``folder`` itself or lies outside it is ignored.
 
     Raises
     ------
@@ -135,7 +151,14 @@ def discover_images(folder: str | os.PathLike, *, recursive: bool = False) -> li
         When the folder is missing or holds no image.
     """
     folder = Path(folder)
-    return [(PurePosixPath(*p.relative_to(folder).parts).as_posix(), p) for p in find_images(folder, recursive=recursive)]
+    inside = [e for e in exclude if _strictly_inside(Path(e), folder)]
+    found = find_images(folder, recursive=recursive, exclude=inside)
+    return [(PurePosixPath(*p.relative_to(folder).parts).as_posix(), p) for p in found]
+
+
+def _strictly_inside(path: Path, folder: Path) -> bool:
+    path, folder = path.resolve(), folder.resolve()
+    return path != folder and path.is_relative_to(folder)
 
 
 def _hash_file(path: Path) -> tuple[str | None, str | None]:
@@ -151,15 +174,36 @@ def _hash_file(path: Path) -> tuple[str | None, str | None]:
 _worker_recipe: Recipe | None = None
 
 
-def _init_worker(recipe: Recipe, cv_threads: int) -> None:
+def _init_worker(recipe: Recipe, cv_threads: int, batch_alive) -> None:
     global _worker_recipe
     _worker_recipe = recipe
     cv2.setNumThreads(cv_threads)  # the pool is the parallelism; OpenCV threads would oversubscribe the cores
+    # Ctrl-C reaches the whole process group: the batch process stops the pool, a worker must not die mid-write
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    threading.Thread(target=_exit_with_batch, args=(batch_alive,), name="exit-with-batch", daemon=True).start()
 
 
-def _inspect_one(position: int, part_key: str, path: str, name: str, exit_at: str | None) -> dict:
+def _exit_with_batch(batch_alive) -> None:
+    """Return only by ending this worker, once the batch process is gone.
+
+    ``batch_alive`` is the read end of a pipe whose only write end the batch
+    process holds: when that process ends in any way (even SIGKILL) the
+    system closes it and the read sees end-of-file. A worker's parent is the
+    fork server, not the batch process, so ``os.getppid()`` would not tell.
+    """
+    try:
+        while True:
+            batch_alive.recv_bytes()
+    except (EOFError, OSError):
+        pass
+    os._exit(_EXIT_PARENT_GONE)
+
+
+def _inspect_one(position: int, part_key: str, path: str, name: str, exit_at: str | None, hold_from: str | None) -> dict:
     if exit_at == str(position + 1):
         os._exit(70)
+    if hold_from is not None and position + 1 >= int(hold_from):
+        time.sleep(_TEST_HOLD_S)
     # the same read-inspect-write as ``inspect``, into a scratch folder whose files go back to the parent
     with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
         outcome, _ = inspect_path(path, _worker_recipe, tmp, name)
@@ -204,9 +248,13 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
     archive_mod.check_batch_id(config.batch_id)
     recipe = load_recipe(config.recipe_path)
-    images = discover_images(config.folder, recursive=config.recursive)
-    hashed = {key: _hash_file(path) for key, path in images}
+    own_folders = [config.archive_dir] + ([config.out_dir] if config.out_dir is not None else [])
+    images = discover_images(config.folder, recursive=config.recursive, exclude=own_folders)
+    # every output is checked before the first image is hashed or anything is recorded
+    if config.out_dir is not None:
+        ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
+        hashed = {key: _hash_file(path) for key, path in images}
         plan = arc.start_batch(
             config.batch_id,
             recipe_name=recipe.name,
@@ -278,30 +326,72 @@ class _Recorder:
 
 
 def _inspect_pending(recipe: Recipe, tasks: Sequence[tuple[int, str]], recorder: _Recorder, *, jobs: int | None) -> str | None:
-    """Inspect (position, part key) tasks in a process pool; returns why it stopped early, or None."""
+    """Inspect (position, part key) tasks in a process pool; returns why it stopped early, or None.
+
+    Any exception in this process (a signal turned into one, an archive that
+    cannot be written) ends the worker processes before it propagates: a
+    stopped batch leaves no process behind. Workers also end by themselves
+    when this process is killed (see :func:`_exit_with_batch`).
+    """
     cores = os.cpu_count() or 1
     jobs = min(jobs or cores, len(tasks))
     names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
-    # the hook is read here: forkserver workers do not see the environment of later runs
+    # the hooks are read here: forkserver workers do not see the environment of later runs
     exit_at = os.environ.get(TEST_EXIT_AT_PART_ENV)
+    hold_from = os.environ.get(TEST_HOLD_FROM_PART_ENV)
+    context = _pool_context()
+    batch_alive, batch_alive_writer = context.Pipe(duplex=False)
     lost = 0
-    with ProcessPoolExecutor(
-        max_workers=jobs, mp_context=_pool_context(), initializer=_init_worker, initargs=(recipe, max(1, cores // jobs))
-    ) as pool:
-        futures = [
-            pool.submit(_inspect_one, position, key, str(recorder.paths[key]), names[key], exit_at) for position, key in tasks
-        ]
-        for future in as_completed(futures):
+    try:
+        with ProcessPoolExecutor(
+            max_workers=jobs,
+            mp_context=context,
+            initializer=_init_worker,
+            initargs=(recipe, max(1, cores // jobs), batch_alive),
+        ) as pool:
             try:
-                recorder.worker_output(future.result())
-            except BrokenProcessPool:
-                lost += 1
+                futures = [
+                    pool.submit(_inspect_one, position, key, str(recorder.paths[key]), names[key], exit_at, hold_from)
+                    for position, key in tasks
+                ]
+                for future in as_completed(futures):
+                    try:
+                        recorder.worker_output(future.result())
+                    except BrokenProcessPool:
+                        lost += 1
+            except BaseException:
+                _terminate_workers(pool)
+                raise
+    finally:
+        batch_alive.close()
+        batch_alive_writer.close()
     if lost:
         return (
             f"a worker process ended abruptly; {lost} part(s) were not recorded "
             "(run the same command again to finish the batch)"
         )
     return None
+
+
+def _terminate_workers(pool: ProcessPoolExecutor) -> None:
+    """Cancel what is queued and end every worker now (``ProcessPoolExecutor.terminate_workers`` from Python 3.14)."""
+    terminate = getattr(pool, "terminate_workers", None)
+    if terminate is not None:
+        terminate()
+        return
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        try:
+            if process.is_alive():
+                process.terminate()
+        except (ValueError, ProcessLookupError):  # already closed or gone
+            pass
+    for process in processes:
+        try:
+            process.join(timeout=5.0)
+        except (ValueError, AssertionError):
+            pass
 
 
 def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:

@@ -43,6 +43,7 @@ import io
 import math
 import os
 import socket
+import unicodedata
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from decimal import Decimal
@@ -98,6 +99,7 @@ __all__ = [
     "format_angle",
     "format_fixed",
     "format_signed_angle",
+    "printable_text",
     "render_report",
     "signoff_state",
     "write_report",
@@ -1032,29 +1034,55 @@ def _titled_box(c: Canvas, y: float, height: float, title: str, *, line_width: f
 
 _SIGNOFF_LINE = 14.5
 _SIGNOFF_VALUE_X = 90.0
+_SIGNOFF_VALUE_W = _FRAME_W - _SIGNOFF_VALUE_X - 10
+_SIGNOFF_TEXT_SIZE = 7.5
+#: The encoding of the standard PDF fonts the report uses (reportlab's WinAnsiEncoding, Windows Latin-1).
+_FONT_ENCODING = "cp1252"
+REPLACED_CHARACTERS_NOTE = "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)"
 
 
-def _signoff_rows(c: Canvas, signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
+def printable_text(text: str) -> tuple[str, bool]:
+    """``text`` with every character the report's fonts cannot show replaced by '?'; and whether any was.
+
+    The standard PDF fonts hold the Windows Latin-1 set only; any other
+    character (CJK, most symbols) would print as a black box.
+    """
+    shown = []
+    for ch in text:
+        try:
+            ch.encode(_FONT_ENCODING)
+            ok = not unicodedata.category(ch).startswith("C")  # control characters have no glyph either
+        except UnicodeEncodeError:
+            ok = False
+        shown.append(ch if ok else "?")
+    out = "".join(shown)
+    return out, out != text
+
+
+def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
     """(label, value or None for an empty line, font) of the sign-off block; long comments wrap."""
     if signoff is None:
         return [(label, None, "Helvetica") for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")]
+    name, name_replaced = printable_text(signoff.signer_name)
+    comment, comment_replaced = printable_text(signoff.comment)
     rows = [
-        ("Name (printed)", signoff.signer_name, "Helvetica-Bold"),
+        ("Name (printed)", name, "Helvetica-Bold"),
         ("Meaning", signoff.meaning.upper(), "Helvetica-Bold"),
         ("Time (UTC)", signoff.signed_at_utc, "Helvetica"),
         ("Key fingerprint", signoff.key_fingerprint, "Courier"),
         ("Record SHA-256", signoff.record_sha256 or "—", "Courier"),
+        ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", "Courier"),
     ]
-    if signoff.comment:
-        width = _FRAME_W - _SIGNOFF_VALUE_X - 10
-        for k, line in enumerate(simpleSplit(signoff.comment, "Helvetica", 7.5, width)):
+    if comment:
+        for k, line in enumerate(simpleSplit(comment, "Helvetica", _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
             rows.append(("Comment" if k == 0 else "", line, "Helvetica"))
+    if name_replaced or comment_replaced:
+        rows.append(("", REPLACED_CHARACTERS_NOTE, "Helvetica-Oblique"))
     return rows
 
 
 def _signoff_height(signoff: SignOff | None) -> float:
-    rows = 5 if signoff is None else 5 + (len(simpleSplit(signoff.comment, "Helvetica", 7.5, _FRAME_W - _SIGNOFF_VALUE_X - 10)) if signoff.comment else 0)
-    return 26.0 + rows * _SIGNOFF_LINE
+    return 26.0 + len(_signoff_rows(signoff)) * _SIGNOFF_LINE
 
 
 def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
@@ -1070,8 +1098,8 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
         c.setFont("Helvetica", 7)
         c.drawString(_MARGIN + 70, y - 15, "Signed electronically; the archive's verify command checks the signature against the record.")
     line_y = y - 32
-    for label, value, font in _signoff_rows(c, signoff):
-        c.setFont("Helvetica-Bold", 7.5)
+    for label, value, font in _signoff_rows(signoff):
+        c.setFont("Helvetica-Bold", _SIGNOFF_TEXT_SIZE)
         c.drawString(_MARGIN + 8, line_y, label)
         if value is None:
             c.setLineWidth(0.5)
@@ -1082,8 +1110,9 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
                 c.setFont("Helvetica", 6.5)
                 c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
         else:
-            c.setFont(font, 9 if label == "Meaning" else 7.5)
-            c.drawString(_MARGIN + _SIGNOFF_VALUE_X, line_y, _fit_text(c, str(value), font, 9 if label == "Meaning" else 7.5, _FRAME_W - _SIGNOFF_VALUE_X - 10))
+            size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
+            c.setFont(font, size)
+            c.drawString(_MARGIN + _SIGNOFF_VALUE_X, line_y, _fit_text(c, str(value), font, size, _SIGNOFF_VALUE_W))
         line_y -= _SIGNOFF_LINE
     c.restoreState()
 
@@ -1092,7 +1121,7 @@ def signoff_state(signoff: SignOff | None) -> str:
     """The sign-off state in one line, as the footer of every page prints it."""
     if signoff is None:
         return "NOT SIGNED"
-    return f"Signed: {signoff.meaning.upper()} by {signoff.signer_name}, {signoff.signed_at_utc}"
+    return f"Signed: {signoff.meaning.upper()} by {printable_text(signoff.signer_name)[0]}, {signoff.signed_at_utc}"
 
 
 _LEGEND_H = 228.0

@@ -374,3 +374,4 @@ class SignOff:
     key_fingerprint: str  # SHA-256 of the raw Ed25519 public key, hex
     comment: str = ""
     record_sha256: str = ""  # hash of the canonical signed record
+    report_sha256: str = ""  # hash of the unsigned batch report the signature covers

@@ -156,11 +156,13 @@ def write_key_pair(
     Raises
     ------
     InputError
-        When either file already exists (a key is never overwritten) or the
-        passphrase is empty.
+        When ``key_path`` is a folder, either file already exists (a key is
+        never overwritten) or the passphrase is empty.
     """
     key_path = Path(key_path)
     pub_path = public_key_path_for(key_path)
+    if key_path.is_dir():
+        raise InputError(f"--out {key_path}: is a folder (allowed: a new file name for the private key)")
     for p in (key_path, pub_path):
         if p.exists():
             raise InputError(f"{p}: file exists; a key file is never overwritten (choose another --out)")

@@ -108,7 +108,9 @@ def signed_archive(tmp_path):
 
     with arc.Archive(root) as a:
         arc.sign_batch(a, "LW220-0506", key, meaning="approved", comment="released", render_edition=render)
-    assert seen and seen[0].key_fingerprint == key.fingerprint
+        # the sign-off block names the unsigned report the signature covers: the bytes stored for the batch report
+        assert seen and seen[0].key_fingerprint == key.fingerprint
+        assert seen[0].report_sha256 == hashlib.sha256(b"%PDF report LW220-0506").hexdigest()
     return root
 
 
@@ -362,3 +364,36 @@ def test_batch_id_is_checked():
     with pytest.raises(InputError, match=r"--batch-id: 'a b' is not a valid batch id"):
         arc.check_batch_id("a b")
     assert arc.check_batch_id("LW220-2024.05_06") == "LW220-2024.05_06"
+
+
+def _tree(root):
+    return sorted((str(p.relative_to(root)), p.read_bytes() if p.is_file() else None) for p in root.rglob("*"))
+
+
+def test_archive_that_is_a_file_is_an_input_error(tmp_path):
+    plain = tmp_path / "afile"
+    plain.write_text("notes")
+    for create in (False, True):
+        with pytest.raises(InputError, match=r"^--archive .*afile: not a folder \(a file of that name exists; allowed: an archive folder"):
+            arc.Archive(plain, create=create)
+    assert plain.read_text() == "notes"
+
+
+@pytest.mark.parametrize("junk", [b"this is not a database\n" * 20, "sqlite-of-another-program"])
+def test_index_that_is_not_an_archive_index_is_left_alone(tmp_path, junk):
+    root = tmp_path / "D"
+    root.mkdir()
+    index = root / arc.INDEX_NAME
+    if junk == "sqlite-of-another-program":
+        other = sqlite3.connect(index)
+        with other:
+            other.execute("CREATE TABLE stock (item TEXT)")
+        other.close()
+    else:
+        index.write_bytes(junk)
+    before = _tree(root)
+    for create in (False, True):
+        with pytest.raises(InputError, match=r"index\.sqlite: not a surfinspect archive index \(.*\); allowed: "):
+            arc.Archive(root, create=create)
+    # nothing was created in or beside a file that is not ours (no tables, no objects folder)
+    assert _tree(root) == before

@@ -3,9 +3,17 @@
 from __future__ import annotations
 
 import csv
+import hashlib
 import io
 import json
+import os
+import select
+import signal
 import sqlite3
+import subprocess
+import sys
+import time
+from pathlib import Path
 
 import cv2
 import pytest
@@ -240,3 +248,232 @@ def test_progress_lines_when_not_a_terminal(panels, tmp_path):
         "[1/7] LW-220-001.png: accept",
         "[2/7] LW-220-broken.png: error (not a readable image)",
     ]
+
+
+# ------------------------------------------------ outputs, input errors, interruption
+
+
+def _one_error_line(capsys) -> str:
+    err = capsys.readouterr().err
+    assert "Traceback" not in err
+    (line,) = err.strip().splitlines()
+    assert line.startswith("surfinspect: error: ")
+    return line
+
+
+def _batch_args(panels, archive, batch_id, *more):
+    recipe, folder = panels
+    return ["batch", str(recipe), str(folder), "--archive", str(archive), "--batch-id", batch_id, "--jobs", "2", *more]
+
+
+def test_recursive_rerun_takes_no_output_or_archive_file_as_a_part(tmp_path, capsys):
+    folder = tmp_path / "panels"
+    (folder / "line-2").mkdir(parents=True)
+    for i, sub in enumerate(["", "", "line-2"]):
+        cv2.imwrite(str(folder / sub / f"LW-220-{i:03d}.png"), synth.to_uint8(synth.brushed_panel(SIZE, 90.0, seed=i)))
+    recipe = tmp_path / "lw-220.yaml"
+    recipe.write_text(RECIPE)
+    out, archive = folder / "out", folder / "archive"
+    args = ["batch", str(recipe), str(folder), "--recursive", "--archive", str(archive), "--out", str(out), "--jobs", "2"]
+    assert main(["-q", *args, "--batch-id", "R1"]) == 0
+    # an image someone left in the output folder is not a part either: the whole folder is the batch's own
+    (out / "copy.png").write_bytes((folder / "LW-220-000.png").read_bytes())
+    assert sorted(p.name for p in out.glob("*.overlay.png")) == ["LW-220-000.overlay.png", "LW-220-001.overlay.png", "LW-220-002.overlay.png"]
+    # the same id again: the same three images (more would be refused as "holds other images", exit 2)
+    assert main(["-q", *args, "--batch-id", "R1"]) == 0
+    assert main(["-q", *args, "--batch-id", "R2"]) == 0
+    with arc.Archive(archive) as a:
+        assert [p.part_key for p in a.parts("R2")] == ["LW-220-000.png", "LW-220-001.png", "line-2/LW-220-002.png"]
+    assert arc.verify(archive) == []
+
+
+def test_discover_images_ignores_exclusions_that_are_not_below_the_folder(tmp_path):
+    (tmp_path / "in" / "out").mkdir(parents=True)
+    for rel in ["in/a.png", "in/out/b.png"]:
+        (tmp_path / rel).write_bytes(b"x")
+    keys = lambda *exclude: [k for k, _ in batch.discover_images(tmp_path / "in", recursive=True, exclude=exclude)]
+    assert keys(tmp_path / "in" / "out") == ["a.png"]
+    # outputs written into the image folder itself, or beside it, exclude nothing
+    assert keys(tmp_path / "in", tmp_path / "elsewhere") == ["a.png", "out/b.png"]
+
+
+def test_archive_or_out_that_cannot_be_used_exits_2_and_writes_nothing(panels, tmp_path, capsys):
+    good = tmp_path / "archive"
+    assert main(["-q", *_batch_args(panels, good, "B1")]) == 1
+    before = sorted(p.relative_to(good) for p in good.rglob("*"))
+    plain = tmp_path / "afile"
+    plain.write_text("not a folder")
+    capsys.readouterr()  # the good run's warning about its unreadable image
+
+    assert main(_batch_args(panels, plain, "B2")) == 2
+    line = _one_error_line(capsys)
+    assert "--archive" in line and "afile: not a folder" in line and "allowed: an archive folder" in line
+
+    junk = tmp_path / "D"
+    junk.mkdir()
+    (junk / arc.INDEX_NAME).write_bytes(b"\x00garbage, not SQLite" * 50)
+    assert main(_batch_args(panels, junk, "B2")) == 2
+    line = _one_error_line(capsys)
+    assert "D/index.sqlite: not a surfinspect archive index" in line and "allowed:" in line
+    assert sorted(p.name for p in junk.iterdir()) == [arc.INDEX_NAME]  # no objects folder beside the junk
+
+    assert main(_batch_args(panels, good, "B2", "--out", str(plain))) == 2
+    line = _one_error_line(capsys)
+    assert "--out" in line and "afile: not a folder" in line and "allowed: a folder or a new name" in line
+    # the failed run recorded nothing: no batch B2, no new file, and the archive still verifies
+    with arc.Archive(good) as a:
+        assert [b.batch_id for b in a.batches()] == ["B1"]
+    assert sorted(p.relative_to(good) for p in good.rglob("*")) == before
+    assert main(["-q", "verify", "--archive", str(good)]) == 0
+
+
+def _signed_setup(panels, tmp_path, monkeypatch):
+    root = tmp_path / "archive"
+    assert main(["-q", *_batch_args(panels, root, "B1")]) == 1
+    key = tmp_path / "berg.key"
+    assert main(["-q", "keygen", "--name", "Anna Berg", "--out", str(key)]) == 0
+    return root, key
+
+
+def test_sign_checks_out_before_signing(panels, tmp_path, capsys, monkeypatch):
+    root, key = _signed_setup(panels, tmp_path, monkeypatch)
+    (tmp_path / "adir").mkdir()
+    sign = ["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "approved"]
+    with arc.Archive(root) as a:
+        events_before = a.chain_head()
+    for out, says in [
+        (tmp_path / "adir", "adir is a folder (allowed: a file name)"),
+        (tmp_path / "signed.txt", "signed.txt: the name must end in .pdf"),
+        (tmp_path / "missing" / "s.pdf", "s.pdf: the folder " + str(tmp_path / "missing") + " does not exist"),
+    ]:
+        capsys.readouterr()
+        assert main([*sign, "--out", str(out)]) == 2
+        line = _one_error_line(capsys)
+        assert line.startswith("surfinspect: error: --out: ") and says in line
+    assert not (tmp_path / "signed.txt").exists() and not (tmp_path / "missing").exists()
+    with arc.Archive(root) as a:
+        assert a.signoffs("B1") == [] and a.chain_head() == events_before  # no sign-off, no event
+    assert main(["-q", "verify", "--archive", str(root)]) == 0
+
+
+def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_path, capsys, monkeypatch):
+    root, key = _signed_setup(panels, tmp_path, monkeypatch)
+    capsys.readouterr()
+    assert main(_batch_args(panels, root, "B1")) == 1  # a finished batch run again inspects nothing
+    out = capsys.readouterr().out
+    with arc.Archive(root) as a:
+        report = a.object_path(a.batch("B1").report_sha256)
+    assert f"report (a PDF stored under its hash, without a suffix): {report}" in out
+    assert f"surfinspect show --archive {root} --batch-id B1 --out DIR" in out
+
+    comment = "検査済み 2 panels\noff grain"  # invented; CJK outside Latin-1, and a newline that is folded
+    assert main(["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "rejected",
+                 "--comment", comment]) == 0
+    out = capsys.readouterr().out
+    with arc.Archive(root) as a:
+        (s,) = a.signoffs("B1")
+        edition = a.object_path(s.signed_report_sha256)
+        report_sha = a.batch("B1").report_sha256
+    assert f"signed report (a PDF stored under its hash, without a suffix): {edition}" in out
+    assert "readable copy (report.signed-1.pdf)" in out
+    # the signed record keeps the exact text (whitespace folded), the PDF shows '?' for what its font lacks
+    assert json.loads(s.record_json)["comment"] == "検査済み 2 panels off grain" == s.comment
+
+    copies = tmp_path / "copies"
+    assert main(["show", "--archive", str(root), "--batch-id", "B1", "--out", str(copies)]) == 0
+    assert "copied to" in capsys.readouterr().out
+    assert (copies / "report.signed-1.pdf").read_bytes() == edition.read_bytes()
+    assert hashlib.sha256((copies / "report.pdf").read_bytes()).hexdigest() == report_sha  # reference: hashlib
+    pypdf = pytest.importorskip("pypdf")
+    text = " ".join(pypdf.PdfReader(copies / "report.signed-1.pdf").pages[0].extract_text().split())
+    assert "???? 2 panels off grain" in text and "characters outside Latin-1 shown as ?" in text
+    assert f"Covers report SHA-256 {report_sha}" in text
+    assert main(["show", "--archive", str(root), "--out", str(copies)]) == 2
+    assert "--out: needs --batch-id" in _one_error_line(capsys)
+    assert main(["-q", "verify", "--archive", str(root)]) == 0
+
+
+# ---------------------------------------------------------------- stop signals
+
+_PROC = Path("/proc")
+
+
+def _process_tree(pid: int) -> set[tuple[int, str]]:
+    """(pid, start time) of ``pid``'s descendants, from /proc (proc(5): stat fields 4 ppid, 22 starttime)."""
+    parents: dict[int, list[tuple[int, str]]] = {}
+    for stat in _PROC.glob("[0-9]*/stat"):
+        try:
+            text = stat.read_text()
+        except OSError:
+            continue
+        fields = text[text.rindex(")") + 2:].split()  # the command name in (...) may hold spaces
+        parents.setdefault(int(fields[1]), []).append((int(stat.parent.name), fields[19]))
+    found, todo = set(), [pid]
+    while todo:
+        for child in parents.get(todo.pop(), []):
+            found.add(child)
+            todo.append(child[0])
+    return found
+
+
+def _alive(process: tuple[int, str]) -> bool:
+    try:
+        text = (_PROC / str(process[0]) / "stat").read_text()
+    except OSError:
+        return False
+    fields = text[text.rindex(")") + 2:].split()
+    return fields[19] == process[1] and fields[0] != "Z"  # same process (not a reused pid), not a zombie
+
+
+@pytest.fixture(scope="module")
+def ten_panels(tmp_path_factory):
+    root = tmp_path_factory.mktemp("ten")
+    folder = root / "in"
+    folder.mkdir()
+    for i in range(10):
+        cv2.imwrite(str(folder / f"LW-220-{i:03d}.png"), synth.to_uint8(synth.brushed_panel((128, 128), 90.0, seed=i)))
+    recipe = root / "lw-220.yaml"
+    recipe.write_text(RECIPE.replace("[16, 16, 160, 160]", "[16, 16, 96, 96]"))
+    return recipe, folder
+
+
+@pytest.mark.skipif(not (_PROC / "self" / "stat").exists(), reason="needs /proc to list the batch's processes")
+@pytest.mark.parametrize("stop", [signal.SIGTERM, signal.SIGKILL])
+def test_stopped_batch_leaves_no_process_and_a_rerun_finishes_each_part_once(ten_panels, tmp_path, stop):
+    recipe, folder = ten_panels
+    root = tmp_path / "archive"
+    args = ["batch", str(recipe), str(folder), "--archive", str(root), "--batch-id", "S1", "--jobs", "2"]
+    env = dict(os.environ, **{batch.TEST_HOLD_FROM_PART_ENV: "2"})  # part 1 is recorded, the others wait
+    env["PYTHONPATH"] = os.pathsep.join([str(Path(batch.__file__).parents[1]), env.get("PYTHONPATH", "")])
+    proc = subprocess.Popen([sys.executable, "-m", "surfinspect", *args], env=env, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    try:
+        ready, _, _ = select.select([proc.stdout], [], [], 60)
+        assert ready, "the batch recorded no part within a minute"
+        assert proc.stdout.readline().startswith("[1/10] LW-220-000.png: accept")
+        tree = _process_tree(proc.pid)
+        assert len(tree) >= 3  # the fork server and two workers (and the resource tracker)
+        proc.send_signal(stop)
+        started = time.monotonic()
+        # communicate() waits for end-of-file too: a leftover worker holding stdout would stall it
+        out, err = proc.communicate(timeout=10)
+        assert time.monotonic() - started < 5
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    deadline = time.monotonic() + 5
+    while any(_alive(p) for p in tree) and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert not [p for p in tree if _alive(p)]
+    if stop == signal.SIGTERM:
+        # 128 + signal number, as a shell reports it (SIGTERM 15 -> 143; signal(7))
+        assert proc.returncode == 143
+        assert "Traceback" not in err
+        (line,) = err.strip().splitlines()
+        assert line == ("surfinspect: error: batch S1: interrupted (SIGTERM); 1 of 10 part(s) recorded; "
+                        "run again with the same --batch-id to finish")
+    else:
+        assert proc.returncode == -signal.SIGKILL
+    assert main(["-q", *args]) == 0
+    assert sorted(_inspected_events(root)) == sorted(p.name for p in folder.glob("*.png"))  # each exactly once
+    assert arc.verify(root) == []

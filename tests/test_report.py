@@ -150,8 +150,8 @@ def test_large_picture_is_downsampled_to_the_page():
     assert len(image.get_data()) < 1_500_000
 
 
-def _ctm_where(page, reader, wanted) -> np.ndarray:
-    """The current transformation matrix in force at the first operation ``wanted(operands, operator)`` accepts."""
+def _operations_with_ctm(page, reader):
+    """(operands, operator, current transformation matrix) of every drawing operation on the page."""
     ctm = np.eye(3)
     stack = []
     for args, op in ContentStream(page.get_contents(), reader).operations:
@@ -162,7 +162,14 @@ def _ctm_where(page, reader, wanted) -> np.ndarray:
         elif op == b"cm":
             a, b, c, d, e, f = (float(v) for v in args)
             ctm = np.array([[a, b, 0], [c, d, 0], [e, f, 1]]) @ ctm  # PDF 32000-1:2008, 8.3.4
-        elif wanted(args, op):
+        else:
+            yield args, op, ctm
+
+
+def _ctm_where(page, reader, wanted) -> np.ndarray:
+    """The current transformation matrix in force at the first operation ``wanted(operands, operator)`` accepts."""
+    for args, op, ctm in _operations_with_ctm(page, reader):
+        if wanted(args, op):
             return ctm
     raise AssertionError("the operation is not on the page")
 
@@ -392,6 +399,65 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     summary = signed[0]
     assert " ".join(comment.split()) in " ".join(summary.split())
     assert summary.index("sheet 2") < summary.index("Parts (rejected first")
+
+
+def _text_lines_with_baselines(page) -> list[tuple[str, float]]:
+    """(text, baseline y in page space) of every text-showing operation on the page."""
+    lines: list[tuple[str, float]] = []
+
+    def visit(text, cm, tm, font, size):
+        if text.strip():
+            # PDF 32000-1:2008, 9.4.4: text space to page space is Tm x CTM
+            lines.append((text.strip(), tm[4] * cm[1] + tm[5] * cm[3] + cm[5]))
+
+    page.extract_text(visitor_text=visit)
+    return lines
+
+
+def _rects(page, reader) -> list[tuple[float, float, float, float]]:
+    """(x, y, w, h) of every ``re`` drawn with the identity transformation (the report's frames)."""
+    return [
+        tuple(float(v) for v in args)
+        for args, op, ctm in _operations_with_ctm(page, reader)
+        if op == b"re" and np.allclose(ctm, np.eye(3))
+    ]
+
+
+def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_inside():
+    parts = batch_of_three()
+    # invented comment: Japanese for "checked" (outside Latin-1), then enough words to wrap onto several rows
+    comment = "検査済み: panel 0002 re-brushed, é and € kept; " + "checked against drawing LW-220 sheet 2 " * 6
+    sign = SignOff(
+        "Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment,
+        record_sha256="cd" * 32, report_sha256="ef" * 32,
+    )
+    reader = PdfReader(io.BytesIO(render_report(parts, [make_pixels()] * 3, report_id="F", generated_at=WHEN, signoff=sign)))
+    page = reader.pages[0]
+    text = page.extract_text()
+    assert "Covers report" in text and "SHA-256 " + "ef" * 32 in text
+    # WinAnsiEncoding (PDF 32000-1:2008, Annex D.2) holds é and €, not the kana/kanji: those print as '?'
+    assert "■" not in text
+    assert "????: panel 0002 re-brushed, é and € kept;" in " ".join(text.split())
+    assert "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)" in text
+    lines = _text_lines_with_baselines(page)
+    title_y = next(y for t, y in lines if t == "SIGN-OFF")
+    # the frame drawn around the title: its top edge 15 pt above the title's baseline (the block's own layout)
+    (box,) = [r for r in _rects(page, reader) if abs(r[1] + r[3] - (title_y + 15)) < 0.01]
+    bottom, top = box[1], box[1] + box[3]
+    comment_rows = [y for t, y in lines if "sheet 2" in t or "characters outside Latin-1" in t]
+    assert len(comment_rows) >= 3  # the comment wrapped, and the note follows it
+    # a 7.5 pt Helvetica descender reaches ~1.6 pt below the baseline (AFM descender -207/1000)
+    assert all(bottom + 1.6 < y < top for y in comment_rows)
+    parts_title_y = next(y for t, y in lines if t == "Parts")
+    assert parts_title_y < bottom
+
+
+def test_printable_text_replaces_only_what_the_report_font_cannot_show():
+    from surfinspect.report import printable_text
+
+    # reference: Python's cp1252 codec, the Windows Latin-1 set of PDF's WinAnsiEncoding (PDF 32000-1:2008, Annex D.2)
+    assert printable_text("Müller – 5 € ‰") == ("Müller – 5 € ‰", False)
+    assert printable_text("李 Wei\x07") == ("? Wei?", True)
 
 
 def test_not_inspected_parts_are_counted_listed_and_paged():

@@ -108,6 +108,8 @@ def test_key_files_round_trip_with_owner_only_mode(tmp_path):
     with pytest.raises(InputError, match="file exists; a key file is never overwritten"):
         signing.write_key_pair(path, "R. OSTERMANN")
     assert [p.name for p in sorted(tmp_path.iterdir())] == ["ostermann.key", "ostermann.key.pub"]
+    with pytest.raises(InputError, match=r"^--out .*: is a folder \(allowed: a new file name for the private key\)$"):
+        signing.write_key_pair(tmp_path, "R. OSTERMANN")
 
 
 def test_passphrase_protected_key(tmp_path):

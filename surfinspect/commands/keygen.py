@@ -6,6 +6,7 @@ import argparse
 
 from .. import signing
 from ..console import Console
+from ._checks import check_output_file
 
 HELP = "make an Ed25519 key pair for signing batch reports off"
 
@@ -19,6 +20,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    check_output_file("--out", args.out)
     key = signing.write_key_pair(args.out, args.name, passphrase=signing.passphrase_from_env(args.passphrase_env))
     protection = "passphrase-protected" if args.passphrase_env else "not passphrase-protected"
     console.info(f"private key: {args.out} (readable by its owner only, {protection})")

@@ -1,18 +1,29 @@
-"""``surfinspect show``: list an archive's batches, their verdict counts and sign-off state."""
+"""``surfinspect show``: list an archive's batches, their verdict counts and sign-off state.
+
+With ``--batch-id ID --out DIR`` it also copies that batch's files out of the
+archive under readable names (the archive keeps them as objects named by
+their hash, without a suffix): ``report.pdf``, ``report.signed-N.pdf``,
+``regions.csv`` and each part's JSON and overlay.
+"""
 
 from __future__ import annotations
 
 import argparse
 
-from .. import archive
+from .. import archive, batch
 from ..console import Console
+from ..errors import InputError
+from ..fsutil import ensure_output_dir
 
-HELP = "list the batches in an archive with their verdict counts and sign-offs"
+HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
     parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
+    parser.add_argument(
+        "--out", metavar="DIR", help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named"
+    )
 
 
 def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
@@ -24,11 +35,17 @@ def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    if args.out and args.batch_id is None:
+        raise InputError("--out: needs --batch-id (the batch whose files to copy out)")
     with archive.Archive(args.archive) as arc:
         if args.batch_id is None:
             _show_batches(arc, console)
-        else:
-            _show_batch(arc, args.batch_id, console)
+            return 0
+        _show_batch(arc, args.batch_id, console)
+        if args.out:
+            out = ensure_output_dir(args.out, "--out")
+            written = batch.export_batch(arc, args.batch_id, out)
+            console.info(f"{len(written)} file(s) of batch {args.batch_id} copied to {out}")
     return 0
 
 
@@ -69,7 +86,10 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
                  f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}")
     console.info(", ".join(f"{n} {v}" for v, n in counts.items() if n) or "no parts")
     if b.report_sha256:
-        console.info(f"report {arc.object_path(b.report_sha256).relative_to(arc.root)}")
+        console.info(
+            f"report {arc.object_path(b.report_sha256).relative_to(arc.root)} "
+            "(a PDF stored under its hash; --out DIR copies it out as report.pdf)"
+        )
     rows = []
     for p in parts:
         note = p.error or ""
