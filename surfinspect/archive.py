@@ -42,8 +42,8 @@ import enum
 import json
 import os
 import shutil
-import sqlite3
 import socket
+import sqlite3
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
@@ -300,7 +300,9 @@ class Archive:
         existed = index.is_file() and index.stat().st_size > 0
         if not existed and not index.exists():
             if not create:
-                raise InputError(f"{self.root}: not a surfinspect archive (no {INDEX_NAME}; run `surfinspect batch` first)")
+                raise InputError(
+                    f"{self.root}: not a surfinspect archive (no {INDEX_NAME}; run `surfinspect batch` first)"
+                )
             ensure_output_dir(self.root, "--archive")
         try:
             self._db = sqlite3.connect(index, timeout=BUSY_TIMEOUT_S, isolation_level=None)
@@ -326,7 +328,9 @@ class Archive:
         try:
             (self.root / OBJECTS_DIR).mkdir(parents=True, exist_ok=True)
         except OSError as exc:
-            raise InputError(f"--archive {self.root}: cannot make its {OBJECTS_DIR} folder ({exc.strerror or exc})") from None
+            raise InputError(
+                f"--archive {self.root}: cannot make its {OBJECTS_DIR} folder ({exc.strerror or exc})"
+            ) from None
 
     def _create_schema(self) -> None:
         try:
@@ -392,7 +396,9 @@ class Archive:
     def _store_file(self, path: Path, expected_sha256: str | None) -> str:
         sha = sha256_file(path)
         if expected_sha256 is not None and sha != expected_sha256:
-            raise InputError(f"{path}: the file changed while the batch ran (hash {sha[:12]}…, planned {expected_sha256[:12]}…)")
+            raise InputError(
+                f"{path}: the file changed while the batch ran (hash {sha[:12]}…, planned {expected_sha256[:12]}…)"
+            )
         target = self.object_path(sha)
         if not target.exists():
             with atomic_path(target, mode=_OBJECT_MODE) as tmp:
@@ -510,7 +516,17 @@ class Archive:
                 started = utc_now()
                 db.execute(
                     "INSERT INTO batches VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, NULL, NULL, NULL, NULL)",
-                    (batch_id, recipe_name, recipe_revision, recipe_sha256, operator, station, len(parts), set_sha, started),
+                    (
+                        batch_id,
+                        recipe_name,
+                        recipe_revision,
+                        recipe_sha256,
+                        operator,
+                        station,
+                        len(parts),
+                        set_sha,
+                        started,
+                    ),
                 )
                 db.executemany(
                     "INSERT INTO parts VALUES (?, ?, ?, ?, NULL, NULL, NULL, NULL, NULL)",
@@ -636,7 +652,9 @@ class Archive:
     def part(self, batch_id: str, part_key: str) -> PartRow:
         """One planned part; an :class:`InputError` when the batch does not plan it."""
         rows = _rows(
-            self._db.execute(f"SELECT {_PART_COLS} FROM parts WHERE batch_id = ? AND part_key = ?", (batch_id, part_key)),
+            self._db.execute(
+                f"SELECT {_PART_COLS} FROM parts WHERE batch_id = ? AND part_key = ?", (batch_id, part_key)
+            ),
             PartRow,
         )
         if not rows:
@@ -719,9 +737,12 @@ class Archive:
         edition_sha = self._store_bytes(signed_report_pdf)
         with self._write() as db:
             self._catalogue(db, edition_sha, len(signed_report_pdf), "application/pdf")
-            number = 1 + db.execute(
-                "SELECT COALESCE(MAX(signoff_no), 0) FROM signatures WHERE batch_id = ?", (batch_id,)
-            ).fetchone()[0]
+            number = (
+                1
+                + db.execute(
+                    "SELECT COALESCE(MAX(signoff_no), 0) FROM signatures WHERE batch_id = ?", (batch_id,)
+                ).fetchone()[0]
+            )
             db.execute(
                 "INSERT INTO signatures VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 (
@@ -799,9 +820,18 @@ def _index_rows_of(result: Mapping[str, Any]) -> tuple[str, str | None, list[tup
     if schema == ERROR_SCHEMA:
         return ERROR_VERDICT, str(result.get("error", "")), []
     if schema != RESULT_SCHEMA:
-        raise ValueError(f"schema: unknown result schema (got {schema!r}, allowed {RESULT_SCHEMA!r} or {ERROR_SCHEMA!r})")
+        raise ValueError(
+            f"schema: unknown result schema (got {schema!r}, allowed {RESULT_SCHEMA!r} or {ERROR_SCHEMA!r})"
+        )
     regions = [
-        (r["name"], r["verdict"], r.get("lay_deg"), r.get("deviation_deg"), r.get("coherence"), r.get("defect_area_fraction"))
+        (
+            r["name"],
+            r["verdict"],
+            r.get("lay_deg"),
+            r.get("deviation_deg"),
+            r.get("coherence"),
+            r.get("defect_area_fraction"),
+        )
         for r in result["regions"]
     ]
     return result["verdict"], None, regions
@@ -940,7 +970,9 @@ class _Verifier:
             if recomputed != sha:
                 origin = _original_position(seq, at, kind, b, p, details, prev, sha)
                 if origin is not None:
-                    self.fail(f"audit trail: the event at position {seq} ({kind}) was recorded as event {origin}: events were reordered")
+                    self.fail(
+                        f"audit trail: the event at position {seq} ({kind}) was recorded as event {origin}: events were reordered"
+                    )
                 else:
                     self.fail(f"audit trail: event {seq} ({kind}) does not match its own hash: its content was altered")
             expected_seq, prev_sha, prev_seq = seq + 1, sha, seq
@@ -953,7 +985,9 @@ class _Verifier:
                 f"event(s) {last + 1}–{length} were removed from the end"
             )
         elif last > length:
-            self.fail(f"audit trail: it holds {last} events but the index records only {length} (events were added behind its back)")
+            self.fail(
+                f"audit trail: it holds {last} events but the index records only {length} (events were added behind its back)"
+            )
         elif rows and head != prev_sha:
             self.fail("audit trail: the last event's hash does not match the chain head recorded in the index (meta)")
 
@@ -967,8 +1001,11 @@ class _Verifier:
             if sha:
                 refs.append((sha, f"{label} of batch {batch.batch_id!r}"))
         for p in parts:
-            for label, sha in (("image", p.image_sha256 if p.is_done else None),
-                               ("result", p.result_sha256), ("overlay", p.overlay_sha256)):
+            for label, sha in (
+                ("image", p.image_sha256 if p.is_done else None),
+                ("result", p.result_sha256),
+                ("overlay", p.overlay_sha256),
+            ):
                 if sha:
                     refs.append((sha, f"{label} of part {p.part_key!r} in batch {batch.batch_id!r}"))
         for s in self.archive.signoffs(batch.batch_id):
@@ -979,7 +1016,11 @@ class _Verifier:
                 self.fail(f"stored file {sha[:12]}… ({what}) is missing from the file catalogue")
             if not self.file_intact(sha):
                 path = self.archive.object_path(sha).relative_to(self.archive.root)
-                state = "is missing" if not self.archive.object_path(sha).exists() else "has changed (its content no longer matches its hash)"
+                state = (
+                    "is missing"
+                    if not self.archive.object_path(sha).exists()
+                    else "has changed (its content no longer matches its hash)"
+                )
                 self.fail(f"stored file {path} ({what}) {state}")
 
     def file_intact(self, sha: str) -> bool:
@@ -1013,7 +1054,9 @@ class _Verifier:
                 self.fail(f"part {key!r} in batch {bid!r} was recorded {len(records)} times in the audit trail")
             part = by_key.get(key)
             if part is None or not part.is_done:
-                self.fail(f"part {key!r} in batch {bid!r}: the audit trail records it inspected, but the index does not hold its result")
+                self.fail(
+                    f"part {key!r} in batch {bid!r}: the audit trail records it inspected, but the index does not hold its result"
+                )
                 continue
             d = records[-1]
             if d.get("result_sha256") != part.result_sha256 or d.get("verdict") != part.verdict:
@@ -1023,7 +1066,9 @@ class _Verifier:
                     f"with verdict {d.get('verdict')!r}"
                 )
             if d.get("overlay_sha256", "") != (part.overlay_sha256 or ""):
-                self.fail(f"part {key!r} in batch {bid!r}: the overlay in the index is not the one the audit trail recorded")
+                self.fail(
+                    f"part {key!r} in batch {bid!r}: the overlay in the index is not the one the audit trail recorded"
+                )
         for p in parts:
             if p.is_done and p.part_key not in inspected:
                 self.fail(f"part {p.part_key!r} in batch {bid!r} has no 'part inspected' event in the audit trail")
@@ -1031,9 +1076,10 @@ class _Verifier:
         if batch.is_finished:
             if not written:
                 self.fail(f"batch {bid!r} is marked finished but the audit trail has no 'report written' event for it")
-            elif written[-1][4].get("report_sha256") != batch.report_sha256 or written[-1][4].get(
-                "regions_csv_sha256"
-            ) != batch.regions_csv_sha256:
+            elif (
+                written[-1][4].get("report_sha256") != batch.report_sha256
+                or written[-1][4].get("regions_csv_sha256") != batch.regions_csv_sha256
+            ):
                 self.fail(f"batch {bid!r}: the report or CSV in the index is not the one the audit trail recorded")
         elif written:
             self.fail(f"batch {bid!r}: the audit trail records its report, but the index shows the batch unfinished")
@@ -1047,13 +1093,19 @@ class _Verifier:
                     f"sign-off #{no} of batch {bid!r} by {d.get('signer_name')} ({d.get('meaning')}), recorded in "
                     f"audit event {seq}, is missing from the index (its sign-off row was deleted)"
                 )
-            elif row.record_sha256 != d.get("record_sha256") or sha256_bytes(_unhex(row.signature_hex)) != d.get(
-                "signature_sha256"
-            ) or row.signed_report_sha256 != d.get("signed_report_sha256"):
-                self.fail(f"sign-off #{no} of batch {bid!r} in the index differs from the one recorded in audit event {seq}")
+            elif (
+                row.record_sha256 != d.get("record_sha256")
+                or sha256_bytes(_unhex(row.signature_hex)) != d.get("signature_sha256")
+                or row.signed_report_sha256 != d.get("signed_report_sha256")
+            ):
+                self.fail(
+                    f"sign-off #{no} of batch {bid!r} in the index differs from the one recorded in audit event {seq}"
+                )
         expected_count = max((d.get("signoffs_in_batch", 0) for *_, d in signed), default=0)
         if len(rows) != expected_count:
-            self.fail(f"batch {bid!r}: the index holds {len(rows)} sign-off(s), the audit trail recorded {expected_count}")
+            self.fail(
+                f"batch {bid!r}: the index holds {len(rows)} sign-off(s), the audit trail recorded {expected_count}"
+            )
         recorded_numbers = {d.get("signoff_no") for *_, d in signed}
         for no in sorted(set(rows) - recorded_numbers):
             self.fail(f"sign-off #{no} of batch {bid!r} in the index was never recorded in the audit trail")
@@ -1067,15 +1119,23 @@ class _Verifier:
             result = json.loads(self.archive.read_object(p.result_sha256))
             where = f"part {p.part_key!r} in batch {bid!r}"
             if result.get("image", {}).get("sha256") != p.image_sha256:
-                self.fail(f"{where}: its result names image {str(result.get('image', {}).get('sha256'))[:12]}… but the index links image {str(p.image_sha256)[:12]}…")
+                self.fail(
+                    f"{where}: its result names image {str(result.get('image', {}).get('sha256'))[:12]}… but the index links image {str(p.image_sha256)[:12]}…"
+                )
             if result.get("schema") == ERROR_SCHEMA:
                 if p.verdict != ERROR_VERDICT:
-                    self.fail(f"{where}: the index says verdict {p.verdict!r}, the stored record says the part could not be inspected")
+                    self.fail(
+                        f"{where}: the index says verdict {p.verdict!r}, the stored record says the part could not be inspected"
+                    )
                 continue
             if result.get("recipe", {}).get("sha256") != batch.recipe_sha256:
-                self.fail(f"{where}: its result was made with recipe {str(result.get('recipe', {}).get('sha256'))[:12]}…, not the batch's recipe {batch.recipe_sha256[:12]}…")
+                self.fail(
+                    f"{where}: its result was made with recipe {str(result.get('recipe', {}).get('sha256'))[:12]}…, not the batch's recipe {batch.recipe_sha256[:12]}…"
+                )
             if result.get("verdict") != p.verdict:
-                self.fail(f"{where}: the index says verdict {p.verdict!r}, the stored result says {result.get('verdict')!r}")
+                self.fail(
+                    f"{where}: the index says verdict {p.verdict!r}, the stored result says {result.get('verdict')!r}"
+                )
             stored = {r[0]: r for r in _index_rows_of(result)[2]}
             indexed = {
                 row[0]: row
@@ -1091,7 +1151,9 @@ class _Verifier:
                 elif name not in stored:
                     self.fail(f"region {name!r} of {where} is in the index but not in the stored result")
                 elif indexed[name][1] != stored[name][1]:
-                    self.fail(f"region {name!r} of {where}: the index says verdict {indexed[name][1]!r}, the stored (signed) result says {stored[name][1]!r}")
+                    self.fail(
+                        f"region {name!r} of {where}: the index says verdict {indexed[name][1]!r}, the stored (signed) result says {stored[name][1]!r}"
+                    )
                 elif tuple(indexed[name]) != tuple(stored[name]):
                     self.fail(f"region {name!r} of {where}: the figures in the index differ from the stored result")
 
@@ -1128,8 +1190,14 @@ class _Verifier:
             if record.get("report_sha256") != batch.report_sha256:
                 self.fail(f"{who}: the batch report in the index is not the one that was signed")
             if record.get("results_sha256") != results:
-                changed = sorted(k for k in set(results) | set(record.get("results_sha256", {})) if results.get(k) != record.get("results_sha256", {}).get(k))
-                self.fail(f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})")
+                changed = sorted(
+                    k
+                    for k in set(results) | set(record.get("results_sha256", {}))
+                    if results.get(k) != record.get("results_sha256", {}).get(k)
+                )
+                self.fail(
+                    f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})"
+                )
             n, head = record.get("audit_events"), record.get("audit_head_sha256")
             if n and event_sha.get(n) != head:
                 self.fail(f"{who}: audit event {n}, the trail's head when it was signed, is missing or was rewritten")

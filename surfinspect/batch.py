@@ -44,8 +44,8 @@ from .errors import InputError
 from .fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
 from .imaging import read_image
 from .recipe import Recipe, load_recipe
-from .runner import find_images, inspect_path, output_stems
 from .results import PartVerdict, SignOff
+from .runner import find_images, inspect_path, output_stems
 
 __all__ = [
     "BatchConfig",
@@ -199,7 +199,9 @@ def _exit_with_batch(batch_alive) -> None:
     os._exit(_EXIT_PARENT_GONE)
 
 
-def _inspect_one(position: int, part_key: str, path: str, name: str, exit_at: str | None, hold_from: str | None) -> dict:
+def _inspect_one(
+    position: int, part_key: str, path: str, name: str, exit_at: str | None, hold_from: str | None
+) -> dict:
     if exit_at == str(position + 1):
         os._exit(70)
     if hold_from is not None and position + 1 >= int(hold_from):
@@ -317,7 +319,9 @@ class _Recorder:
 
     def _record(self, key: str, result_json: bytes, overlay_png: bytes | None) -> None:
         image_path = self.paths[key] if self.hashes[key] else None
-        row = self.arc.record_part(self.batch_id, key, result_json=result_json, image_path=image_path, overlay_png=overlay_png)
+        row = self.arc.record_part(
+            self.batch_id, key, result_json=result_json, image_path=image_path, overlay_png=overlay_png
+        )
         if row is None:
             return  # recorded meanwhile by another run of the same batch
         self.recorded += 1
@@ -325,7 +329,9 @@ class _Recorder:
             self.on_part(PartDone(key, row.verdict, self.done_before + self.recorded, self.total, row.error))
 
 
-def _inspect_pending(recipe: Recipe, tasks: Sequence[tuple[int, str]], recorder: _Recorder, *, jobs: int | None) -> str | None:
+def _inspect_pending(
+    recipe: Recipe, tasks: Sequence[tuple[int, str]], recorder: _Recorder, *, jobs: int | None
+) -> str | None:
     """Inspect (position, part key) tasks in a process pool; returns why it stopped early, or None.
 
     Any exception in this process (a signal turned into one, an archive that
@@ -405,7 +411,9 @@ def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:
 def _finish(arc: archive_mod.Archive, batch_id: str) -> archive_mod.BatchRow:
     generated_at = archive_mod.utc_now()
     report = render_batch_report(arc, batch_id, generated_at=generated_at)
-    return arc.finish_batch(batch_id, report_pdf=report, regions_csv=regions_csv(arc, batch_id), report_generated_at=generated_at)
+    return arc.finish_batch(
+        batch_id, report_pdf=report, regions_csv=regions_csv(arc, batch_id), report_generated_at=generated_at
+    )
 
 
 # ------------------------------------------------------------------- outputs
@@ -481,9 +489,13 @@ def render_batch_report(
     batch = arc.batch(batch_id)
     stored = _stored_parts(arc, batch_id)
     judged = [(p, r) for p, r in stored if p.verdict != archive_mod.ERROR_VERDICT]
-    failed = [(p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT]
+    failed = [
+        (p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT
+    ]
     if not judged:
-        raise InputError(f"batch {batch_id!r}: none of its {len(stored)} image(s) could be inspected; no report is made")
+        raise InputError(
+            f"batch {batch_id!r}: none of its {len(stored)} image(s) could be inspected; no report is made"
+        )
     stamp = generated_at or batch.report_generated_at
     return render_report(
         [results.part_from_dict(r) for _, r in judged],

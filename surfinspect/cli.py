@@ -34,7 +34,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
     # -q also after the command name; SUPPRESS keeps the sub-parser from resetting a -q given before it
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print nothing but errors")
+    common.add_argument(
+        "-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print nothing but errors"
+    )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
         try:

@@ -458,8 +458,7 @@ def _fit_sides(grey, guide, polarity, contrast, half_width):
         sampled += len(points)
         if len(points) < 10:
             raise DatumError(
-                "outline is not rectangular: a side has too few edge points "
-                f"({len(points)}) for a straight line"
+                f"outline is not rectangular: a side has too few edge points ({len(points)}) for a straight line"
             )
         line, inlier_residuals = _robust_line(points)
         lines.append(line)

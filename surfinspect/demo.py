@@ -75,7 +75,9 @@ def plate_on_fixture(
     corners = np.array([to_img(0, 0), to_img(length, 0), to_img(length, width), to_img(0, width)])
     k = 8
     big = np.zeros((rows * k, cols * k), np.uint8)
-    cv2.fillPoly(big, [np.round(corners * k * 16).astype(np.int32).reshape(-1, 1, 2)], 255, lineType=cv2.LINE_8, shift=4)
+    cv2.fillPoly(
+        big, [np.round(corners * k * 16).astype(np.int32).reshape(-1, 1, 2)], 255, lineType=cv2.LINE_8, shift=4
+    )
     alpha = cv2.resize(big, (cols, rows), interpolation=cv2.INTER_AREA).astype(np.float32) / 255.0
 
     brushed = synth.brushed_texture(shape, band_lay_deg + skew_deg, seed=seed, along_px=30.0)

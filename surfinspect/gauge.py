@@ -131,7 +131,9 @@ def _sniff_delimiter(header_line: str) -> str:
 
 def _raise_all(problems: list[str]) -> None:
     if problems:
-        raise InputError(problems[0] if len(problems) == 1 else f"{problems[0]} (and {len(problems) - 1} more)", problems)
+        raise InputError(
+            problems[0] if len(problems) == 1 else f"{problems[0]} (and {len(problems) - 1} more)", problems
+        )
 
 
 def read_study_csv(path: str | Path, *, measure: Measure | None = None) -> StudyTable:
@@ -316,8 +318,13 @@ def _balanced_layout(name: str, rows: list[tuple[int, str, str, str, str]]) -> _
         first_line_of_part.setdefault(part, line)
         key = (part, appraiser, trial)
         if key in seen:
-            repeated.append((line, f"part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
-                             "(allowed: one value per part, appraiser and trial)"))
+            repeated.append(
+                (
+                    line,
+                    f"part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
+                    "(allowed: one value per part, appraiser and trial)",
+                )
+            )
             continue
         seen[key] = line
         lines_of_cell.setdefault((part, appraiser), []).append((line, trial))
@@ -339,36 +346,56 @@ def _balanced_layout(name: str, rows: list[tuple[int, str, str, str, str]]) -> _
         if appraiser not in study_appraisers:
             extra_rows += len(cell_rows)
             where = ", ".join(str(line) for line, _ in cell_rows)
-            extra_appraisers.append((cell_rows[0][0], (
-                f"part {part!r}, appraiser {appraiser!r}: an appraiser the other parts do not have "
-                f"({_plural(len(cell_rows), 'row')}: {'line' if len(cell_rows) == 1 else 'lines'} {where}; "
-                f"the study's appraisers: {shown_appraisers})"
-            )))
+            extra_appraisers.append(
+                (
+                    cell_rows[0][0],
+                    (
+                        f"part {part!r}, appraiser {appraiser!r}: an appraiser the other parts do not have "
+                        f"({_plural(len(cell_rows), 'row')}: {'line' if len(cell_rows) == 1 else 'lines'} {where}; "
+                        f"the study's appraisers: {shown_appraisers})"
+                    ),
+                )
+            )
             continue
         for line, trial in cell_rows:
             if trial not in study_trials:
                 extra_rows += 1
-                extra_trials.append((line, (
-                    f"part {part!r}, appraiser {appraiser!r}, trial {trial!r}: a trial the other cells do not have "
-                    f"(the study's trials: {shown_trials})"
-                )))
+                extra_trials.append(
+                    (
+                        line,
+                        (
+                            f"part {part!r}, appraiser {appraiser!r}, trial {trial!r}: a trial the other cells do not have "
+                            f"(the study's trials: {shown_trials})"
+                        ),
+                    )
+                )
         absent = [t for t in trials if t in study_trials and t not in {tr for _, tr in cell_rows}]
         if absent:
             missing_values += len(absent)
-            missing_trials.append((cell_rows[0][0], (
-                f"part {part!r}, appraiser {appraiser!r} has no trial {', '.join(absent)} "
-                f"(trials in the study: {shown_trials})"
-            )))
+            missing_trials.append(
+                (
+                    cell_rows[0][0],
+                    (
+                        f"part {part!r}, appraiser {appraiser!r} has no trial {', '.join(absent)} "
+                        f"(trials in the study: {shown_trials})"
+                    ),
+                )
+            )
     for part, line in first_line_of_part.items():
         absent = [a for a in appraisers if a in study_appraisers and a not in appraisers_of_part[part]]
         if absent:
             missing_values += len(absent) * len(study_trials)
             present = [a for a in appraisers if a in study_appraisers and a in appraisers_of_part[part]]
             by = f"by appraiser(s) {', '.join(present)} only" if present else "by none of the study's appraisers"
-            missing_appraisers.append((line, (
-                f"part {part!r} is measured {by}; missing {', '.join(absent)} "
-                "(a crossed study needs every part measured by every appraiser)"
-            )))
+            missing_appraisers.append(
+                (
+                    line,
+                    (
+                        f"part {part!r} is measured {by}; missing {', '.join(absent)} "
+                        "(a crossed study needs every part measured by every appraiser)"
+                    ),
+                )
+            )
 
     # Categories in this order, each by line: what is wrong with a part before what is wrong with a cell.
     balance = [
@@ -526,7 +553,10 @@ def _anova_tables(y: np.ndarray) -> tuple[AnovaTable, AnovaTable]:
 
     def effects(ms_reference: float, df_reference: int) -> tuple[AnovaRow, AnovaRow]:
         rows = []
-        for source, df, ss, ms in (("part", df_part, ss_part, ms_part), ("appraiser", df_appraiser, ss_appraiser, ms_appraiser)):
+        for source, df, ss, ms in (
+            ("part", df_part, ss_part, ms_part),
+            ("appraiser", df_appraiser, ss_appraiser, ms_appraiser),
+        ):
             f = _ratio(ms, ms_reference)
             rows.append(AnovaRow(source, df, ss, ms, f, _p_value(f, df, df_reference)))
         return tuple(rows)
@@ -538,7 +568,11 @@ def _anova_tables(y: np.ndarray) -> tuple[AnovaTable, AnovaTable]:
         (
             *effects(ms_interaction, df_interaction),  # random effects: tested against the interaction
             AnovaRow(
-                "part x appraiser", df_interaction, ss_interaction, ms_interaction, f_interaction,
+                "part x appraiser",
+                df_interaction,
+                ss_interaction,
+                ms_interaction,
+                f_interaction,
                 _p_value(f_interaction, df_interaction, df_error),
             ),
             AnovaRow("repeatability", df_error, ss_error, ms_error, None, None),
@@ -652,7 +686,9 @@ def gauge_rr(
     part_labels = tuple(parts) if parts is not None else tuple(str(i + 1) for i in range(p))
     appraiser_labels = tuple(appraisers) if appraisers is not None else tuple(chr(ord("A") + j) for j in range(o))
     if len(part_labels) != p or len(appraiser_labels) != o:
-        raise InputError(f"{where}labels: {len(part_labels)} parts and {len(appraiser_labels)} appraisers for values of shape {y.shape}")
+        raise InputError(
+            f"{where}labels: {len(part_labels)} parts and {len(appraiser_labels)} appraisers for values of shape {y.shape}"
+        )
 
     full, pooled = _anova_tables(y)
     if full.row("total").ss <= 0:
@@ -1083,7 +1119,9 @@ _SERIES_MARKERS = ("circle", "square", "triangle", "diamond", "cross")
 _SERIES_GREYS = (0.10, 0.35, 0.55, 0.25, 0.45)
 
 
-def _draw_table(c, x: float, y: float, header: Sequence[str], rows: Sequence[Sequence[str]], widths: Sequence[float]) -> float:
+def _draw_table(
+    c, x: float, y: float, header: Sequence[str], rows: Sequence[Sequence[str]], widths: Sequence[float]
+) -> float:
     """Draw a ruled text table with its top-left at (x, y) in points; return the y below it."""
     line_h = 12.0
     c.setFont("Helvetica-Bold", 8)
@@ -1217,7 +1255,7 @@ def _draw_range_chart(c, study: GaugeStudy, box) -> None:
 def _short_labels(labels: Sequence[str], width: int = 8) -> list[str]:
     """Labels without their common prefix (``LW-220-01`` -> ``01``), cut to ``width`` characters."""
     prefix = os.path.commonprefix(list(labels)) if len(labels) > 1 else ""
-    return [(label[len(prefix):] or label)[-width:] for label in labels]
+    return [(label[len(prefix) :] or label)[-width:] for label in labels]
 
 
 def _draw_means_chart(c, study: GaugeStudy, box) -> None:
@@ -1329,12 +1367,20 @@ def write_gauge_pdf(study: GaugeStudy, path: str | Path, *, title: str = "Gauge 
         c.setFont("Helvetica-Bold", 9)
         c.drawString(left, y, "Variance components")
         y = _draw_table(
-            c, left, y - 4, ("Source", *COMPONENT_HEADER[1:4], "% total var.", "% tolerance"),
-            component_text_rows(study), (110, 70, 65, 70, 65, 65),
+            c,
+            left,
+            y - 4,
+            ("Source", *COMPONENT_HEADER[1:4], "% total var.", "% tolerance"),
+            component_text_rows(study),
+            (110, 70, 65, 70, 65, 65),
         )
         c.setFont("Helvetica", 7)
-        c.drawString(left, y - 9, "% total variation = sigma / sigma(TV); % tolerance = 6 sigma / tolerance width; "
-                     "ndc = floor(1.41 PV / GRR).")
+        c.drawString(
+            left,
+            y - 9,
+            "% total variation = sigma / sigma(TV); % tolerance = 6 sigma / tolerance width; "
+            "ndc = floor(1.41 PV / GRR).",
+        )
         y -= 24
 
         chart_h = min(120.0, (y - 34 * mm) / 2 - 30)

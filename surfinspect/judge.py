@@ -340,7 +340,9 @@ def _judge_directional(region: Region, c: _Cells, coherence: float, v: _Verdict)
     expected = region.lay_deg[0]
     v.deviation = wrap_deviation(v.lay, expected)
     if abs(v.deviation) > region.tolerance_deg:
-        v.fail(f"lay {_fmt(v.lay)} is {abs(v.deviation):.1f}° off {_fmt(expected)} (tolerance {region.tolerance_deg:g}°)")
+        v.fail(
+            f"lay {_fmt(v.lay)} is {abs(v.deviation):.1f}° off {_fmt(expected)} (tolerance {region.tolerance_deg:g}°)"
+        )
     if coherence < region.min_coherence:
         v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
     # the scatter of the cells that follow the region's lay; deviating patches are reported apart
@@ -364,7 +366,9 @@ def _judge_centred(region: Region, c: _Cells, centre_px, deviation_cells: np.nda
         v.extra["rms_cell_deviation_deg"] = round(float(np.sqrt(np.mean(deviation_cells[c.clear] ** 2))), 3)
         what = "circles" if region.lay is LayPattern.CIRCULAR else "radii"
         if abs(v.deviation) > region.tolerance_deg:
-            v.fail(f"lay is on average {abs(v.deviation):.1f}° off the {what} about the centre (tolerance {region.tolerance_deg:g}°)")
+            v.fail(
+                f"lay is on average {abs(v.deviation):.1f}° off the {what} about the centre (tolerance {region.tolerance_deg:g}°)"
+            )
     # the summed tensor's coherence is low by design here: judge the cells' mean coherence
     coherence = float(np.average(c.coherence[c.textured], weights=c.energy[c.textured])) if c.textured.any() else 0.0
     v.extra["mean_cell_coherence"] = round(coherence, 4)
@@ -413,11 +417,15 @@ def _judge_nondirectional(region: Region, c: _Cells, cells: CellSums, coherence:
             rayleigh_p=round(rt.p_value, 5),
         )
         if rt.p_value < RAYLEIGH_ALPHA:
-            v.fail(f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})")
+            v.fail(
+                f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})"
+            )
         centres = np.radians((np.arange(cells.bins) + 0.5) * 180.0 / cells.bins)
         fourfold = np.tensordot(cells.hist[c.textured], np.exp(4j * centres), axes=([1], [0]))
         r4 = rayleigh_test(np.degrees(np.angle(fourfold)))
-        v.extra.update(rayleigh_crossed_resultant_length=round(r4.resultant_length, 4), rayleigh_crossed_p=round(r4.p_value, 5))
+        v.extra.update(
+            rayleigh_crossed_resultant_length=round(r4.resultant_length, 4), rayleigh_crossed_p=round(r4.p_value, 5)
+        )
         if r4.p_value < RAYLEIGH_ALPHA:
             a = (r4.mean_deg / 4.0) % 90.0
             v.fail(

@@ -580,7 +580,9 @@ def place_labels(
         return min(max(x, 0.0), max(0.0, width - w)), min(max(y, 0.0), max(0.0, height - h))
 
     def free(x, y, w, h) -> bool:
-        return all(x + w + gap <= a or a + c + gap <= x or y + h + gap <= b or b + d + gap <= y for a, b, c, d in placed)
+        return all(
+            x + w + gap <= a or a + c + gap <= x or y + h + gap <= b or b + d + gap <= y for a, b, c, d in placed
+        )
 
     for x, y, w, h in boxes:
         choice = clamp(x, y, w, h)
@@ -644,16 +646,34 @@ def paint_scene(p: ScenePainter, scene: OverlayScene) -> None:
         with p.clipped_to(r):
             if len(r.expected_glyphs):
                 tick = max(0.8 * regular, 0.5 * STYLE_UNITS["glyph"] * u)
-                p.stroke(r.expected_glyphs, False, PALETTE["expected"], tick, halo=dark, halo_width=tick + 2 * edge, butt=True)
+                p.stroke(
+                    r.expected_glyphs,
+                    False,
+                    PALETTE["expected"],
+                    tick,
+                    halo=dark,
+                    halo_width=tick + 2 * edge,
+                    butt=True,
+                )
             p.stroke(r.glyphs, False, PALETTE["cell"], regular, halo=dark, halo_width=regular + 2 * edge, butt=True)
-            p.stroke(r.deviating_glyphs, False, PALETTE["cell-deviating"], deviating, halo=dark, halo_width=deviating + 2 * edge, butt=True)
+            p.stroke(
+                r.deviating_glyphs,
+                False,
+                PALETTE["cell-deviating"],
+                deviating,
+                halo=dark,
+                halo_width=deviating + 2 * edge,
+                butt=True,
+            )
     for r in scene.regions:
         for m in r.patches:
             p.rectangle(m.bbox_px, PALETTE["patch"], w("patch"), halo=dark, halo_width=w("patch") + 2 * halo)
     for r in scene.regions:
         look = REGION_LOOKS[r.verdict]
         p.stroke(r.holes, True, look.colour, w("hole"), dash=look.dash, halo=dark, halo_width=w("hole") + 2 * halo)
-        p.stroke(r.outlines, True, look.colour, w("outline"), dash=look.dash, halo=dark, halo_width=w("outline") + 2 * halo)
+        p.stroke(
+            r.outlines, True, look.colour, w("outline"), dash=look.dash, halo=dark, halo_width=w("outline") + 2 * halo
+        )
     head_out = max(p.min_arrow_head, w("arrow-head"))
     head = head_out / p.scale
     for r in scene.regions:
@@ -673,7 +693,9 @@ def paint_scene(p: ScenePainter, scene: OverlayScene) -> None:
         arm = 0.9 * head
         cross = [np.array([[cx - arm, cy], [cx + arm, cy]]), np.array([[cx, cy - arm], [cx, cy + arm]])]
         p.stroke(cross, False, PALETTE["expected"], w("frame"), halo=dark, halo_width=w("frame") + 2 * halo)
-        p.circle(r.lay_centre, 0.55 * head_out, PALETTE["expected"], w("frame"), halo=dark, halo_width=w("frame") + 2 * halo)
+        p.circle(
+            r.lay_centre, 0.55 * head_out, PALETTE["expected"], w("frame"), halo=dark, halo_width=w("frame") + 2 * halo
+        )
         text = f"{r.name} centre" + (" (fitted)" if r.lay_centre_fitted else "")
         same = [k for k, (_, at) in enumerate(centre_labels) if math.dist(at, r.lay_centre) < 1.0]
         if same:  # regions about one centre share one label

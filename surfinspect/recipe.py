@@ -223,9 +223,7 @@ class _Reader:
     def unknown(self, m: _Map, allowed: tuple[str, ...], path: str) -> None:
         for key in m:
             if key not in allowed:
-                self.p.add(
-                    m.line_of(key), _join(path, key), f"unknown key (allowed: {', '.join(allowed)})"
-                )
+                self.p.add(m.line_of(key), _join(path, key), f"unknown key (allowed: {', '.join(allowed)})")
 
     def number(self, m: _Map, key: str, path: str, *, lo=None, hi=None, lo_open=False, integer=False):
         v = m[key]
@@ -346,7 +344,11 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
             for i, item in enumerate(ex):
                 where = f"{_join(path, 'exclude')}[{i}]"
                 if not isinstance(item, _Map):
-                    r.p.add(m.line_of("exclude"), where, f"must be a mapping such as {{rect: [x, y, w, h]}} (got {_describe(item)})")
+                    r.p.add(
+                        m.line_of("exclude"),
+                        where,
+                        f"must be a mapping such as {{rect: [x, y, w, h]}} (got {_describe(item)})",
+                    )
                     continue
                 r.unknown(item, SHAPE_KEYS[:3], where)
                 s = _parse_shape(r, item, where, allow_annulus=False)
@@ -364,7 +366,11 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         spelled = m["lay"]
         if not isinstance(spelled, str) or spelled not in LAY_SPELLINGS:
             allowed = ", ".join(LAY_SPELLINGS)
-            r.p.add(m.line_of("lay"), _join(path, "lay"), f"unknown lay pattern (got {_describe(spelled)}, allowed {allowed})")
+            r.p.add(
+                m.line_of("lay"),
+                _join(path, "lay"),
+                f"unknown lay pattern (got {_describe(spelled)}, allowed {allowed})",
+            )
             return None  # what lay_deg must be depends on the pattern: nothing more to check
         pattern, fixed = LAY_SPELLINGS[spelled]
     lay_deg: tuple[float, ...] = ()
@@ -373,10 +379,18 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
     if pattern is LayPattern.DIRECTIONAL:
         if fixed is not None:
             if raw is not None and (not _is_number(raw) or float(raw) % 180 != fixed):
-                r.p.add(m.line_of("lay_deg"), where, f"contradicts lay {m['lay']!r} (got {_describe(raw)}, allowed {fixed:g} or leave it out)")
+                r.p.add(
+                    m.line_of("lay_deg"),
+                    where,
+                    f"contradicts lay {m['lay']!r} (got {_describe(raw)}, allowed {fixed:g} or leave it out)",
+                )
             lay_deg = (fixed,)
         elif raw is None:
-            r.p.add(m.line, where, "missing: a directional region needs lay_deg (allowed 0 <= lay_deg < 180), or give lay: multidirectional, circular, ...")
+            r.p.add(
+                m.line,
+                where,
+                "missing: a directional region needs lay_deg (allowed 0 <= lay_deg < 180), or give lay: multidirectional, circular, ...",
+            )
         elif not _is_number(raw):
             r.p.add(m.line_of("lay_deg"), where, f"must be a number (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
         elif not (0 <= raw < 180):
@@ -398,7 +412,9 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
             else:
                 lay_deg = v
     elif raw is not None:
-        r.p.add(m.line_of("lay_deg"), where, f"not used with lay {m['lay']!r} (got {_describe(raw)}, allowed: leave it out)")
+        r.p.add(
+            m.line_of("lay_deg"), where, f"not used with lay {m['lay']!r} (got {_describe(raw)}, allowed: leave it out)"
+        )
 
     centre = None
     if "centre" in m:
@@ -462,12 +478,18 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         problems.add(doc.line, "revision", "missing (allowed a whole number >= 0)")
     datum = doc.get("datum", "image")
     if datum not in DATUMS:
-        problems.add(doc.line_of("datum"), "datum", f"unknown datum (got {_describe(datum)}, allowed {', '.join(DATUMS)})")
+        problems.add(
+            doc.line_of("datum"), "datum", f"unknown datum (got {_describe(datum)}, allowed {', '.join(DATUMS)})"
+        )
     pixel_size = r.number(doc, "pixel_size_mm", "", lo=0, lo_open=True) if "pixel_size_mm" in doc else None
     camera_rotation = 0.0
     if "camera_rotation_deg" in doc:
         if datum != "image":
-            problems.add(doc.line_of("camera_rotation_deg"), "camera_rotation_deg", "only used with datum: image (the part-edge datum measures the skew)")
+            problems.add(
+                doc.line_of("camera_rotation_deg"),
+                "camera_rotation_deg",
+                "only used with datum: image (the part-edge datum measures the skew)",
+            )
         camera_rotation = r.number(doc, "camera_rotation_deg", "", lo=-45, hi=45) or 0.0
     description = doc.get("description", "")
     if not isinstance(description, str):
@@ -489,7 +511,9 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
     regions: list[Region] = []
     raw_regions = doc.get("regions")
     if not isinstance(raw_regions, list) or not raw_regions:
-        problems.add(doc.line_of("regions"), "regions", f"needs a list of at least one region (got {_describe(raw_regions)})")
+        problems.add(
+            doc.line_of("regions"), "regions", f"needs a list of at least one region (got {_describe(raw_regions)})"
+        )
     else:
         names: set[str] = set()
         for i, item in enumerate(raw_regions):

@@ -423,7 +423,9 @@ def _draw_picture(c: Canvas, jpeg: bytes, scene: OverlayScene, x0: float, y_top:
     painter = _VectorPainter(c, x0, y_top, s, w_pt, h_pt)
     with painter.image_space():
         paint_scene(painter, scene)
-    painter.obstacles = label_obstacles(scene, max(painter.min_arrow_head, STYLE_UNITS["arrow-head"] * painter.unit) / s)
+    painter.obstacles = label_obstacles(
+        scene, max(painter.min_arrow_head, STYLE_UNITS["arrow-head"] * painter.unit) / s
+    )
     painter.set_labels()
     c.setStrokeColor(colors.black)
     c.setLineWidth(0.6)
@@ -434,7 +436,13 @@ def _draw_picture(c: Canvas, jpeg: bytes, scene: OverlayScene, x0: float, y_top:
 
 
 def _draw_rose(
-    c: Canvas, cx: float, cy: float, radius: float, region: RegionResult, expected: Sequence[float], measured: Sequence[float]
+    c: Canvas,
+    cx: float,
+    cy: float,
+    radius: float,
+    region: RegionResult,
+    expected: Sequence[float],
+    measured: Sequence[float],
 ) -> None:
     """Axial rose of the orientation histogram, mirrored to a full circle.
 
@@ -621,7 +629,9 @@ def _figures_text(region: RegionResult, d: Mapping) -> str:
     if "mean_cell_coherence" in extra:
         extra.pop("mean_cell_coherence")
         if region.lay_pattern in _CENTRED:
-            said.append(f"region-summed coherence {format_fixed(d['coherence'], 3)} (not judged: the lay turns across the region)")
+            said.append(
+                f"region-summed coherence {format_fixed(d['coherence'], 3)} (not judged: the lay turns across the region)"
+            )
     found = extra.pop("crossed_lay_deg", None)
     devs = extra.pop("crossed_deviation_deg", None)
     if isinstance(found, list) and isinstance(devs, list):
@@ -656,7 +666,16 @@ def _cell_with_note(text: str, note: str, *, right: bool = True):
 
 
 def _region_table(fig: _PartFigures) -> Table:
-    header = ["Region", "Expected lay", "Tolerance", "Measured lay ± u", "Deviation", "Coherence", "Defect area", "Verdict"]
+    header = [
+        "Region",
+        "Expected lay",
+        "Tolerance",
+        "Measured lay ± u",
+        "Deviation",
+        "Coherence",
+        "Defect area",
+        "Verdict",
+    ]
     rows = [header]
     style = []
     for region, d in zip(fig.part.regions, fig.regions):
@@ -674,7 +693,10 @@ def _region_table(fig: _PartFigures) -> Table:
                 Paragraph(escape(_expected_text(region, d)), _CELL_RIGHT),
                 _tolerance_text(region, d),
                 Paragraph(escape(_measured_text(region, d)), _CELL_RIGHT),
-                _cell_with_note(format_signed_angle(d["deviation_deg"]), _deviation_note(region) if d["deviation_deg"] is not None else ""),
+                _cell_with_note(
+                    format_signed_angle(d["deviation_deg"]),
+                    _deviation_note(region) if d["deviation_deg"] is not None else "",
+                ),
                 _cell_with_note(format_fixed(coherence, 3), coherence_note),
                 _percent(d["defect_area_fraction"]),
                 look.word,
@@ -725,7 +747,11 @@ def _patch_table(fig: _PartFigures) -> Table | None:
 
 def _verdict_sentence(part: PartResult) -> str:
     """One sentence that says why the part got its verdict."""
-    why = [f"{r.name}: {r.reasons[0] if r.reasons else REGION_LOOKS[r.verdict].word.lower()}" for r in part.regions if r.verdict is not RegionVerdict.PASS]
+    why = [
+        f"{r.name}: {r.reasons[0] if r.reasons else REGION_LOOKS[r.verdict].word.lower()}"
+        for r in part.regions
+        if r.verdict is not RegionVerdict.PASS
+    ]
     why = list(part.reasons) + why
     if part.verdict is PartVerdict.ACCEPT:
         n = len(part.regions)
@@ -756,8 +782,16 @@ def _part_header(c: Canvas, y: float, part: PartResult, page_note: str, number: 
     c.drawString(_MARGIN, y - 15, _fit_text(c, part.name + page_note, "Helvetica-Bold", 15, text_w))
     _verdict_badge(c, part.verdict, PAGE_SIZE[0] - _MARGIN - badge_w, y - badge_h, badge_w, badge_h)
     c.setFont("Helvetica", 7.5)
-    c.drawString(_MARGIN, y - 26, _fit_text(c, f"Recipe {part.recipe.name} · revision {part.recipe.revision}", "Helvetica", 7.5, text_w))
-    c.drawString(_MARGIN, y - 35, (f"Part {number} · " if number else "") + f"Inspected {part.inspected_at} · engine {part.engine_version}")
+    c.drawString(
+        _MARGIN,
+        y - 26,
+        _fit_text(c, f"Recipe {part.recipe.name} · revision {part.recipe.revision}", "Helvetica", 7.5, text_w),
+    )
+    c.drawString(
+        _MARGIN,
+        y - 35,
+        (f"Part {number} · " if number else "") + f"Inspected {part.inspected_at} · engine {part.engine_version}",
+    )
 
 
 def _image_lines(part: PartResult) -> str:
@@ -811,7 +845,9 @@ def _picture_height(fig: _PartFigures, header_h: float) -> float:
     return float(min(room, _PICTURE_ROOMY_H))
 
 
-def _layout_part(layout: _Layout, fig: _PartFigures, pixels: np.ndarray | None, bookmark: str, number: str = "") -> None:
+def _layout_part(
+    layout: _Layout, fig: _PartFigures, pixels: np.ndarray | None, bookmark: str, number: str = ""
+) -> None:
     part = fig.part
 
     def header(c: Canvas, y: float) -> None:
@@ -856,7 +892,9 @@ def _no_picture_note(c: Canvas, y: float) -> None:
     c.rect(_MARGIN, y - 36, _FRAME_W, 36, stroke=1, fill=0)
     c.setDash([])
     c.setFont("Helvetica-Oblique", 8)
-    c.drawCentredString(PAGE_SIZE[0] / 2, y - 21, "Picture not supplied to the report: see the overlay PNG beside the result.")
+    c.drawCentredString(
+        PAGE_SIZE[0] / 2, y - 21, "Picture not supplied to the report: see the overlay PNG beside the result."
+    )
 
 
 _FIGURES_PER_ROW = 4
@@ -881,7 +919,11 @@ def _figure_list(fig: _PartFigures) -> list[tuple[str, RegionResult, dict]]:
     out = []
     for region, d in zip(fig.part.regions, fig.regions):
         out.append(("rose", region, d))
-        if region.lay_pattern in _CENTRED and region.verdict is not RegionVerdict.NO_TEXTURE and _cell_deviations(d).size:
+        if (
+            region.lay_pattern in _CENTRED
+            and region.verdict is not RegionVerdict.NO_TEXTURE
+            and _cell_deviations(d).size
+        ):
             out.append(("deviations", region, d))
     return out
 
@@ -1062,7 +1104,10 @@ def printable_text(text: str) -> tuple[str, bool]:
 def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
     """(label, value or None for an empty line, font) of the sign-off block; long comments wrap."""
     if signoff is None:
-        return [(label, None, "Helvetica") for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")]
+        return [
+            (label, None, "Helvetica")
+            for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")
+        ]
     name, name_replaced = printable_text(signoff.signer_name)
     comment, comment_replaced = printable_text(signoff.comment)
     rows = [
@@ -1096,7 +1141,11 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
         c.drawString(_MARGIN + 128, y - 15, "this report carries no sign-off yet; the lines below are left empty.")
     else:
         c.setFont("Helvetica", 7)
-        c.drawString(_MARGIN + 70, y - 15, "Signed electronically; the archive's verify command checks the signature against the record.")
+        c.drawString(
+            _MARGIN + 70,
+            y - 15,
+            "Signed electronically; the archive's verify command checks the signature against the record.",
+        )
     line_y = y - 32
     for label, value, font in _signoff_rows(signoff):
         c.setFont("Helvetica-Bold", _SIGNOFF_TEXT_SIZE)
@@ -1134,7 +1183,12 @@ def _legend(c: Canvas, y: float) -> None:
     line_keys = [
         ("outline", PALETTE["pass"], None, "Region passes (outline solid)"),
         ("outline", PALETTE["fail"], REGION_LOOKS[RegionVerdict.FAIL].dash, "Region fails (outline dashed)"),
-        ("outline", PALETTE["no-texture"], REGION_LOOKS[RegionVerdict.NO_TEXTURE].dash, "No measurable texture (dotted): review"),
+        (
+            "outline",
+            PALETTE["no-texture"],
+            REGION_LOOKS[RegionVerdict.NO_TEXTURE].dash,
+            "No measurable texture (dotted): review",
+        ),
         ("glyph", PALETTE["cell"], None, "Local lay of a cell (short line along the grain)"),
         ("glyph-deviating", PALETTE["cell-deviating"], None, "Cell whose lay deviates beyond tolerance"),
         ("expected", PALETTE["expected"], None, "Expected lay of the region (white double arrow)"),
@@ -1163,7 +1217,12 @@ def _legend(c: Canvas, y: float) -> None:
         yy -= 15
     # expected direction per cell, where it turns: a white tick under the cell's line
     c.setLineCap(0)
-    for colour, width, half in ((colors.black, 2.2, 14), (colors.white, 1.0, 14), (colors.black, 2.0, 8), (_rl(PALETTE["cell"]), 1.0, 8)):
+    for colour, width, half in (
+        (colors.black, 2.2, 14),
+        (colors.white, 1.0, 14),
+        (colors.black, 2.0, 8),
+        (_rl(PALETTE["cell"]), 1.0, 8),
+    ):
         c.setStrokeColor(colour)
         c.setLineWidth(width)
         c.line(_MARGIN + 28 - half, yy - 3, _MARGIN + 28 + half, yy + 3)
@@ -1178,7 +1237,7 @@ def _legend(c: Canvas, y: float) -> None:
         c.line(_MARGIN + 21, yy, _MARGIN + 35, yy)
         c.line(_MARGIN + 28, yy - 7, _MARGIN + 28, yy + 7)
     c.setFillColor(colors.black)
-    c.drawString(tx, yy - 2.5, "Centre of a circular or radial lay (\"fitted\" when found from the cells)")
+    c.drawString(tx, yy - 2.5, 'Centre of a circular or radial lay ("fitted" when found from the cells)')
     yy -= 15
     c.setFillColor(colors.Color(0, 0, 0, 0.55))
     c.rect(_MARGIN + 18, yy - 5, 20, 10, stroke=0, fill=1)
@@ -1313,9 +1372,22 @@ def _layout_summary(
     if stats:
         lines = "<br/>".join(_stats_line(st) for st in stats)
         where = f" (page {stats_page})" if stats_page is not None else ""
-        info.append(["Batch statistics", Paragraph(f"{lines}<br/><font size=6.5>control charts and capability{where}</font>", _CELL)])
+        info.append(
+            [
+                "Batch statistics",
+                Paragraph(f"{lines}<br/><font size=6.5>control charts and capability{where}</font>", _CELL),
+            ]
+        )
     layout.flowable(
-        _table(info, [100, _FRAME_W - 100], [("FONT", (0, 0), (0, -1), "Helvetica-Bold", 7.5), ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.93, 0.93, 0.93))], repeat_rows=0)
+        _table(
+            info,
+            [100, _FRAME_W - 100],
+            [
+                ("FONT", (0, 0), (0, -1), "Helvetica-Bold", 7.5),
+                ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.93, 0.93, 0.93)),
+            ],
+            repeat_rows=0,
+        )
     )
     layout.block(_signoff_height(signoff), lambda c, y: _signoff_block(c, y, signoff))
     rows = [["#", "Part", "Verdict", "Worst region", "Worst deviation", "First reason", "Page"]]
@@ -1324,8 +1396,15 @@ def _layout_summary(
     def add_row(number: str, name: str, word: str, colour: RGB, region: str, deviation: str, reason: str, page) -> None:
         k = len(rows)
         rows.append(
-            [number, Paragraph(escape(name), _CELL_BOLD), Paragraph(f"<b>{word}</b>", _CELL), region, deviation,
-             Paragraph(escape(reason), _CELL), str(page if page is not None else "")]
+            [
+                number,
+                Paragraph(escape(name), _CELL_BOLD),
+                Paragraph(f"<b>{word}</b>", _CELL),
+                region,
+                deviation,
+                Paragraph(escape(reason), _CELL),
+                str(page if page is not None else ""),
+            ]
         )
         style.extend([("BACKGROUND", (2, k), (2, k), _tint(colour, 0.55))])
         if word in (PART_LOOKS[PartVerdict.REJECT][0], _NOT_INSPECTED_WORD):
@@ -1341,24 +1420,59 @@ def _layout_summary(
             if region.verdict is RegionVerdict.NO_TEXTURE:
                 deviation = "no texture"
             else:
-                deviation = format_signed_angle(d["deviation_deg"]) if region.lay_pattern in _JUDGED_ANGLE else "not judged"
+                deviation = (
+                    format_signed_angle(d["deviation_deg"]) if region.lay_pattern in _JUDGED_ANGLE else "not judged"
+                )
         reasons = [r for reg in fig.part.regions if reg.verdict is not RegionVerdict.PASS for r in reg.reasons]
         reasons = list(fig.part.reasons) + reasons
         word, colour, _ = PART_LOOKS[fig.part.verdict]
-        add_row(str(index + 1), fig.part.name, word, colour, region_name, deviation, reasons[0] if reasons else "—", page_of.get(index))
+        add_row(
+            str(index + 1),
+            fig.part.name,
+            word,
+            colour,
+            region_name,
+            deviation,
+            reasons[0] if reasons else "—",
+            page_of.get(index),
+        )
 
     ordered = list(figs)
     rejects = [f for f in ordered if f[1].part.verdict is PartVerdict.REJECT]
     for index, fig in rejects:
         add_part(index, fig)
     for item in not_inspected:  # a hold like the rejects: listed before the parts that need review
-        add_row("—", item.name, _NOT_INSPECTED_WORD, PALETTE["no-texture"], "—", "—", item.error or "image could not be read", not_inspected_page)
+        add_row(
+            "—",
+            item.name,
+            _NOT_INSPECTED_WORD,
+            PALETTE["no-texture"],
+            "—",
+            "—",
+            item.error or "image could not be read",
+            not_inspected_page,
+        )
     for index, fig in ordered:
         if fig.part.verdict is not PartVerdict.REJECT:
             add_part(index, fig)
-    order = "rejected first, then not inspected, then review, then accepted" if not_inspected else "rejected first, then review, then accepted"
+    order = (
+        "rejected first, then not inspected, then review, then accepted"
+        if not_inspected
+        else "rejected first, then review, then accepted"
+    )
     layout.text(f"<b>Parts</b> ({order}; # is the part's number in production order)", gap=2)
-    layout.flowable(_table(rows, [20, 96, 62, 88, 66, 161, 30], style + [("ALIGN", (0, 1), (0, -1), "RIGHT"), ("ALIGN", (4, 1), (4, -1), "RIGHT"), ("ALIGN", (-1, 1), (-1, -1), "RIGHT")]))
+    layout.flowable(
+        _table(
+            rows,
+            [20, 96, 62, 88, 66, 161, 30],
+            style
+            + [
+                ("ALIGN", (0, 1), (0, -1), "RIGHT"),
+                ("ALIGN", (4, 1), (4, -1), "RIGHT"),
+                ("ALIGN", (-1, 1), (-1, -1), "RIGHT"),
+            ],
+        )
+    )
     layout.block(_LEGEND_H, _legend)
 
 
@@ -1431,15 +1545,28 @@ def _batch_stats(parts: Sequence[PartResult]) -> list[_RegionStats]:
             except InputError as exc:
                 notes.append(f"too few measured parts for limits on the deviation ({exc})")
         else:
-            notes.append("its lay direction is not judged (lay: " + members[0][1].lay_pattern + "): no deviation chart, no Cp/Cpk")
+            notes.append(
+                "its lay direction is not judged (lay: "
+                + members[0][1].lay_pattern
+                + "): no deviation chart, no Cp/Cpk"
+            )
         try:
             coh_chart = individuals_chart(cohs)
         except InputError as exc:
             notes.append(f"too few measured parts for limits on the coherence ({exc})")
         out.append(
             _RegionStats(
-                recipe, name, tol, judged, tuple(i for i, _, _ in members), tuple(devs), tuple(cohs),
-                dev_chart, coh_chart, cap, "; ".join(notes),
+                recipe,
+                name,
+                tol,
+                judged,
+                tuple(i for i, _, _ in members),
+                tuple(devs),
+                tuple(cohs),
+                dev_chart,
+                coh_chart,
+                cap,
+                "; ".join(notes),
             )
         )
     return out
@@ -1468,7 +1595,23 @@ def _stats_line(st: _RegionStats) -> str:
 
 
 def _chart(
-    c: Canvas, x, y_top, w, h, title, values, *, centre, ucl, lcl, flagged, beyond=(), spec=None, unit="", decimals=2, lower_zero=False
+    c: Canvas,
+    x,
+    y_top,
+    w,
+    h,
+    title,
+    values,
+    *,
+    centre,
+    ucl,
+    lcl,
+    flagged,
+    beyond=(),
+    spec=None,
+    unit="",
+    decimals=2,
+    lower_zero=False,
 ) -> None:
     """One control chart over part positions 1..n: points, centre line, limits, tolerance.
 
@@ -1620,11 +1763,17 @@ def _flag_table(st: _RegionStats, parts: Sequence[PartResult], page_of: Mapping[
             ]
         )
         style.append(("BACKGROUND", (2, len(rows) - 1), (2, len(rows) - 1), _tint(colour, 0.55)))
-    style += [("ALIGN", (0, 1), (0, -1), "RIGHT"), ("ALIGN", (3, 1), (4, -1), "RIGHT"), ("ALIGN", (-1, 1), (-1, -1), "RIGHT")]
+    style += [
+        ("ALIGN", (0, 1), (0, -1), "RIGHT"),
+        ("ALIGN", (3, 1), (4, -1), "RIGHT"),
+        ("ALIGN", (-1, 1), (-1, -1), "RIGHT"),
+    ]
     return _table(rows, [24, 100, 62, 56, 52, 199, 30], style)
 
 
-def _layout_batch_stats(layout: _Layout, parts: Sequence[PartResult], stats: Sequence[_RegionStats], page_of: Mapping[int, int]) -> None:
+def _layout_batch_stats(
+    layout: _Layout, parts: Sequence[PartResult], stats: Sequence[_RegionStats], page_of: Mapping[int, int]
+) -> None:
     layout.new_page()
     layout.block(20, lambda c, y: (c.setFont("Helvetica-Bold", 14), c.drawString(_MARGIN, y - 14, "Batch statistics")))
     layout.text(
@@ -1656,8 +1805,35 @@ def _layout_batch_stats(layout: _Layout, parts: Sequence[PartResult], stats: Seq
         if st.dev_chart is not None:
             ch = st.dev_chart
             blocks += [
-                (118, "Lay deviation (°): individuals", ch.values, dict(centre=ch.center, ucl=ch.ucl, lcl=ch.lcl, flagged=ch.out_of_limits, beyond=st.beyond_tolerance, spec=(-st.tolerance, st.tolerance), unit="°", decimals=ANGLE_DECIMALS)),
-                (70, "Lay deviation (°): moving range", (math.nan, *ch.mr), dict(centre=ch.mr_bar, ucl=ch.mr_ucl, lcl=None, flagged=[k + 1 for k in ch.mr_out_of_limits], unit="°", decimals=ANGLE_DECIMALS, lower_zero=True)),
+                (
+                    118,
+                    "Lay deviation (°): individuals",
+                    ch.values,
+                    dict(
+                        centre=ch.center,
+                        ucl=ch.ucl,
+                        lcl=ch.lcl,
+                        flagged=ch.out_of_limits,
+                        beyond=st.beyond_tolerance,
+                        spec=(-st.tolerance, st.tolerance),
+                        unit="°",
+                        decimals=ANGLE_DECIMALS,
+                    ),
+                ),
+                (
+                    70,
+                    "Lay deviation (°): moving range",
+                    (math.nan, *ch.mr),
+                    dict(
+                        centre=ch.mr_bar,
+                        ucl=ch.mr_ucl,
+                        lcl=None,
+                        flagged=[k + 1 for k in ch.mr_out_of_limits],
+                        unit="°",
+                        decimals=ANGLE_DECIMALS,
+                        lower_zero=True,
+                    ),
+                ),
             ]
         if st.coh_chart is not None:
             ch = st.coh_chart
@@ -1665,11 +1841,34 @@ def _layout_batch_stats(layout: _Layout, parts: Sequence[PartResult], stats: Seq
             spread = ch.ucl - ch.lcl
             dec = 3 if spread <= 0 else int(min(4, max(3, math.ceil(-math.log10(spread)) + 1)))
             blocks += [
-                (100, "Coherence: individuals", ch.values, dict(centre=ch.center, ucl=ch.ucl, lcl=ch.lcl, flagged=ch.out_of_limits, decimals=dec)),
-                (64, "Coherence: moving range", (math.nan, *ch.mr), dict(centre=ch.mr_bar, ucl=ch.mr_ucl, lcl=None, flagged=[k + 1 for k in ch.mr_out_of_limits], decimals=dec, lower_zero=True)),
+                (
+                    100,
+                    "Coherence: individuals",
+                    ch.values,
+                    dict(centre=ch.center, ucl=ch.ucl, lcl=ch.lcl, flagged=ch.out_of_limits, decimals=dec),
+                ),
+                (
+                    64,
+                    "Coherence: moving range",
+                    (math.nan, *ch.mr),
+                    dict(
+                        centre=ch.mr_bar,
+                        ucl=ch.mr_ucl,
+                        lcl=None,
+                        flagged=[k + 1 for k in ch.mr_out_of_limits],
+                        decimals=dec,
+                        lower_zero=True,
+                    ),
+                ),
             ]
         for h, title, values, kw in blocks:
-            layout.block(h, lambda c, y, h=h, title=title, values=values, kw=kw: _chart(c, _MARGIN, y, _FRAME_W, h, title, values, **kw), gap=4)
+            layout.block(
+                h,
+                lambda c, y, h=h, title=title, values=values, kw=kw: _chart(
+                    c, _MARGIN, y, _FRAME_W, h, title, values, **kw
+                ),
+                gap=4,
+            )
         table = _flag_table(st, parts, page_of)
         if table is None:
             layout.text("No part outside the control limits or beyond the tolerance.", gap=10)
@@ -1684,7 +1883,11 @@ def _layout_batch_stats(layout: _Layout, parts: Sequence[PartResult], stats: Seq
 def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total: int) -> None:
     layout.new_page()
     layout.block(
-        20, lambda c, y: (c.setFont("Helvetica-Bold", 14), c.drawString(_MARGIN, y - 14, f"Parts not inspected: {len(items)} of {total}"))
+        20,
+        lambda c, y: (
+            c.setFont("Helvetica-Bold", 14),
+            c.drawString(_MARGIN, y - 14, f"Parts not inspected: {len(items)} of {total}"),
+        ),
     )
     layout.text(
         "These images could not be inspected. Each counts as needing review: it is neither accepted nor rejected "
@@ -1696,7 +1899,9 @@ def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total:
             [
                 Paragraph(escape(item.name), _CELL_BOLD),
                 Paragraph(escape(item.error or "(no reason recorded)"), _CELL),
-                Paragraph(f"<font name=Courier size=6>{escape(item.sha256) or '(file could not be read)'}</font>", _CELL),
+                Paragraph(
+                    f"<font name=Courier size=6>{escape(item.sha256) or '(file could not be read)'}</font>", _CELL
+                ),
             ]
         )
     layout.flowable(_table(rows, [110, 243, 170], []))
@@ -1720,7 +1925,9 @@ def _footer(c: Canvas, n: int, total: int, report_id: str, signoff: SignOff | No
     # a page printed or filed on its own still says whether the report it belongs to was signed
     room = _FRAME_W - 2 * max(c.stringWidth(left, "Helvetica", 7.5), c.stringWidth(right, "Helvetica", 7.5)) - 24
     c.setFont("Helvetica-Bold", 7.5)
-    c.drawCentredString(PAGE_SIZE[0] / 2, _MARGIN + 6, _fit_text(c, signoff_state(signoff), "Helvetica-Bold", 7.5, room))
+    c.drawCentredString(
+        PAGE_SIZE[0] / 2, _MARGIN + 6, _fit_text(c, signoff_state(signoff), "Helvetica-Bold", 7.5, room)
+    )
     c.setFont("Helvetica-Oblique", 6.8)
     c.drawCentredString(PAGE_SIZE[0] / 2, _MARGIN - 4, CAUTION)
     c.restoreState()
@@ -1856,7 +2063,12 @@ def render_report(
         stats_page, next_page = next_page, next_page + len(stats_layout.pages)
     layout = _Layout()
     _layout_summary(
-        layout, ordered, page_of, not_inspected_page=next_page if not_inspected else None, stats_page=stats_page, **summary_kwargs
+        layout,
+        ordered,
+        page_of,
+        not_inspected_page=next_page if not_inspected else None,
+        stats_page=stats_page,
+        **summary_kwargs,
     )
     if len(layout.pages) != len(probe.pages):  # pragma: no cover - row heights do not depend on page digits
         raise RuntimeError("summary pagination changed between passes")
@@ -1896,6 +2108,8 @@ def _extra(c: Canvas, extra: ExtraPage) -> None:
         c.restoreState()
 
 
-def write_report(path: str | os.PathLike, parts: Sequence[PartResult], images: Sequence[np.ndarray | None], **kwargs) -> None:
+def write_report(
+    path: str | os.PathLike, parts: Sequence[PartResult], images: Sequence[np.ndarray | None], **kwargs
+) -> None:
     """Render the report (:func:`render_report`, same keywords) and write it atomically."""
     fsutil.write_bytes_atomic(path, render_report(parts, images, **kwargs))

@@ -17,16 +17,24 @@ import numpy as np
 from .console import Console
 from .engine import inspect_image
 from .errors import InputError
+from .formatting import format_angle, format_fixed, format_signed_angle
 from .fsutil import write_text_atomic
 from .imaging import IMAGE_SUFFIXES, read_image
 from .recipe import Recipe
-from .formatting import format_angle, format_fixed, format_signed_angle
 from .results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code, part_to_dict
 
 #: Long side of the overlay PNG, px: a full-size overlay of a 12 MP brushed photo is ~25 MB.
 OVERLAY_MAX_SIDE = 2000
 
-__all__ = ["PartOutcome", "output_stems", "inspect_path", "find_images", "print_results", "run_exit_code", "write_part_report"]
+__all__ = [
+    "PartOutcome",
+    "output_stems",
+    "inspect_path",
+    "find_images",
+    "print_results",
+    "run_exit_code",
+    "write_part_report",
+]
 
 
 @dataclass(frozen=True)

@@ -148,9 +148,7 @@ def public_key_path_for(key_path: str | os.PathLike) -> Path:
     return key_path.with_name(key_path.name + ".pub")
 
 
-def write_key_pair(
-    key_path: str | os.PathLike, signer_name: str, *, passphrase: bytes | None = None
-) -> SigningKey:
+def write_key_pair(key_path: str | os.PathLike, signer_name: str, *, passphrase: bytes | None = None) -> SigningKey:
     """Generate a key pair and write ``key_path`` (private, mode 0600) and ``key_path.pub``.
 
     Raises
@@ -169,9 +167,7 @@ def write_key_pair(
     if passphrase is not None and not passphrase:
         raise InputError("passphrase: the passphrase is empty (set a non-empty value or leave out --passphrase-env)")
     key = SigningKey.generate(signer_name)
-    encryption = (
-        serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
-    )
+    encryption = serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
     pem = key.private_key.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8, encryption)
     private_doc = {
         "format": PRIVATE_KEY_FORMAT,
@@ -223,10 +219,13 @@ def load_signing_key(key_path: str | os.PathLike, *, passphrase: bytes | None = 
     path = Path(key_path)
     doc = _read_key_document(path, PRIVATE_KEY_FORMAT)
     if doc.get("passphrase_protected") and not passphrase:
-        raise InputError(f"{path}: the key is passphrase-protected; give --passphrase-env VAR naming a variable that holds it")
+        raise InputError(
+            f"{path}: the key is passphrase-protected; give --passphrase-env VAR naming a variable that holds it"
+        )
     try:
         private = serialization.load_pem_private_key(
-            str(doc["private_key_pem"]).encode("ascii"), password=passphrase if doc.get("passphrase_protected") else None
+            str(doc["private_key_pem"]).encode("ascii"),
+            password=passphrase if doc.get("passphrase_protected") else None,
         )
     except (KeyError, ValueError, TypeError) as exc:
         raise InputError(f"{path}: private_key_pem: cannot be read (wrong passphrase or damaged file: {exc})") from None

@@ -158,9 +158,7 @@ def individuals_chart(values: Sequence[float | None]) -> IndividualsChart:
     x = _as_float_array(values, "individuals chart")
     finite = np.isfinite(x)
     if finite.sum() < 2:
-        raise InputError(
-            f"individuals chart: needs at least 2 finite values (got {int(finite.sum())} of {x.size})"
-        )
+        raise InputError(f"individuals chart: needs at least 2 finite values (got {int(finite.sum())} of {x.size})")
     mr = np.abs(np.diff(x))  # NaN propagates where a neighbour is missing
     mr_finite = np.isfinite(mr)
     if not mr_finite.any():

@@ -129,7 +129,12 @@ def isotropic_texture(shape: tuple[int, int], *, seed: int = 0, correlation_px: 
 
 
 def ring_texture(
-    shape: tuple[int, int], centre_px: tuple[float, float], *, period_px: float = 6.0, seed: int = 0, radial: bool = False
+    shape: tuple[int, int],
+    centre_px: tuple[float, float],
+    *,
+    period_px: float = 6.0,
+    seed: int = 0,
+    radial: bool = False,
 ) -> np.ndarray:
     """Concentric rings about ``centre_px`` (x, y image pixels), or spokes with ``radial``.
 

@@ -258,7 +258,9 @@ def layout_targets(
         usable_h = page_mm[1] - 2 * MARGIN_MM - HEADER_MM
         rows_per_page = int((usable_h + GAP_MM) // cell_h)
         if rows_per_page < 1:
-            raise InputError(f"--size-mm: a grating {h:g} mm high does not fit the printable height {usable_h - LABEL_MM:g} mm")
+            raise InputError(
+                f"--size-mm: a grating {h:g} mm high does not fit the printable height {usable_h - LABEL_MM:g} mm"
+            )
     else:
         rows_per_page = math.ceil(len(lays) / cols)
     per_page = cols * rows_per_page
@@ -519,11 +521,11 @@ def write_target_pdf(
 
     Returns the sheets (pages) with each grating's rectangle in mm.
     """
+    from PIL import Image
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.units import mm
     from reportlab.lib.utils import ImageReader
     from reportlab.pdfgen import canvas
-    from PIL import Image
 
     if kind not in GRATING_KINDS:
         raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
@@ -543,15 +545,20 @@ def write_target_pdf(
     Y = lambda v: page_h - v * mm  # noqa: E731
     with atomic_path(path) as tmp:
         c = canvas.Canvas(str(tmp), pagesize=A4, pageCompression=1)
-        c.setTitle("surfinspect lay targets " + ", ".join(_label(g.lay_deg) for sheet in sheets for g in sheet.gratings))
+        c.setTitle(
+            "surfinspect lay targets " + ", ".join(_label(g.lay_deg) for sheet in sheets for g in sheet.gratings)
+        )
         c.setAuthor(f"surfinspect {__version__}")
         for page_no, sheet in enumerate(sheets, 1):
             c.setFillColorRGB(0, 0, 0)
             c.setFont("Helvetica-Bold", 10)
-            c.drawString(X(MARGIN_MM), Y(MARGIN_MM) - 8, f"Lay reference targets: {kind} gratings, period {period_mm:g} mm")
+            c.drawString(
+                X(MARGIN_MM), Y(MARGIN_MM) - 8, f"Lay reference targets: {kind} gratings, period {period_mm:g} mm"
+            )
             c.setFont("Helvetica", 7.5)
             c.drawRightString(
-                X(A4_MM[0] - MARGIN_MM), Y(MARGIN_MM) - 8,
+                X(A4_MM[0] - MARGIN_MM),
+                Y(MARGIN_MM) - 8,
                 "Print at 100 % (no fit to page). Lay: counter-clockwise from +X, +Y up.",
             )
             # scale bar with 10 mm ticks
@@ -572,7 +579,10 @@ def write_target_pdf(
                     drawn_h = rows * MM_PER_INCH / raster_dpi
                     c.drawImage(
                         ImageReader(Image.fromarray(tile, mode="L")),
-                        X(gx), Y(gy + drawn_h), width=X(drawn_w), height=drawn_h * mm,
+                        X(gx),
+                        Y(gy + drawn_h),
+                        width=X(drawn_w),
+                        height=drawn_h * mm,
                     )
                 else:
                     _draw_square_stripes(c, (X(gx), Y(gy + gh), X(gw), gh * mm), g.lay_deg, period_mm * mm)
@@ -587,10 +597,13 @@ def write_target_pdf(
                 c.drawString(X(gx), label_y, f"lay {_label(g.lay_deg)}")
                 t = math.radians(g.lay_deg)
                 cx, cy, half = X(gx + _stroke_offset_mm(gw)), label_y + 3.5, 3.0 * mm
-                c.line(cx - half * math.cos(t), cy - half * math.sin(t), cx + half * math.cos(t), cy + half * math.sin(t))
+                c.line(
+                    cx - half * math.cos(t), cy - half * math.sin(t), cx + half * math.cos(t), cy + half * math.sin(t)
+                )
             c.setFont("Helvetica", 7)
             c.drawString(
-                X(MARGIN_MM), 8 * mm,
+                X(MARGIN_MM),
+                8 * mm,
                 f"surfinspect {__version__}  |  grating {size_mm[0]:g} x {size_mm[1]:g} mm"
                 + (f"  |  raster {raster_dpi:g} dpi" if kind == "sine" else "  |  vector stripes")
                 + f"  |  page {page_no} of {len(sheets)}",

@@ -81,14 +81,30 @@ def _fill_batch(root, batch_id, images, recipe_path, *, finish=True):
             if path.name not in plan.pending:
                 continue
             if i == len(images) - 1 and len(images) > 2:
-                body = arc.error_record_json(path.name, hashlib.sha256(path.read_bytes()).hexdigest(), f"{path}: not a readable image")
+                body = arc.error_record_json(
+                    path.name, hashlib.sha256(path.read_bytes()).hexdigest(), f"{path}: not a readable image"
+                )
                 a.record_part(batch_id, path.name, result_json=body, image_path=path)
                 continue
             verdict = results.RegionVerdict.PASS if i % 2 == 0 else results.RegionVerdict.FAIL
-            regions = [_region("face", verdict, 90.4 if i % 2 == 0 else 97.9), _region("edge", results.RegionVerdict.PASS, 89.8)]
-            a.record_part(batch_id, path.name, result_json=_result_json(path, recipe_sha, regions), image_path=path, overlay_png=b"png of " + path.name.encode())
+            regions = [
+                _region("face", verdict, 90.4 if i % 2 == 0 else 97.9),
+                _region("edge", results.RegionVerdict.PASS, 89.8),
+            ]
+            a.record_part(
+                batch_id,
+                path.name,
+                result_json=_result_json(path, recipe_sha, regions),
+                image_path=path,
+                overlay_png=b"png of " + path.name.encode(),
+            )
         if finish:
-            a.finish_batch(batch_id, report_pdf=b"%PDF report " + batch_id.encode(), regions_csv=b"csv\n", report_generated_at="2024-05-06T08:00:00Z")
+            a.finish_batch(
+                batch_id,
+                report_pdf=b"%PDF report " + batch_id.encode(),
+                regions_csv=b"csv\n",
+                report_generated_at="2024-05-06T08:00:00Z",
+            )
 
 
 @pytest.fixture
@@ -128,7 +144,14 @@ def test_untouched_archive_verifies(signed_archive):
         counts = arc.verdict_counts(a.parts("LW220-0506"))
         assert counts == {"accept": 1, "reject": 1, "review": 0, "error": 1, "pending": 0}
         kinds = [row[0] for row in a._db.execute("SELECT kind FROM events ORDER BY seq")]
-        assert kinds == ["batch started", "part inspected", "part inspected", "part inspected", "report written", "signed"]
+        assert kinds == [
+            "batch started",
+            "part inspected",
+            "part inspected",
+            "part inspected",
+            "report written",
+            "signed",
+        ]
         (signoff,) = a.signoffs("LW220-0506")
         assert signoff.meaning == "approved" and signoff.signer_name == "R. OSTERMANN"
         assert a.read_object(signoff.signed_report_sha256).startswith(b"%PDF signed by R. OSTERMANN approved")
@@ -140,7 +163,7 @@ def test_untouched_archive_verifies(signed_archive):
 
 def test_objects_are_content_addressed_and_read_only(signed_archive):
     with arc.Archive(signed_archive) as a:
-        for sha, in a._db.execute("SELECT sha256 FROM files"):
+        for (sha,) in a._db.execute("SELECT sha256 FROM files"):
             path = a.object_path(sha)
             assert path.parent.name == sha[:2] and path.name == sha[2:]
             assert hashlib.sha256(path.read_bytes()).hexdigest() == sha
@@ -179,7 +202,9 @@ def test_removed_stored_file_is_named(signed_archive):
 
 
 def test_verdict_edited_in_index_is_named(signed_archive):
-    _sql(signed_archive, "UPDATE regions SET verdict = 'pass' WHERE part_key = 'LW-220-002.png' AND region_name = 'face'")
+    _sql(
+        signed_archive, "UPDATE regions SET verdict = 'pass' WHERE part_key = 'LW-220-002.png' AND region_name = 'face'"
+    )
     failures = arc.verify(signed_archive)
     assert failures == [
         "region 'face' of part 'LW-220-002.png' in batch 'LW220-0506': the index says verdict 'pass', "
@@ -200,7 +225,9 @@ def test_result_swapped_in_index_breaks_the_signature_link(signed_archive):
     db.close()
     _sql(signed_archive, "UPDATE parts SET result_sha256 = ? WHERE part_key = 'LW-220-002.png'", (good,))
     failures = arc.verify(signed_archive)
-    assert any("the results in the index are not the ones that were signed (parts: LW-220-002.png)" in f for f in failures), failures
+    assert any(
+        "the results in the index are not the ones that were signed (parts: LW-220-002.png)" in f for f in failures
+    ), failures
     assert any("its result names image" in f for f in failures), failures
 
 
@@ -246,9 +273,17 @@ def test_reordered_audit_events_are_named(signed_archive):
     _sql(signed_archive, "UPDATE events SET seq = 2 WHERE seq = 3")
     _sql(signed_archive, "UPDATE events SET seq = 3 WHERE seq = -2")
     failures = arc.verify(signed_archive)
-    assert any(f.startswith("audit trail: event 2 (part inspected) does not follow event 1") for f in failures), failures
-    assert "audit trail: the event at position 2 (part inspected) was recorded as event 3: events were reordered" in failures
-    assert "audit trail: the event at position 3 (part inspected) was recorded as event 2: events were reordered" in failures
+    assert any(f.startswith("audit trail: event 2 (part inspected) does not follow event 1") for f in failures), (
+        failures
+    )
+    assert (
+        "audit trail: the event at position 2 (part inspected) was recorded as event 3: events were reordered"
+        in failures
+    )
+    assert (
+        "audit trail: the event at position 3 (part inspected) was recorded as event 2: events were reordered"
+        in failures
+    )
 
 
 def test_audit_events_truncated_from_the_end_are_named(signed_archive):
@@ -277,13 +312,17 @@ def test_rewritten_event_is_named(signed_archive):
 def test_rewritten_history_before_a_signature_breaks_it(signed_archive):
     # rebuild the whole trail without event 3, with fresh hashes and head: only the signed record still knows
     db = sqlite3.connect(signed_archive / arc.INDEX_NAME)
-    rows = db.execute("SELECT seq, recorded_at, kind, batch_id, part_key, details FROM events WHERE seq != 3 ORDER BY seq").fetchall()
+    rows = db.execute(
+        "SELECT seq, recorded_at, kind, batch_id, part_key, details FROM events WHERE seq != 3 ORDER BY seq"
+    ).fetchall()
     with db:
         db.execute("DELETE FROM events")
         prev = arc.GENESIS_SHA256
         for new_seq, (_, at, kind, b, p, details) in enumerate(rows, start=1):
             sha = arc._event_sha256(new_seq, at, kind, b, p, details, prev)
-            db.execute("INSERT INTO events VALUES (?, ?, ?, ?, ?, ?, ?, ?)", (new_seq, at, kind, b, p, details, prev, sha))
+            db.execute(
+                "INSERT INTO events VALUES (?, ?, ?, ?, ?, ?, ?, ?)", (new_seq, at, kind, b, p, details, prev, sha)
+            )
             prev = sha
         db.execute("UPDATE meta SET value = ? WHERE key = 'chain_length'", (str(len(rows)),))
         db.execute("UPDATE meta SET value = ? WHERE key = 'chain_head_sha256'", (prev,))
@@ -315,17 +354,23 @@ def test_resume_records_each_part_once_and_refuses_other_images(tmp_path):
     sha = hashlib.sha256(recipe_path.read_bytes()).hexdigest()
     planned = [(p.name, hashlib.sha256(p.read_bytes()).hexdigest()) for p in images]
     with arc.Archive(root, create=True) as a:
-        a.start_batch("B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=planned)
+        a.start_batch(
+            "B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=planned
+        )
         regions = [_region("face", results.RegionVerdict.PASS, 90.1)]
         assert a.record_part("B1", "a.png", result_json=_result_json(images[0], sha, regions), image_path=images[0])
-        plan = a.start_batch("B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=planned)
+        plan = a.start_batch(
+            "B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=planned
+        )
         assert plan.resumed and plan.pending == ("b.png", "c.png")
         # recording a finished part again changes nothing
         assert not a.record_part("B1", "a.png", result_json=_result_json(images[0], sha, regions), image_path=images[0])
         other = _write_images(tmp_path / "in", ["c.png"], seed=9)
         changed = [(p.name, hashlib.sha256(p.read_bytes()).hexdigest()) for p in images[:2] + other]
         with pytest.raises(InputError, match=r"unfinished batch 'B1' holds other images \(changed: c.png\)"):
-            a.start_batch("B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=changed)
+            a.start_batch(
+                "B1", recipe_name="r", recipe_revision=3, recipe_path=recipe_path, recipe_sha256=sha, parts=changed
+            )
     assert arc.verify(root) == []
 
 
@@ -374,7 +419,10 @@ def test_archive_that_is_a_file_is_an_input_error(tmp_path):
     plain = tmp_path / "afile"
     plain.write_text("notes")
     for create in (False, True):
-        with pytest.raises(InputError, match=r"^--archive .*afile: not a folder \(a file of that name exists; allowed: an archive folder"):
+        with pytest.raises(
+            InputError,
+            match=r"^--archive .*afile: not a folder \(a file of that name exists; allowed: an archive folder",
+        ):
             arc.Archive(plain, create=create)
     assert plain.read_text() == "notes"
 

@@ -85,7 +85,7 @@ def test_batch_end_to_end(panels, tmp_path):
     assert outcome.finished and outcome.interruption is None
     assert outcome.exit_code == 1  # a reject outranks the review and the error (fixed exit codes)
     assert sorted(n.part_key for n in seen) == sorted(EXPECTED) and max(n.done for n in seen) == len(EXPECTED)
-    (key, message), = outcome.errors
+    ((key, message),) = outcome.errors
     assert key == "LW-220-broken.png" and ("not a readable image" in message or "truncated" in message)
     out = tmp_path / "out"
     assert (out / "report.pdf").read_bytes()[:5] == b"%PDF-"
@@ -197,15 +197,52 @@ def test_batch_exit_code(verdicts, code):
 def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     recipe, folder = panels
     root = tmp_path / "archive"
-    assert main(["-q", "batch", str(recipe), str(folder), "--archive", str(root), "--batch-id", "B1", "--operator", "K. LINDQVIST"]) == 1
+    assert (
+        main(
+            [
+                "-q",
+                "batch",
+                str(recipe),
+                str(folder),
+                "--archive",
+                str(root),
+                "--batch-id",
+                "B1",
+                "--operator",
+                "K. LINDQVIST",
+            ]
+        )
+        == 1
+    )
     key = tmp_path / "lindqvist.key"
     monkeypatch.setenv("SIGN_PASS", "grain runs up")
     assert main(["-q", "keygen", "--name", "Kari Lindqvist", "--out", str(key), "--passphrase-env", "SIGN_PASS"]) == 0
     assert main(["sign", "--archive", str(root), "--batch-id", "NOPE", "--key", str(key), "--meaning", "approved"]) == 2
     assert "no batch 'NOPE' in this archive" in capsys.readouterr().err
     signed_pdf = tmp_path / "signed.pdf"
-    assert main(["-q", "sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "rejected",
-                 "--comment", "two panels off grain", "--passphrase-env", "SIGN_PASS", "--out", str(signed_pdf)]) == 0
+    assert (
+        main(
+            [
+                "-q",
+                "sign",
+                "--archive",
+                str(root),
+                "--batch-id",
+                "B1",
+                "--key",
+                str(key),
+                "--meaning",
+                "rejected",
+                "--comment",
+                "two panels off grain",
+                "--passphrase-env",
+                "SIGN_PASS",
+                "--out",
+                str(signed_pdf),
+            ]
+        )
+        == 0
+    )
     with arc.Archive(root) as a:
         b = a.batch("B1")
         (s,) = a.signoffs("B1")
@@ -274,11 +311,26 @@ def test_recursive_rerun_takes_no_output_or_archive_file_as_a_part(tmp_path, cap
     recipe = tmp_path / "lw-220.yaml"
     recipe.write_text(RECIPE)
     out, archive = folder / "out", folder / "archive"
-    args = ["batch", str(recipe), str(folder), "--recursive", "--archive", str(archive), "--out", str(out), "--jobs", "2"]
+    args = [
+        "batch",
+        str(recipe),
+        str(folder),
+        "--recursive",
+        "--archive",
+        str(archive),
+        "--out",
+        str(out),
+        "--jobs",
+        "2",
+    ]
     assert main(["-q", *args, "--batch-id", "R1"]) == 0
     # an image someone left in the output folder is not a part either: the whole folder is the batch's own
     (out / "copy.png").write_bytes((folder / "LW-220-000.png").read_bytes())
-    assert sorted(p.name for p in out.glob("*.overlay.png")) == ["LW-220-000.overlay.png", "LW-220-001.overlay.png", "LW-220-002.overlay.png"]
+    assert sorted(p.name for p in out.glob("*.overlay.png")) == [
+        "LW-220-000.overlay.png",
+        "LW-220-001.overlay.png",
+        "LW-220-002.overlay.png",
+    ]
     # the same id again: the same three images (more would be refused as "holds other images", exit 2)
     assert main(["-q", *args, "--batch-id", "R1"]) == 0
     assert main(["-q", *args, "--batch-id", "R2"]) == 0
@@ -291,7 +343,10 @@ def test_discover_images_ignores_exclusions_that_are_not_below_the_folder(tmp_pa
     (tmp_path / "in" / "out").mkdir(parents=True)
     for rel in ["in/a.png", "in/out/b.png"]:
         (tmp_path / rel).write_bytes(b"x")
-    keys = lambda *exclude: [k for k, _ in batch.discover_images(tmp_path / "in", recursive=True, exclude=exclude)]
+
+    def keys(*exclude):
+        return [k for k, _ in batch.discover_images(tmp_path / "in", recursive=True, exclude=exclude)]
+
     assert keys(tmp_path / "in" / "out") == ["a.png"]
     # outputs written into the image folder itself, or beside it, exclude nothing
     assert keys(tmp_path / "in", tmp_path / "elsewhere") == ["a.png", "out/b.png"]
@@ -367,8 +422,24 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
     assert f"surfinspect show --archive {root} --batch-id B1 --out DIR" in out
 
     comment = "検査済み 2 panels\noff grain"  # invented; CJK outside Latin-1, and a newline that is folded
-    assert main(["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "rejected",
-                 "--comment", comment]) == 0
+    assert (
+        main(
+            [
+                "sign",
+                "--archive",
+                str(root),
+                "--batch-id",
+                "B1",
+                "--key",
+                str(key),
+                "--meaning",
+                "rejected",
+                "--comment",
+                comment,
+            ]
+        )
+        == 0
+    )
     out = capsys.readouterr().out
     with arc.Archive(root) as a:
         (s,) = a.signoffs("B1")
@@ -406,7 +477,7 @@ def _process_tree(pid: int) -> set[tuple[int, str]]:
             text = stat.read_text()
         except OSError:
             continue
-        fields = text[text.rindex(")") + 2:].split()  # the command name in (...) may hold spaces
+        fields = text[text.rindex(")") + 2 :].split()  # the command name in (...) may hold spaces
         parents.setdefault(int(fields[1]), []).append((int(stat.parent.name), fields[19]))
     found, todo = set(), [pid]
     while todo:
@@ -421,7 +492,7 @@ def _alive(process: tuple[int, str]) -> bool:
         text = (_PROC / str(process[0]) / "stat").read_text()
     except OSError:
         return False
-    fields = text[text.rindex(")") + 2:].split()
+    fields = text[text.rindex(")") + 2 :].split()
     return fields[19] == process[1] and fields[0] != "Z"  # same process (not a reused pid), not a zombie
 
 
@@ -445,8 +516,9 @@ def test_stopped_batch_leaves_no_process_and_a_rerun_finishes_each_part_once(ten
     args = ["batch", str(recipe), str(folder), "--archive", str(root), "--batch-id", "S1", "--jobs", "2"]
     env = dict(os.environ, **{batch.TEST_HOLD_FROM_PART_ENV: "2"})  # part 1 is recorded, the others wait
     env["PYTHONPATH"] = os.pathsep.join([str(Path(batch.__file__).parents[1]), env.get("PYTHONPATH", "")])
-    proc = subprocess.Popen([sys.executable, "-m", "surfinspect", *args], env=env, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "surfinspect", *args], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+    )
     try:
         ready, _, _ = select.select([proc.stdout], [], [], 60)
         assert ready, "the batch recorded no part within a minute"
@@ -470,8 +542,10 @@ def test_stopped_batch_leaves_no_process_and_a_rerun_finishes_each_part_once(ten
         assert proc.returncode == 143
         assert "Traceback" not in err
         (line,) = err.strip().splitlines()
-        assert line == ("surfinspect: error: batch S1: interrupted (SIGTERM); 1 of 10 part(s) recorded; "
-                        "run again with the same --batch-id to finish")
+        assert line == (
+            "surfinspect: error: batch S1: interrupted (SIGTERM); 1 of 10 part(s) recorded; "
+            "run again with the same --batch-id to finish"
+        )
     else:
         assert proc.returncode == -signal.SIGKILL
     assert main(["-q", *args]) == 0

@@ -2,7 +2,6 @@
 
 import json
 import re
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -29,8 +28,9 @@ def _study(seed, appraiser_sigma):
 
 
 # Hand-worked in tests/test_gauge.py: %GRR of TV 38.980, of tolerance 30: 37.859, ndc 3.
-HAND_TABLE = np.stack([np.array([[2, 4], [6, 6], [10, 14]], float) - 0.5,
-                       np.array([[2, 4], [6, 6], [10, 14]], float) + 0.5], axis=2)
+HAND_TABLE = np.stack(
+    [np.array([[2, 4], [6, 6], [10, 14]], float) - 0.5, np.array([[2, 4], [6, 6], [10, 14]], float) + 0.5], axis=2
+)
 
 
 def test_gauge_not_acceptable_exits_1_and_writes_json_and_pdf(tmp_path, capsys):
@@ -154,7 +154,12 @@ def test_target_pdf_and_bad_angle(tmp_path, capsys):
     out = tmp_path / "targets.pdf"
     assert main(["target", "--lay", "0,30,60,90", "--period-mm", "1", "--size-mm", "40", "30", "--out", str(out)]) == 0
     assert out.read_bytes().startswith(b"%PDF")
-    assert main(["target", "--lay", "0,190", "--period-mm", "1", "--size-mm", "40", "30", "--out", str(tmp_path / "x.pdf")]) == 2
+    assert (
+        main(
+            ["target", "--lay", "0,190", "--period-mm", "1", "--size-mm", "40", "30", "--out", str(tmp_path / "x.pdf")]
+        )
+        == 2
+    )
     assert "--lay: 190 is outside the allowed range" in capsys.readouterr().err
     assert not (tmp_path / "x.pdf").exists()
 
@@ -174,18 +179,30 @@ def test_target_unwritable_out_exits_2(tmp_path, capsys, case, png, ext):
     [
         (["--png", "--out", "{d}/t.pdf"], "--out: {d}/t.pdf: the name must end in .png"),
         (["--out", "{d}/t.png"], "--out: {d}/t.png: the name must end in .pdf"),
-        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.png"], "--recipe: {d}/t.png: the name must end in .yaml or .yml"),
-        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "0"],
-         "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got 0)"),
-        (["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "-1"],
-         "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got -1)"),
+        (
+            ["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.png"],
+            "--recipe: {d}/t.png: the name must end in .yaml or .yml",
+        ),
+        (
+            ["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "0"],
+            "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got 0)",
+        ),
+        (
+            ["--png", "--out", "{d}/t.png", "--recipe", "{d}/t.yaml", "--tolerance-deg", "-1"],
+            "--tolerance-deg: must be 0 < tolerance <= 45 degrees (got -1)",
+        ),
         (["--png", "--dpi", "100000", "--out", "{d}/t.png"], "--dpi: must be 50 <= dpi <= 4800 (got 100000)"),
         (["--raster-dpi", "10", "--out", "{d}/t.pdf"], "--raster-dpi: must be 50 <= dpi <= 4800 (got 10)"),
         # two 150 x 250 mm gratings in one column: sheet 15 + 150 + 15 = 180 mm wide and
         # 15 + 22 + 2 * (250 + 9 + 14) - 14 + 15 = 584 mm high; at 4800 / 25.4 px per mm: 34016 x 110362 px
-        (["--png", "--dpi", "4800", "--size-mm", "150", "250", "--out", "{d}/t.png"],
-         "--dpi: a sheet of 34016 x 110362 px at 4800 dpi would be 3,754 megapixels (allowed at most 200"),
-        (["--png", "--dpi", "100", "--out", "{d}/t.png"], "--period-mm: 1 mm is 3.94 px at 100 dpi (--dpi); allowed at least 4"),
+        (
+            ["--png", "--dpi", "4800", "--size-mm", "150", "250", "--out", "{d}/t.png"],
+            "--dpi: a sheet of 34016 x 110362 px at 4800 dpi would be 3,754 megapixels (allowed at most 200",
+        ),
+        (
+            ["--png", "--dpi", "100", "--out", "{d}/t.png"],
+            "--period-mm: 1 mm is 3.94 px at 100 dpi (--dpi); allowed at least 4",
+        ),
         (["--lay", "180", "--out", "{d}/t.pdf"], "--lay: 180 is outside the allowed range 0 <= lay < 180 degrees"),
     ],
 )
@@ -196,8 +213,27 @@ def test_target_bad_flags_exit_2_and_write_nothing(tmp_path, capsys, flags, mess
 
 def _render_target(tmp_path, lays="0,30,60,90,150", kind=()):
     png, recipe = tmp_path / "target.png", tmp_path / "target.yaml"
-    code = main(["-q", "target", "--lay", lays, "--period-mm", "1", "--size-mm", "18", "18", "--png", "--dpi", "250",
-                 "--out", str(png), "--recipe", str(recipe), *kind])
+    code = main(
+        [
+            "-q",
+            "target",
+            "--lay",
+            lays,
+            "--period-mm",
+            "1",
+            "--size-mm",
+            "18",
+            "18",
+            "--png",
+            "--dpi",
+            "250",
+            "--out",
+            str(png),
+            "--recipe",
+            str(recipe),
+            *kind,
+        ]
+    )
     assert code == 0
     return png, recipe
 
@@ -252,8 +288,9 @@ def test_bias_unwritable_json_exits_2_before_any_work(tmp_path, capsys, case):
 @pytest.mark.parametrize("max_bias", ["-1", "0"])
 def test_bias_max_bias_must_be_positive(tmp_path, capsys, max_bias):
     png, recipe = _render_target(tmp_path, lays="0")
-    line = _refused(capsys, ["bias", str(recipe), str(png), "--max-bias", max_bias, "--json", str(tmp_path / "b.json")],
-                    tmp_path)
+    line = _refused(
+        capsys, ["bias", str(recipe), str(png), "--max-bias", max_bias, "--json", str(tmp_path / "b.json")], tmp_path
+    )
     assert line == f"surfinspect: error: --max-bias: must be > 0 (got {max_bias})"
 
 
@@ -287,8 +324,19 @@ def test_gauge_study_of_images_measures_each_with_the_recipe(tmp_path):
                 rows.append(f"LW-220-{i},{setup},{k},{name}")
     (tmp_path / "study.csv").write_text("\n".join(rows) + "\n")
     out = tmp_path / "study.json"
-    code = main(["-q", "gauge", str(tmp_path / "study.csv"), "--tolerance", "6", "--recipe", str(tmp_path / "panel.yaml"),
-                 "--json", str(out)])
+    code = main(
+        [
+            "-q",
+            "gauge",
+            str(tmp_path / "study.csv"),
+            "--tolerance",
+            "6",
+            "--recipe",
+            str(tmp_path / "panel.yaml"),
+            "--json",
+            str(out),
+        ]
+    )
     doc = json.loads(out.read_text())
     assert code != 2 and doc["parts"] == [f"LW-220-{i}" for i in range(4)]
     values = np.array(doc["values"])

@@ -108,7 +108,9 @@ def test_rendered_coverage_matches_brute_force_supersampling():
     r = np.arange(rows)[:, None, None, None] + sub[None, None, :, None]
     c = np.arange(cols)[None, :, None, None] + sub[None, None, None, :]
     dc, dr = c - CENTRE[0], r - CENTRE[1]
-    inside = (np.abs(dc * along[0] + dr * along[1]) <= PANEL[0] / 2) & (np.abs(dc * down[0] + dr * down[1]) <= PANEL[1] / 2)
+    inside = (np.abs(dc * along[0] + dr * along[1]) <= PANEL[0] / 2) & (
+        np.abs(dc * down[0] + dr * down[1]) <= PANEL[1] / 2
+    )
     brute = inside.mean(axis=(2, 3))
     assert np.abs(brute - coverage[:rows, :cols]).max() < 0.05
     assert coverage.sum() == pytest.approx(PANEL[0] * PANEL[1], rel=1e-4)
@@ -238,7 +240,9 @@ def test_fitted_frame_round_trip_and_the_part_lies_at_positive_coordinates():
     np.testing.assert_allclose(frame.part_to_image(frame.image_to_part(pixels)), pixels, atol=1e-9)
     np.testing.assert_allclose(frame.image_to_part(CENTRE), np.asarray(PANEL) / 2, atol=0.5)
     outline = frame.image_to_part(frame.outline_px())
-    np.testing.assert_allclose(outline, [[0, 0], [frame.size_px[0], 0], frame.size_px, [0, frame.size_px[1]]], atol=1e-9)
+    np.testing.assert_allclose(
+        outline, [[0, 0], [frame.size_px[0], 0], frame.size_px, [0, frame.size_px[1]]], atol=1e-9
+    )
 
 
 def test_angles_convert_between_image_and_part():

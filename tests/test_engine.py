@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from conftest import directional_recipe
+
 from surfinspect import InputError, inspect_image, parse_recipe, result_from_json, result_to_json, synth
 from surfinspect.engine import Frame
 from surfinspect.orientation import wrap_deviation
@@ -114,8 +114,20 @@ def test_result_json_round_trip_and_fixed_keys():
     for key in ("engine_version", "inspected_at", "image", "recipe", "verdict", "regions"):
         assert key in d
     r = d["regions"][0]
-    for key in ("name", "expected_lay_deg", "tolerance_deg", "lay_deg", "deviation_deg", "uncertainty_deg",
-                "coherence", "defect_area_fraction", "patches", "histogram", "verdict", "reasons"):
+    for key in (
+        "name",
+        "expected_lay_deg",
+        "tolerance_deg",
+        "lay_deg",
+        "deviation_deg",
+        "uncertainty_deg",
+        "coherence",
+        "defect_area_fraction",
+        "patches",
+        "histogram",
+        "verdict",
+        "reasons",
+    ):
         assert key in r
     assert len(r["histogram"]["bin_edges_deg"]) == len(r["histogram"]["weights"]) + 1
     assert sum(r["histogram"]["weights"]) == pytest.approx(1.0, abs=1e-4)
@@ -156,7 +168,9 @@ def test_crossed_lay_finds_both_directions(a, b, seed):
     # are located to about 2 deg (measured over seeds), far less precisely than a single lay.
     tex = synth.brushed_texture(PATTERN_SHAPE, a, seed=seed) + synth.brushed_texture(PATTERN_SHAPE, b, seed=seed + 1)
     img = synth.shade_and_noise(tex / tex.std(), seed=3)
-    r = _pattern_recipe(f"    rect: [10, 10, 300, 300]\n    lay: crossed\n    lay_deg: [{a}, {b}]\n    tolerance_deg: 3\n")
+    r = _pattern_recipe(
+        f"    rect: [10, 10, 300, 300]\n    lay: crossed\n    lay_deg: [{a}, {b}]\n    tolerance_deg: 3\n"
+    )
     region = inspect_image(img, r).regions[0]
     assert region.verdict is RegionVerdict.PASS, region.reasons
     found = region.extra["crossed_lay_deg"]
@@ -190,7 +204,9 @@ def test_crossed_at_right_angles_fails_multidirectional():
     # so only the four-fold harmonic of the cell histograms shows the shared pair of directions.
     tex = synth.brushed_texture(PATTERN_SHAPE, 30.0, seed=1) + synth.brushed_texture(PATTERN_SHAPE, 120.0, seed=2)
     img = synth.shade_and_noise(tex / tex.std(), seed=3)
-    region = inspect_image(img, _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay: M\n    cell_px: 32\n")).regions[0]
+    region = inspect_image(img, _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay: M\n    cell_px: 32\n")).regions[
+        0
+    ]
     assert region.coherence < 0.1
     assert region.verdict is RegionVerdict.FAIL
     assert any("crossed pattern near 3" in t for t in region.reasons), region.reasons  # 30 and 120 deg, to ~2 deg
@@ -213,7 +229,9 @@ def test_concentric_rings_pass_circular_about_their_centre():
     assert region.verdict is RegionVerdict.PASS, region.reasons
     assert abs(region.deviation_deg) < 0.5
     # fitted centre when none is given
-    fitted = inspect_image(img, _pattern_recipe(body.replace(f"    centre: [{centre[0] + 0.5}, {centre[1] + 0.5}]\n", ""))).regions[0]
+    fitted = inspect_image(
+        img, _pattern_recipe(body.replace(f"    centre: [{centre[0] + 0.5}, {centre[1] + 0.5}]\n", ""))
+    ).regions[0]
     cx, cy = fitted.extra["centre_px"]
     assert abs(cx - centre[0]) < 1.5 and abs(cy - centre[1]) < 1.5
     assert fitted.verdict is RegionVerdict.PASS
@@ -263,7 +281,11 @@ def test_skewed_plate_lay_relative_to_the_part(skew, band_lay):
     rows, cols = PLATE_IMAGE_SHAPE
     length, width = (v / PLATE_PIXEL_MM for v in PLATE_MM)
     t = np.radians(skew)
-    true_origin = np.array([cols / 2, rows / 2]) - np.array([np.cos(t), -np.sin(t)]) * length / 2 - np.array([np.sin(t), np.cos(t)]) * width / 2
+    true_origin = (
+        np.array([cols / 2, rows / 2])
+        - np.array([np.cos(t), -np.sin(t)]) * length / 2
+        - np.array([np.sin(t), np.cos(t)]) * width / 2
+    )
     assert np.hypot(*(np.array(part.datum.origin_px) - true_origin)) < 0.5
     band = part.regions[0]
     assert band.deviation_deg == pytest.approx(band_lay, abs=0.2)
@@ -279,7 +301,9 @@ def test_millimetre_regions_land_on_the_same_pixels_as_pixel_regions():
     img = plate_on_fixture(4.0, 0.0, seed=2)
     mm = parse_recipe(PLATE_RECIPE.replace("rect: [4, 4, 112, 28]", "polygon: [[4, 4], [116, 4], [100, 32], [10, 30]]"))
     px = parse_recipe(
-        PLATE_RECIPE.replace("pixel_size_mm: 0.25\n", "").replace("rect: [4, 4, 112, 28]", "polygon: [[16, 16], [464, 16], [400, 128], [40, 120]]")
+        PLATE_RECIPE.replace("pixel_size_mm: 0.25\n", "").replace(
+            "rect: [4, 4, 112, 28]", "polygon: [[16, 16], [464, 16], [400, 128], [40, 120]]"
+        )
     )
     (frame_mm, _), (frame_px, _) = frame_for(mm, img), frame_for(px, img)
     a = region_masks(mm.regions[0], frame_mm, img.shape)
@@ -291,7 +315,9 @@ def test_millimetre_regions_land_on_the_same_pixels_as_pixel_regions():
 
 def test_patch_sizes_in_mm_with_pixel_size():
     img = synth.brushed_panel(SHAPE, 90.0, seed=8, patch_rect=(256, 160, 160, 128), patch_lay_deg=0.0)
-    r = parse_recipe("recipe: t\nrevision: 1\npixel_size_mm: 0.5\nregions:\n  - name: face\n    rect: [8, 8, 304, 224]\n    lay_deg: 90\n    cell_px: 32\n")
+    r = parse_recipe(
+        "recipe: t\nrevision: 1\npixel_size_mm: 0.5\nregions:\n  - name: face\n    rect: [8, 8, 304, 224]\n    lay_deg: 90\n    cell_px: 32\n"
+    )
     patch = inspect_image(img, r).regions[0].patches[0]
     assert patch.bbox_mm == (patch.bbox_px[2] * 0.5, patch.bbox_px[3] * 0.5)
     assert patch.area_mm2 == pytest.approx(patch.area_px * 0.25)

@@ -1,6 +1,5 @@
 """Gauge R&R by the ANOVA method, bias and linearity, study-table reading, the PDF page."""
 
-
 import numpy as np
 import pytest
 
@@ -49,7 +48,13 @@ def test_anova_and_components_on_hand_worked_table_with_interaction():
     assert [a.row(s).ss for s in ("part", "appraiser", "part x appraiser", "repeatability", "total")] == pytest.approx(
         [168, 12, 8, 3, 191], rel=1e-12
     )
-    assert [a.row(s).df for s in ("part", "appraiser", "part x appraiser", "repeatability", "total")] == [2, 1, 2, 6, 11]
+    assert [a.row(s).df for s in ("part", "appraiser", "part x appraiser", "repeatability", "total")] == [
+        2,
+        1,
+        2,
+        6,
+        11,
+    ]
     assert a.row("part x appraiser").f == pytest.approx(8.0)
     assert a.row("part").f == pytest.approx(84 / 4)  # random effects: parts against the interaction
     assert a.row("appraiser").f == pytest.approx(12 / 4)
@@ -99,7 +104,10 @@ def test_pooled_model_on_hand_worked_table():
     assert study.anova.row("part").f == pytest.approx(98 / 2)
     v = {c.name: c.variance for c in study.components}
     assert (v["repeatability"], v["appraiser"], v["part"], v["part x appraiser"]) == (
-        pytest.approx(2.0), pytest.approx(4.0), pytest.approx(24.0), 0.0,
+        pytest.approx(2.0),
+        pytest.approx(4.0),
+        pytest.approx(24.0),
+        0.0,
     )
 
 
@@ -136,8 +144,12 @@ def test_anova_agrees_with_statsmodels(seed):
     ref = anova_lm(smf.ols("value ~ C(part)*C(appraiser)", data=_frame(values)).fit())
     study = gauge_rr(values, tolerance=20.0)
     a = study.anova_interaction
-    names = {"part": "C(part)", "appraiser": "C(appraiser)", "part x appraiser": "C(part):C(appraiser)",
-             "repeatability": "Residual"}
+    names = {
+        "part": "C(part)",
+        "appraiser": "C(appraiser)",
+        "part x appraiser": "C(part):C(appraiser)",
+        "repeatability": "Residual",
+    }
     for ours, theirs in names.items():
         assert a.row(ours).ms == pytest.approx(ref.loc[theirs, "mean_sq"], rel=1e-9)
         assert a.row(ours).df == int(ref.loc[theirs, "df"])
@@ -244,6 +256,7 @@ def test_setting_errors_do_not_name_the_table():
 
 # ------------------------------------------------------------------ study CSV
 
+
 def _write(tmp_path, text, name="study.csv"):
     p = tmp_path / name
     p.write_text(text, encoding="utf-8")
@@ -282,8 +295,10 @@ def _lines(values):
 @pytest.mark.parametrize(
     ("edit", "message"),
     [
-        (lambda ls: ["part,appraiser,value"] + [",".join(x.split(",")[:2] + x.split(",")[3:]) for x in ls[1:]],
-         r"study\.csv:1: header: columns must be .*missing trial"),
+        (
+            lambda ls: ["part,appraiser,value"] + [",".join(x.split(",")[:2] + x.split(",")[3:]) for x in ls[1:]],
+            r"study\.csv:1: header: columns must be .*missing trial",
+        ),
         (lambda ls: [ls[0] + ",note"] + [x + ",ok" for x in ls[1:]], r"study\.csv:1: header: .*unknown note"),
         (lambda ls: ls[:3] + ["LW-220-01,B,1,abc"] + ls[4:], r"study\.csv:4: value: not a number \(got 'abc'\)"),
         (lambda ls: ls[:3] + ["LW-220-01,B,1,nan"] + ls[4:], r"study\.csv:4: value: not a finite number"),
@@ -293,7 +308,10 @@ def _lines(values):
         (lambda ls: ls[:6] + ls[7:], r"study\.csv:6: part 'LW-220-02', appraiser 'A' has no trial 2"),
         # LW-220-03 measured by A only (its B rows, lines 12 and 13, removed)
         (lambda ls: ls[:11], r"study\.csv:10: part 'LW-220-03' is measured by appraiser\(s\) A only; missing B"),
-        (lambda ls: ls + ["LW-220-01,A,1,2.0"], r"study\.csv:14: part 'LW-220-01', appraiser 'A', trial '1' repeats line 2"),
+        (
+            lambda ls: ls + ["LW-220-01,A,1,2.0"],
+            r"study\.csv:14: part 'LW-220-01', appraiser 'A', trial '1' repeats line 2",
+        ),
         (lambda ls: [ls[0]], r"header but no measurements"),
     ],
 )
@@ -331,21 +349,28 @@ def _problems(tmp_path, rows, **kwargs):
 def test_one_extra_trial_row_is_named_alone_with_a_summary(tmp_path):
     # 5 x 3 x 2 = 30 rows on lines 2-31; the extra trial of P1 / ann is line 32.
     rows = _crossed_rows() + ["P1,ann,3,0.5"]
-    with pytest.raises(InputError, match=r"study\.csv:32: part 'P1', appraiser 'ann', trial '3': a trial the other "
-                       r"cells do not have \(the study's trials: 1, 2\) \(and 1 more\)"):
+    with pytest.raises(
+        InputError,
+        match=r"study\.csv:32: part 'P1', appraiser 'ann', trial '3': a trial the other "
+        r"cells do not have \(the study's trials: 1, 2\) \(and 1 more\)",
+    ):
         read_study_csv(_write(tmp_path, "\n".join(rows)))
     problems = _problems(tmp_path, rows)
     assert len(problems) == 2
-    assert problems[1].endswith("study.csv: the study is not balanced (1 extra row): a crossed study has one value "
-                                "per part, appraiser and trial, 5 x 3 x 2 = 30 rows (got 31)")
+    assert problems[1].endswith(
+        "study.csv: the study is not balanced (1 extra row): a crossed study has one value "
+        "per part, appraiser and trial, 5 x 3 x 2 = 30 rows (got 31)"
+    )
 
 
 def test_rows_of_an_appraiser_the_other_parts_lack_are_named_together(tmp_path):
     rows = _crossed_rows() + ["P3,dan,1,0.1", "P3,dan,2,0.3"]
     problems = _problems(tmp_path, rows)
     assert len(problems) == 2
-    assert problems[0].endswith("study.csv:32: part 'P3', appraiser 'dan': an appraiser the other parts do not have "
-                                "(2 rows: lines 32, 33; the study's appraisers: ann, bob, cy)")
+    assert problems[0].endswith(
+        "study.csv:32: part 'P3', appraiser 'dan': an appraiser the other parts do not have "
+        "(2 rows: lines 32, 33; the study's appraisers: ann, bob, cy)"
+    )
     assert "(2 extra rows)" in problems[1] and "5 x 3 x 2 = 30 rows (got 32)" in problems[1]
 
 
@@ -364,8 +389,11 @@ def test_many_balance_problems_are_listed_up_to_the_limit_then_counted(tmp_path)
 
 
 def test_a_recipe_for_a_table_of_values_is_refused(tmp_path):
-    with pytest.raises(InputError, match=r"study\.csv:1: header: the table holds measured values, so a recipe has "
-                       r"nothing to measure"):
+    with pytest.raises(
+        InputError,
+        match=r"study\.csv:1: header: the table holds measured values, so a recipe has "
+        r"nothing to measure",
+    ):
         read_study_csv(_write(tmp_path, "\n".join(_crossed_rows())), measure=lambda path: 0.0)
 
 
@@ -428,8 +456,11 @@ def test_single_nominal_has_no_linearity_and_single_measurement_no_spread():
 
 @pytest.mark.parametrize(
     ("nominals", "measured", "message"),
-    [([0, 30], [0.1], "2 nominal angles for 1 measurements"), ([], [], "no measurements"),
-     ([0, 30], [0.1, float("nan")], "finite")],
+    [
+        ([0, 30], [0.1], "2 nominal angles for 1 measurements"),
+        ([], [], "no measurements"),
+        ([0, 30], [0.1, float("nan")], "finite"),
+    ],
 )
 def test_bias_study_bad_input(nominals, measured, message):
     with pytest.raises(InputError, match=message):
@@ -447,8 +478,14 @@ def test_gauge_pdf_page_holds_tables_verdict_caution_and_vector_charts(tmp_path)
     reader = pypdf.PdfReader(str(out))
     assert len(reader.pages) == 1
     text = reader.pages[0].extract_text()
-    for expected in ("ANOVA, with interaction", "Variance components", "Gauge not acceptable",
-                     "Range of trials by appraiser", "Means by part and appraiser", "part x appraiser"):
+    for expected in (
+        "ANOVA, with interaction",
+        "Variance components",
+        "Gauge not acceptable",
+        "Range of trials by appraiser",
+        "Means by part and appraiser",
+        "part x appraiser",
+    ):
         assert expected in text
     assert " ".join(CAUTION.split()[:6]) in " ".join(text.split())
     assert len(reader.pages[0].images) == 0  # charts are vector graphics, not pictures

@@ -51,7 +51,9 @@ def test_central_differences_and_sobel_are_biased_on_fine_grain():
     def sobel(img):
         return ndi.sobel(img, axis=0), ndi.sobel(img, axis=1)
 
-    worst_c = max(abs(o.wrap_deviation(_tensor_lay_with(central, synth.sine_grating((96, 96), a, 4)), a)) for a in ANGLES)
+    worst_c = max(
+        abs(o.wrap_deviation(_tensor_lay_with(central, synth.sine_grating((96, 96), a, 4)), a)) for a in ANGLES
+    )
     worst_s = max(abs(o.wrap_deviation(_tensor_lay_with(sobel, synth.sine_grating((96, 96), a, 4)), a)) for a in ANGLES)
     assert worst_c > 3.0
     assert worst_s > 1.0
@@ -139,7 +141,14 @@ def test_strips_join_seamlessly():
 
 @pytest.mark.parametrize(
     "measured, expected, deviation",
-    [(0.6, 179.0, 1.6), (179.0, 0.6, -1.6), (95.0, 90.0, 5.0), (0.0, 90.0, 90.0), (45.0, 135.0, 90.0), (10.0, 10.0, 0.0)],
+    [
+        (0.6, 179.0, 1.6),
+        (179.0, 0.6, -1.6),
+        (95.0, 90.0, 5.0),
+        (0.0, 90.0, 90.0),
+        (45.0, 135.0, 90.0),
+        (10.0, 10.0, 0.0),
+    ],
 )
 def test_axial_wrap(measured, expected, deviation):
     # DESIGN convention: deviation = measured - expected wrapped to (-90, 90].

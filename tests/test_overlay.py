@@ -74,7 +74,12 @@ def _histogram(peak_deg: float | None, bins: int = 36) -> Histogram:
 
 
 def make_face(
-    *, lay_deg: float = 90.37, deviating: bool = True, cell_lay: float = 90.0, patch_lay: float = 30.0, name: str = "face"
+    *,
+    lay_deg: float = 90.37,
+    deviating: bool = True,
+    cell_lay: float = 90.0,
+    patch_lay: float = 30.0,
+    name: str = "face",
 ) -> RegionResult:
     x, y, w, h = FACE_RECT
     grid_shape = (h // CELL, w // CELL)
@@ -170,7 +175,12 @@ def make_ring(*, wrong: bool = True, fitted: bool = False, name: str = "ring") -
         flags = block
     t = np.linspace(0.0, 2 * math.pi, 48, endpoint=False)
     outline = tuple((RING_CENTRE[0] + RING_RADIUS * math.cos(a), RING_CENTRE[1] + RING_RADIUS * math.sin(a)) for a in t)
-    extra = {"centre_px": list(RING_CENTRE), "mean_cell_coherence": 0.9123, "rms_cell_deviation_deg": 0.512, "texture_to_noise": 88.51}
+    extra = {
+        "centre_px": list(RING_CENTRE),
+        "mean_cell_coherence": 0.9123,
+        "rms_cell_deviation_deg": 0.512,
+        "texture_to_noise": 88.51,
+    }
     if fitted:
         extra["centre_fitted"] = True
     return RegionResult(
@@ -185,7 +195,9 @@ def make_ring(*, wrong: bool = True, fitted: bool = False, name: str = "ring") -
         patches=(),
         histogram=_histogram(None),
         verdict=RegionVerdict.FAIL if wrong else RegionVerdict.PASS,
-        reasons=("lay is on average 0.4° off the circles about the centre (tolerance 4°)",) if wrong else ("circular lay as required",),
+        reasons=("lay is on average 0.4° off the circles about the centre (tolerance 4°)",)
+        if wrong
+        else ("circular lay as required",),
         lay_pattern="circular",
         outline_px=(outline,),
         cells=CellGrid(RING_ORIGIN, CELL, lay, np.full((n, n), 0.9), expected, flags),

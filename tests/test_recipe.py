@@ -59,7 +59,9 @@ def _problems(text: str) -> list[str]:
 
 def test_typo_key_is_named_with_its_line():
     problems = _problems(GOOD.replace("tolerance_deg: 1", "tolerence_deg: 1"))
-    assert problems == ["bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_defect_fraction, cell_px, sigma_px)"]
+    assert problems == [
+        "bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_defect_fraction, cell_px, sigma_px)"
+    ]
 
 
 def test_every_problem_is_reported_at_once():
@@ -90,7 +92,10 @@ regions:
         (("lay_deg: 90", "lay_deg: ninety"), r"regions\[0\]\(face\)\.lay_deg: must be a number \(got 'ninety'"),
         (("rect: [10, 10, 100, 200]", "rect: [10, 10]"), r"rect: must be 4 numbers \[x, y, w, h\]"),
         (("revision: 3", "revision: -1"), r"revision: out of range \(got -1, allowed >= 0\)"),
-        (("  tolerance_deg: 2.5", "  tolerance_deg: 0"), r"defaults\.tolerance_deg: out of range \(got 0, allowed > 0 and <= 45\)"),
+        (
+            ("  tolerance_deg: 2.5", "  tolerance_deg: 0"),
+            r"defaults\.tolerance_deg: out of range \(got 0, allowed > 0 and <= 45\)",
+        ),
         (("lay: C", "lay: C\n    lay_deg: 10"), r"regions\[1\]\(pad\)\.lay_deg: not used with lay 'C'"),
         (("datum: image", "datum: image\npixel_size_mm: 0"), r"pixel_size_mm: out of range \(got 0, allowed > 0\)"),
     ],
@@ -129,18 +134,25 @@ def test_bundled_recipes_are_valid():
 
 def test_messages_say_what_is_wrong_in_words():
     problems = _problems(GOOD.replace("lay_deg: 90", "lay_deg: ninety"))
-    assert any("regions[0](face).lay_deg: must be a number (got 'ninety', allowed 0 <= lay_deg < 180)" in p for p in problems)
+    assert any(
+        "regions[0](face).lay_deg: must be a number (got 'ninety', allowed 0 <= lay_deg < 180)" in p for p in problems
+    )
     # an unknown pattern is one problem, not also a "missing lay_deg"
     problems = _problems(GOOD.replace("lay: C", "lay: diagonal"))
     assert len(problems) == 1 and "unknown lay pattern (got 'diagonal'" in problems[0]
     # a region given as a plain value is named at its own line
     problems = _problems("recipe: r\nrevision: 1\nregions:\n  - face\n")
-    assert problems == ["bad.yaml:4: regions[0]: must be a mapping of region keys such as name, rect, lay_deg (got 'face')"]
+    assert problems == [
+        "bad.yaml:4: regions[0]: must be a mapping of region keys such as name, rect, lay_deg (got 'face')"
+    ]
 
 
 def test_crossed_directions_must_be_told_apart_by_the_tolerance():
     text = "recipe: r\nrevision: 1\nregions:\n  - name: x\n    rect: [0, 0, 9, 9]\n    lay: X\n    lay_deg: [10, 14]\n    tolerance_deg: 3\n"
-    with pytest.raises(RecipeError, match=r"the two directions must differ by more than twice the tolerance \(got \[10.0, 14.0\], tolerance 3°\)"):
+    with pytest.raises(
+        RecipeError,
+        match=r"the two directions must differ by more than twice the tolerance \(got \[10.0, 14.0\], tolerance 3°\)",
+    ):
         parse_recipe(text, "x.yaml")
     # 178 and 2 are 4 deg apart across the wrap
     with pytest.raises(RecipeError, match="differ by more than twice"):

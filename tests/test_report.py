@@ -49,7 +49,9 @@ REPORT_ID = "B-2031-0402-01"
 
 
 def batch_of_three():
-    good = make_part("LW-220-0001", regions=(make_face(deviating=False, lay_deg=90.123), make_pad(textured=True)), sha_seed="b")
+    good = make_part(
+        "LW-220-0001", regions=(make_face(deviating=False, lay_deg=90.123), make_pad(textured=True)), sha_seed="b"
+    )
     bad = make_part("LW-220-0002", datum=DatumInfo("part-edge", 1.5, (20.0, 340.0), 0.998), sha_seed="c")
     review = make_part("LW-220-0003", regions=(make_face(deviating=False, lay_deg=89.5), make_pad()), sha_seed="d")
     return [good, bad, review]
@@ -194,7 +196,18 @@ def test_patch_box_drawn_where_the_json_says(three, tmp_path):
     path = tmp_path / "r.pdf"
     path.write_bytes(pdf)
     subprocess.run(
-        ["pdftoppm", "-png", "-r", str(dpi), "-f", str(index + 1), "-l", str(index + 1), str(path), str(tmp_path / "p")],
+        [
+            "pdftoppm",
+            "-png",
+            "-r",
+            str(dpi),
+            "-f",
+            str(index + 1),
+            "-l",
+            str(index + 1),
+            str(path),
+            str(tmp_path / "p"),
+        ],
         check=True,
     )
     (png,) = tmp_path.glob("p*.png")
@@ -213,7 +226,9 @@ def test_pdf_renders_every_page(three, tmp_path):
         pytest.skip("poppler's pdftoppm is not installed (Debian package poppler-utils): cannot render the PDF")
     path = tmp_path / "r.pdf"
     path.write_bytes(pdf)
-    done = subprocess.run(["pdftoppm", "-png", "-r", "30", str(path), str(tmp_path / "p")], capture_output=True, text=True)
+    done = subprocess.run(
+        ["pdftoppm", "-png", "-r", "30", str(path), str(tmp_path / "p")], capture_output=True, text=True
+    )
     assert done.returncode == 0 and "Error" not in done.stderr, done.stderr
     pngs = sorted(tmp_path.glob("p*.png"))
     assert len(pngs) == len(reader.pages)
@@ -245,7 +260,9 @@ def test_signoff_block_empty_then_filled():
     text = unsigned.pages[0].extract_text()
     assert "SIGN-OFF" in text and "NOT SIGNED" in text
     sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, record_sha256="cd" * 32)
-    signed = PdfReader(io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN, signoff=sign)))
+    signed = PdfReader(
+        io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN, signoff=sign))
+    )
     text = signed.pages[0].extract_text()
     assert "NOT SIGNED" not in text
     for value in ("Anna Berg", "APPROVED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
@@ -373,7 +390,9 @@ def test_part_without_regions_and_iso_time_string():
     from surfinspect.results import PartVerdict
 
     lost = dataclasses.replace(
-        make_part("CP-14-0009", regions=()), verdict=PartVerdict.REVIEW, reasons=("part frame not found: no straight edge",)
+        make_part("CP-14-0009", regions=()),
+        verdict=PartVerdict.REVIEW,
+        reasons=("part frame not found: no straight edge",),
     )
     pdf = render_report([lost], [make_pixels()], report_id="Z", generated_at="2031-04-02T09:00:00Z")
     texts = page_texts(PdfReader(io.BytesIO(pdf)))
@@ -391,7 +410,9 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     assert all("NOT SIGNED" in t for t in unsigned)
     comment = "Released after re-brushing of panel 0002; " + "checked against drawing LW-220 sheet 2 " * 4
     sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
-    signed = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign))))
+    signed = page_texts(
+        PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign)))
+    )
     # reference: the SignOff fields of results.py, printed verbatim on every page
     assert all(signoff_state(sign) in t and "NOT SIGNED" not in t for t in signed)
     assert signoff_state(sign) == "Signed: APPROVED by Anna Berg, 2031-04-02T10:30:00Z"
@@ -428,10 +449,17 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
     # invented comment: Japanese for "checked" (outside Latin-1), then enough words to wrap onto several rows
     comment = "検査済み: panel 0002 re-brushed, é and € kept; " + "checked against drawing LW-220 sheet 2 " * 6
     sign = SignOff(
-        "Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment,
-        record_sha256="cd" * 32, report_sha256="ef" * 32,
+        "Anna Berg",
+        "approved",
+        "2031-04-02T10:30:00Z",
+        "ab" * 32,
+        comment=comment,
+        record_sha256="cd" * 32,
+        report_sha256="ef" * 32,
     )
-    reader = PdfReader(io.BytesIO(render_report(parts, [make_pixels()] * 3, report_id="F", generated_at=WHEN, signoff=sign)))
+    reader = PdfReader(
+        io.BytesIO(render_report(parts, [make_pixels()] * 3, report_id="F", generated_at=WHEN, signoff=sign))
+    )
     page = reader.pages[0]
     text = page.extract_text()
     assert "Covers report" in text and "SHA-256 " + "ef" * 32 in text
@@ -538,8 +566,12 @@ def test_picture_fills_the_page_when_the_part_fits_on_it():
     pdf = render_report([tall], [make_pixels(300, 600)], report_id="P", generated_at=WHEN)
     assert len(PdfReader(io.BytesIO(pdf)).pages) == 2
     assert 340.0 < drawn_height(pdf) <= 470.0  # taller than the default, and the part still on one page
-    many = make_part(regions=tuple(make_face(name=f"zone-{k}", deviating=False) for k in range(14)), width=300, height=600)
-    assert drawn_height(render_report([many], [make_pixels(300, 600)], report_id="P", generated_at=WHEN)) == pytest.approx(340.0, abs=0.01)
+    many = make_part(
+        regions=tuple(make_face(name=f"zone-{k}", deviating=False) for k in range(14)), width=300, height=600
+    )
+    assert drawn_height(
+        render_report([many], [make_pixels(300, 600)], report_id="P", generated_at=WHEN)
+    ) == pytest.approx(340.0, abs=0.01)
 
 
 def test_patch_table_names_patches_as_the_picture_does():

@@ -14,9 +14,7 @@ from surfinspect.errors import InputError
 # RFC 8032, section 7.1, "TEST 1" (https://doi.org/10.17487/RFC8032): an empty message.
 RFC8032_SECRET_KEY = "9d61b19deffd5a60ba844af492ec2cc44449c5697b326919703bac031cae7f60"
 RFC8032_PUBLIC_KEY = "d75a980182b10ab7d54bfed3c964073a0ee172f3daa62325af021a68f707511a"
-RFC8032_SIGNATURE = (
-    "e5564300c360ac729086e2cc806e828a84877f1eb8e5d974d873e065224901555fb8821590a33bacc61e39701cf9b46bd25bf5f0595bbe24655141438e7a100b"
-)
+RFC8032_SIGNATURE = "e5564300c360ac729086e2cc806e828a84877f1eb8e5d974d873e065224901555fb8821590a33bacc61e39701cf9b46bd25bf5f0595bbe24655141438e7a100b"
 
 
 def test_rfc8032_test_vector_1_through_project_functions():
@@ -91,7 +89,9 @@ def test_record_signature_binds_every_field():
 
 def test_record_meaning_is_checked():
     key = signing.SigningKey.generate("R. OSTERMANN")
-    with pytest.raises(InputError, match=r"--meaning: unknown meaning \(got 'ok', allowed approved, rejected, reviewed\)"):
+    with pytest.raises(
+        InputError, match=r"--meaning: unknown meaning \(got 'ok', allowed approved, rejected, reviewed\)"
+    ):
         _record(key, meaning="ok")
 
 

@@ -5,8 +5,8 @@ import math
 import numpy as np
 import pytest
 
-from surfinspect.errors import InputError
 from surfinspect import targets
+from surfinspect.errors import InputError
 from surfinspect.targets import (
     A4_MM,
     MM_PER_INCH,
@@ -26,7 +26,9 @@ LAY_3_4 = math.degrees(math.atan2(3, 4))
 
 
 @pytest.mark.parametrize("kind", ["sine", "square"])
-@pytest.mark.parametrize(("lay", "d_col", "d_row"), [(LAY_3_4, 4, -3), (180 - LAY_3_4, -4, -3), (0.0, 1, 0), (90.0, 0, -1)])
+@pytest.mark.parametrize(
+    ("lay", "d_col", "d_row"), [(LAY_3_4, 4, -3), (180 - LAY_3_4, -4, -3), (0.0, 1, 0), (90.0, 0, -1)]
+)
 def test_intensity_is_constant_along_the_lay(kind, lay, d_col, d_row):
     # Analytic: I depends only on u = -sin(lay) x + cos(lay) y_up, which a step along the lay leaves unchanged.
     g = render_grating((64, 64), lay, 9.3, kind=kind).astype(np.float64)
@@ -210,8 +212,7 @@ def test_rendered_png_target_is_measured_with_bias_under_005_deg(tmp_path, kind)
     from surfinspect.recipe import load_recipe
 
     nominals = [0.0, 30.0, 45.0, 60.0, 90.0, 120.0, 165.5]
-    sheet, rects = write_target_png(tmp_path / "t.png", nominals, period_mm=1.0, size_mm=(18, 18), dpi=250,
-                                    kind=kind)
+    sheet, rects = write_target_png(tmp_path / "t.png", nominals, period_mm=1.0, size_mm=(18, 18), dpi=250, kind=kind)
     write_target_recipe(tmp_path / "t.yaml", "target", sheet, rects, tolerance_deg=0.5)
     image = read_image(tmp_path / "t.png")
     result = inspect_image(image.pixels, load_recipe(tmp_path / "t.yaml"), image_info=image.info)
@@ -252,8 +253,11 @@ def test_sheet_over_the_megapixel_limit_is_refused_before_it_is_allocated():
     # Expected size from the sheet's millimetres: rows and columns = mm * dpi / 25.4, rounded.
     cols, rows = (round(v * dpi / MM_PER_INCH) for v in sheet.size_mm)
     assert rows * cols > 200e6
-    with pytest.raises(InputError, match=rf"--dpi: a sheet of {cols} x {rows} px at 4800 dpi would be .* megapixels "
-                       r"\(allowed at most 200"):
+    with pytest.raises(
+        InputError,
+        match=rf"--dpi: a sheet of {cols} x {rows} px at 4800 dpi would be .* megapixels "
+        r"\(allowed at most 200",
+    ):
         render_sheet(sheet, period_mm=1.0, dpi=dpi)
 
 
@@ -269,8 +273,15 @@ def test_pdf_rasters_over_the_megapixel_limit_are_refused(tmp_path):
 @pytest.mark.parametrize("tolerance", [0.0, -0.5, 45.5, float("inf")])
 def test_recipe_tolerance_outside_what_a_recipe_accepts_leaves_no_png(tmp_path, tolerance):
     with pytest.raises(InputError, match=r"--tolerance-deg: must be 0 < tolerance <= 45 degrees \(got "):
-        write_target_png(tmp_path / "t.png", [0], period_mm=1.0, size_mm=(20, 20), dpi=150,
-                         recipe_path=tmp_path / "t.yaml", tolerance_deg=tolerance)
+        write_target_png(
+            tmp_path / "t.png",
+            [0],
+            period_mm=1.0,
+            size_mm=(20, 20),
+            dpi=150,
+            recipe_path=tmp_path / "t.yaml",
+            tolerance_deg=tolerance,
+        )
     assert list(tmp_path.iterdir()) == []
 
 
@@ -278,8 +289,15 @@ def test_recipe_tolerance_range_is_the_one_recipes_accept(tmp_path):
     from surfinspect.errors import RecipeError
     from surfinspect.recipe import load_recipe
 
-    sheet, rects = write_target_png(tmp_path / "t.png", [30], period_mm=1.0, size_mm=(20, 20), dpi=150,
-                                    recipe_path=tmp_path / "t.yaml", tolerance_deg=45.0)
+    sheet, rects = write_target_png(
+        tmp_path / "t.png",
+        [30],
+        period_mm=1.0,
+        size_mm=(20, 20),
+        dpi=150,
+        recipe_path=tmp_path / "t.yaml",
+        tolerance_deg=45.0,
+    )
     assert load_recipe(tmp_path / "t.yaml").regions[0].tolerance_deg == 45.0  # the upper end is accepted
     # the lower end is excluded by the recipe loader too (the reason for the check)
     text = target_recipe_yaml("t", sheet, rects, tolerance_deg=1.0).replace("tolerance_deg: 1.0", "tolerance_deg: 0")
@@ -291,5 +309,7 @@ def test_recipe_tolerance_range_is_the_one_recipes_accept(tmp_path):
 def test_grating_too_small_for_a_recipe_region_is_refused(tmp_path):
     # 4 mm at 150 dpi is 24 px: 24 - 2 * 8 px margin = 8 px, under the 16 px smallest region side.
     with pytest.raises(InputError, match=r"--size-mm: a grating of 24 x 24 px leaves a region under 16 px"):
-        write_target_png(tmp_path / "t.png", [0], period_mm=1.0, size_mm=(4, 4), dpi=150, recipe_path=tmp_path / "t.yaml")
+        write_target_png(
+            tmp_path / "t.png", [0], period_mm=1.0, size_mm=(4, 4), dpi=150, recipe_path=tmp_path / "t.yaml"
+        )
     assert list(tmp_path.iterdir()) == []

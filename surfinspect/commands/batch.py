@@ -28,11 +28,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="folder of images (PNG, TIFF, JPEG, BMP)")
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
-    parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch id; run again with the same id to finish a stopped batch")
+    parser.add_argument(
+        "--batch-id",
+        required=True,
+        metavar="ID",
+        help="the batch id; run again with the same id to finish a stopped batch",
+    )
     parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: every core)")
     parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
-    parser.add_argument("--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here")
+    parser.add_argument(
+        "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+    )
 
 
 class _Progress:

@@ -29,11 +29,16 @@ HELP = "measure known-angle target images: bias and repeatability per nominal an
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="recipe whose regions cover the target gratings")
     parser.add_argument("images", metavar="IMAGE", nargs="+", help="target images (repeat images for repeatability)")
-    parser.add_argument("--nominal-lay", type=float, metavar="DEG",
-                        help="nominal lay of every region (default: each region's lay_deg in the recipe)")
+    parser.add_argument(
+        "--nominal-lay",
+        type=float,
+        metavar="DEG",
+        help="nominal lay of every region (default: each region's lay_deg in the recipe)",
+    )
     parser.add_argument("--region", action="append", metavar="NAME", help="use only this region (repeatable)")
-    parser.add_argument("--max-bias", type=float, metavar="DEG",
-                        help="exit 1 when any nominal's |bias| exceeds DEG (> 0)")
+    parser.add_argument(
+        "--max-bias", type=float, metavar="DEG", help="exit 1 when any nominal's |bias| exceeds DEG (> 0)"
+    )
     parser.add_argument("--json", metavar="FILE", help="write the measurements and the study as JSON")
 
 
@@ -129,5 +134,7 @@ def _report(study: gauge.BiasStudy, console: Console) -> None:
     console.info(
         f"linearity: bias = {lin.slope:+.6f} x nominal {lin.intercept:+.4f}°  (n = {lin.n}, R² = {lin.r_squared:.3f})"
     )
-    console.info(f"  slope {level} CI {lin.slope_ci[0]:+.6f} .. {lin.slope_ci[1]:+.6f} per degree (p = {lin.slope_p_value:.4f})")
+    console.info(
+        f"  slope {level} CI {lin.slope_ci[0]:+.6f} .. {lin.slope_ci[1]:+.6f} per degree (p = {lin.slope_p_value:.4f})"
+    )
     console.info(f"  intercept {level} CI {lin.intercept_ci[0]:+.4f} .. {lin.intercept_ci[1]:+.4f}°")

@@ -24,7 +24,10 @@ def run(args: argparse.Namespace, console: Console) -> int:
         except RecipeError as exc:
             problems.extend(exc.problems)
             continue
-        regions = ", ".join(f"{g.name} ({g.lay.value}{'' if not g.lay_deg else ' ' + '/'.join(f'{a:g}°' for a in g.lay_deg)})" for g in r.regions)
+        regions = ", ".join(
+            f"{g.name} ({g.lay.value}{'' if not g.lay_deg else ' ' + '/'.join(f'{a:g}°' for a in g.lay_deg)})"
+            for g in r.regions
+        )
         console.info(f"{path}: ok: recipe {r.name} revision {r.revision}, datum {r.datum}, regions: {regions}")
     if problems:
         from ..errors import InputError

@@ -26,7 +26,9 @@ def _project_dir(given: str | None) -> Path:
         if (c / "recipes").is_dir() and (c / "demo_parts").is_dir():
             return c
     where = given or "the current folder or the source checkout"
-    raise InputError(f"{where}: no recipes/ and demo_parts/ folders found (run the demo from the project checkout, or give --project DIR)")
+    raise InputError(
+        f"{where}: no recipes/ and demo_parts/ folders found (run the demo from the project checkout, or give --project DIR)"
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:

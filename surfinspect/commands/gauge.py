@@ -35,26 +35,37 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "study", metavar="STUDY.csv", help="study table with columns part, appraiser, trial and value (or image)"
     )
     parser.add_argument(
-        "--tolerance", required=True, type=float, metavar="T",
+        "--tolerance",
+        required=True,
+        type=float,
+        metavar="T",
         help="tolerance width USL - LSL in the units of the values (a recipe tolerance of ±3° is 6)",
     )
     parser.add_argument("--recipe", metavar="RECIPE", help="for a table of images: the recipe to inspect them with")
     parser.add_argument(
-        "--region", metavar="NAME", help="for a table of images: the region whose lay deviation is the value "
-        "(default: the recipe's only region)"
+        "--region",
+        metavar="NAME",
+        help="for a table of images: the region whose lay deviation is the value (default: the recipe's only region)",
     )
     parser.add_argument("--json", metavar="FILE", help="write the full result as JSON")
     parser.add_argument("--pdf", metavar="FILE", help="write the one-page study report as PDF")
     parser.add_argument(
-        "--basis", choices=("both", "tolerance", "total-variation"), default="both",
+        "--basis",
+        choices=("both", "tolerance", "total-variation"),
+        default="both",
         help="which %%GRR the verdict is judged on (default: the larger of the two)",
     )
     parser.add_argument(
-        "--resolution", type=float, metavar="R",
+        "--resolution",
+        type=float,
+        metavar="R",
         help="the gauge's resolution (default: the smallest step seen between study values)",
     )
     parser.add_argument(
-        "--interaction-alpha", type=float, default=gauge.INTERACTION_ALPHA, metavar="A",
+        "--interaction-alpha",
+        type=float,
+        default=gauge.INTERACTION_ALPHA,
+        metavar="A",
         help="pool the part x appraiser interaction when its p-value is at least A (default %(default)s)",
     )
 

@@ -12,10 +12,16 @@ HELP = "make an Ed25519 key pair for signing batch reports off"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--name", required=True, metavar="PRINTED NAME", help="the signer's name as printed on signed reports")
-    parser.add_argument("--out", required=True, metavar="KEYFILE", help="private key file to write (KEYFILE.pub gets the public key)")
     parser.add_argument(
-        "--passphrase-env", metavar="VAR", help="protect the private key with the passphrase held in environment variable VAR"
+        "--name", required=True, metavar="PRINTED NAME", help="the signer's name as printed on signed reports"
+    )
+    parser.add_argument(
+        "--out", required=True, metavar="KEYFILE", help="private key file to write (KEYFILE.pub gets the public key)"
+    )
+    parser.add_argument(
+        "--passphrase-env",
+        metavar="VAR",
+        help="protect the private key with the passphrase held in environment variable VAR",
     )
 
 

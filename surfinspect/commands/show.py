@@ -22,7 +22,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
     parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
     parser.add_argument(
-        "--out", metavar="DIR", help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named"
+        "--out",
+        metavar="DIR",
+        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named",
     )
 
 
@@ -82,8 +84,10 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
     parts = arc.parts(batch_id)
     counts = archive.verdict_counts(parts)
     console.info(f"batch {b.batch_id}: recipe {b.recipe_name} rev {b.recipe_revision} (sha256 {b.recipe_sha256})")
-    console.info(f"operator {b.operator or '-'}, station {b.station or '-'}, started {b.started_at}, "
-                 f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}")
+    console.info(
+        f"operator {b.operator or '-'}, station {b.station or '-'}, started {b.started_at}, "
+        f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}"
+    )
     console.info(", ".join(f"{n} {v}" for v, n in counts.items() if n) or "no parts")
     if b.report_sha256:
         console.info(
@@ -104,8 +108,15 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
         console.table(
             ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "comment"],
             [
-                [s.signoff_no, s.signer_name, s.meaning, s.signed_at_utc, s.key_fingerprint[:16] + "…",
-                 str(arc.object_path(s.signed_report_sha256).relative_to(arc.root)), s.comment]
+                [
+                    s.signoff_no,
+                    s.signer_name,
+                    s.meaning,
+                    s.signed_at_utc,
+                    s.key_fingerprint[:16] + "…",
+                    str(arc.object_path(s.signed_report_sha256).relative_to(arc.root)),
+                    s.comment,
+                ]
                 for s in signoffs
             ],
         )

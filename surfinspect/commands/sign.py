@@ -47,7 +47,9 @@ def run(args: argparse.Namespace, console: Console) -> int:
         edition = arc.object_path(row.signed_report_sha256)
         if out is not None:
             write_bytes_atomic(out, edition.read_bytes())
-    console.info(f"batch {row.batch_id}: sign-off #{row.signoff_no}, {row.meaning} by {row.signer_name} at {row.signed_at_utc}")
+    console.info(
+        f"batch {row.batch_id}: sign-off #{row.signoff_no}, {row.meaning} by {row.signer_name} at {row.signed_at_utc}"
+    )
     console.info(f"key fingerprint {row.key_fingerprint}")
     console.info(f"signed report (a PDF stored under its hash, without a suffix): {edition}")
     if out is not None:

@@ -25,21 +25,45 @@ def _angles(text: str) -> list[float]:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--lay", required=True, type=_angles, metavar="DEG,DEG,...",
-                        help="nominal lay angles in [0, 180), counter-clockwise from +X with +Y up")
-    parser.add_argument("--period-mm", required=True, type=float, metavar="P", help="grating period across the lines, mm")
-    parser.add_argument("--size-mm", required=True, type=float, nargs=2, metavar=("W", "H"), help="grating width and height, mm")
+    parser.add_argument(
+        "--lay",
+        required=True,
+        type=_angles,
+        metavar="DEG,DEG,...",
+        help="nominal lay angles in [0, 180), counter-clockwise from +X with +Y up",
+    )
+    parser.add_argument(
+        "--period-mm", required=True, type=float, metavar="P", help="grating period across the lines, mm"
+    )
+    parser.add_argument(
+        "--size-mm", required=True, type=float, nargs=2, metavar=("W", "H"), help="grating width and height, mm"
+    )
     parser.add_argument("--out", required=True, metavar="FILE", help="the .pdf (or .png with --png) to write")
     parser.add_argument("--square", action="store_true", help="square-wave gratings (default: sine)")
     parser.add_argument("--png", action="store_true", help="write a PNG raster instead of a PDF")
     low, high = targets.DPI_RANGE
-    parser.add_argument("--dpi", type=float, default=600.0, metavar="N",
-                        help=f"PNG resolution, dots per inch, {low:g} to {high:g} (default %(default)g)")
-    parser.add_argument("--raster-dpi", type=float, default=600.0, metavar="N",
-                        help=f"resolution of the sine rasters inside the PDF, {low:g} to {high:g} (default %(default)g)")
+    parser.add_argument(
+        "--dpi",
+        type=float,
+        default=600.0,
+        metavar="N",
+        help=f"PNG resolution, dots per inch, {low:g} to {high:g} (default %(default)g)",
+    )
+    parser.add_argument(
+        "--raster-dpi",
+        type=float,
+        default=600.0,
+        metavar="N",
+        help=f"resolution of the sine rasters inside the PDF, {low:g} to {high:g} (default %(default)g)",
+    )
     parser.add_argument("--recipe", metavar="FILE.yaml", help="with --png: also write a recipe measuring each grating")
-    parser.add_argument("--tolerance-deg", type=float, default=0.5, metavar="DEG",
-                        help="tolerance of the regions in the --recipe file, 0 < DEG <= 45 (default %(default)g)")
+    parser.add_argument(
+        "--tolerance-deg",
+        type=float,
+        default=0.5,
+        metavar="DEG",
+        help="tolerance of the regions in the --recipe file, 0 < DEG <= 45 (default %(default)g)",
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
@@ -52,11 +76,19 @@ def run(args: argparse.Namespace, console: Console) -> int:
     check_output_file("--out", args.out, suffixes=(".png",) if args.png else (".pdf",))
     if args.recipe:
         targets.check_recipe_tolerance(args.tolerance_deg)
-        check_output_file("--recipe", args.recipe, suffixes=(".yaml", ".yml"), not_same_as=[("the --out file", args.out)])
+        check_output_file(
+            "--recipe", args.recipe, suffixes=(".yaml", ".yml"), not_same_as=[("the --out file", args.out)]
+        )
     if args.png:
         sheet, rects = targets.write_target_png(
-            args.out, args.lay, period_mm=args.period_mm, size_mm=size, dpi=args.dpi, kind=kind,
-            recipe_path=args.recipe, tolerance_deg=args.tolerance_deg,
+            args.out,
+            args.lay,
+            period_mm=args.period_mm,
+            size_mm=size,
+            dpi=args.dpi,
+            kind=kind,
+            recipe_path=args.recipe,
+            tolerance_deg=args.tolerance_deg,
         )
         console.info(
             f"wrote {args.out}: {len(sheet.gratings)} {kind} gratings, period {args.period_mm:g} mm "

@@ -13,7 +13,9 @@ HELP = "check every stored file, result, signature and the audit trail of an arc
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
-    parser.add_argument("--batch-id", metavar="ID", help="check this batch only (the audit trail is always checked whole)")
+    parser.add_argument(
+        "--batch-id", metavar="ID", help="check this batch only (the audit trail is always checked whole)"
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:

@@ -57,7 +57,9 @@ def speed() -> None:
     recipe = parse_recipe(RECIPE.format(w=cols, h=rows))
     inspect_image(img, recipe)  # warm-up (imports, thread pools)
     t_ours = best_of(3, lambda: inspect_image(img, recipe))
-    t_hog = best_of(2, lambda: hog(img, orientations=9, pixels_per_cell=(16, 16), cells_per_block=(1, 1), feature_vector=False))
+    t_hog = best_of(
+        2, lambda: hog(img, orientations=9, pixels_per_cell=(16, 16), cells_per_block=(1, 1), feature_vector=False)
+    )
     print(f"image                     {cols}x{rows} = {rows * cols / 1e6:.0f} MP, one full-frame region")
     print(f"inspect_image             {t_ours:8.3f} s")
     print(f"skimage hog (reference)   {t_hog:8.3f} s")
