@@ -306,7 +306,7 @@ def find_part_frame(
     # Pixel centres: full = (reduced + 0.5) * scale - 0.5.
     corners = (box + 0.5) * scale - 0.5
     area = float(np.count_nonzero(mask)) * float(np.prod(scale))
-    _check_filled_share(area / _polygon_area(corners), min_filled_share)
+    _check_filled_share(area / cv2.contourArea(corners.astype(np.float32)), min_filled_share)
 
     polarity = 1.0 if part_is_bright else -1.0
     half_widths = list(_SEARCH_HALF_WIDTHS_PX)
@@ -318,7 +318,7 @@ def find_part_frame(
     inliers = np.concatenate(residuals)
     quality = FitQuality(
         edge_rms_px=float(np.sqrt(np.mean(inliers**2))),
-        filled_share=area / _polygon_area(corners),
+        filled_share=area / cv2.contourArea(corners.astype(np.float32)),
         corner_error_deg=_corner_error_deg(lines),
         outlier_share=1.0 - inliers.size / sampled,
         edge_points=int(inliers.size),
@@ -432,11 +432,6 @@ def _outer_contour(mask: np.ndarray) -> np.ndarray:
 def _check_filled_share(share: float, minimum: float) -> None:
     if share < minimum:
         raise DatumError(f"outline is not rectangular: filled share {share:.2f} < {minimum:.2f}")
-
-
-def _polygon_area(corners: np.ndarray) -> float:
-    x, y = corners[:, 0], corners[:, 1]
-    return 0.5 * abs(float(np.dot(x, np.roll(y, -1)) - np.dot(y, np.roll(x, -1))))
 
 
 @dataclass(frozen=True)

@@ -257,7 +257,6 @@ def inspect_image(
             centre_px=centre_px,
             outline_px=outer,
             exclude_px=holes,
-            px_per_unit=frame.px_per_unit,
             pixel_size_mm=recipe.pixel_size_mm,
         )
         results.append(judge_region(region, m))

@@ -72,7 +72,6 @@ class RegionMeasurement:
     centre_px: tuple[float, float] | None  # image px, for circular / radial
     outline_px: tuple
     exclude_px: tuple
-    px_per_unit: float = 1.0  # image px per recipe unit
     pixel_size_mm: float | None = None
 
 

@@ -258,20 +258,6 @@ def _polygon_centroid(poly: np.ndarray) -> tuple[float, float]:
     return float(((x + xn) * cross).sum() / (6 * area)), float(((y + yn) * cross).sum() / (6 * area))
 
 
-def _polygon_area(poly: np.ndarray) -> float:
-    x, y = poly[:, 0], poly[:, 1]
-    return abs(float((x * np.roll(y, -1) - np.roll(x, -1) * y).sum()) / 2.0)
-
-
-def _expected_angles(region: RegionResult) -> tuple[float, ...]:
-    e = region.expected_lay_deg
-    if e is None:
-        return ()
-    if isinstance(e, tuple):
-        return tuple(float(v) for v in e)
-    return (float(e),)
-
-
 def expected_varies(expected_deg: np.ndarray) -> bool:
     """Whether a cell grid's expected lay changes across the region (circular or radial lay).
 
@@ -380,7 +366,7 @@ def build_scene(part: PartResult, width: int, height: int, *, min_glyph_spacing_
             allpts = np.concatenate(outlines)
             left, top = float(allpts[:, 0].min()), float(allpts[:, 1].min())
             span = min(np.ptp(allpts[:, 0]), np.ptp(allpts[:, 1]))
-            centre = _polygon_centroid(max(outlines, key=_polygon_area))
+            centre = _polygon_centroid(max(outlines, key=lambda p: cv2.contourArea(np.asarray(p, np.float32))))
         else:
             left = top = 0.0
             span = 0.0
@@ -396,7 +382,7 @@ def build_scene(part: PartResult, width: int, height: int, *, min_glyph_spacing_
                 label_anchor=(left, top),
                 centre=centre,
                 arrow_half_length=0.3 * float(span),
-                expected_screen_deg=tuple(e + rotation for e in _expected_angles(region)),
+                expected_screen_deg=tuple(e + rotation for e in region.expected_angles),
                 measured_screen_deg=tuple(m + rotation for m in measured_angles(region)),
                 glyphs=g.regular,
                 deviating_glyphs=g.deviating,

@@ -11,7 +11,7 @@ from __future__ import annotations
 import enum
 import hashlib
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -144,7 +144,6 @@ class Recipe:
     description: str = ""
     path: str = "<memory>"
     sha256: str = ""
-    defaults: dict = field(default_factory=dict, compare=False)
 
     def units_to_px(self) -> float:
         """Pixels per recipe coordinate unit (1 without ``pixel_size_mm``)."""
@@ -535,7 +534,6 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         description=description,
         path=source,
         sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
-        defaults=defaults,
     )
 
 

@@ -543,14 +543,7 @@ _JUDGED_ANGLE = ("directional", "crossed", *_CENTRED)  # patterns whose toleranc
 _ISO_1302_SYMBOL = {"crossed": "X", "multidirectional": "M", "particulate": "P", "circular": "C", "radial": "R"}
 
 
-def _expected_angles(d: Mapping) -> list[float]:
-    e = d["expected_lay_deg"]
-    if e is None:
-        return []
-    return [v for v in e if v is not None] if isinstance(e, list) else [e]
-
-
-def _expected_text(region: RegionResult, d: Mapping) -> str:
+def _expected_text(region: RegionResult) -> str:
     """What the recipe asks, in words where the lay has no one angle."""
     pattern = region.lay_pattern
     if pattern == "circular":
@@ -561,7 +554,7 @@ def _expected_text(region: RegionResult, d: Mapping) -> str:
         return "no dominant lay"
     if pattern == "any":
         return "any (not judged)"
-    angles = _expected_angles(d)
+    angles = region.expected_angles
     return " / ".join(format_angle(v, axial=True) for v in angles) if angles else "—"
 
 
@@ -690,7 +683,7 @@ def _region_table(fig: _PartFigures) -> Table:
         rows.append(
             [
                 Paragraph(name, _CELL_BOLD),
-                Paragraph(escape(_expected_text(region, d)), _CELL_RIGHT),
+                Paragraph(escape(_expected_text(region)), _CELL_RIGHT),
                 _tolerance_text(region, d),
                 Paragraph(escape(_measured_text(region, d)), _CELL_RIGHT),
                 _cell_with_note(
@@ -987,7 +980,7 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                     continue
                 cx = x + cell_w / 2
                 varies = region.lay_pattern in _CENTRED
-                expected = [] if varies else _expected_angles(d)
+                expected = [] if varies else list(region.expected_angles)
                 c.setFillColor(colors.black)
                 c.setFont("Helvetica-Bold", 7.5)
                 c.drawCentredString(cx, y - 9, f"{region.name}: orientation histogram")
@@ -995,11 +988,11 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                 _draw_rose(c, cx, y - 66, 46, region, expected, measured_angles(as_printed))
                 c.setFont("Helvetica", 6.5)
                 if varies:
-                    exp_text = f"expected {_expected_text(region, d)}: varies per cell"
+                    exp_text = f"expected {_expected_text(region)}: varies per cell"
                 elif expected:
                     exp_text = f"expected {' / '.join(format_angle(e, axial=True) for e in expected)} {_tolerance_text(region, d)}"
                 else:
-                    exp_text = f"expected {_expected_text(region, d)}"
+                    exp_text = f"expected {_expected_text(region)}"
                 c.drawCentredString(cx, y - 128, exp_text)
                 c.drawCentredString(cx, y - 136, f"measured {_measured_text(region, d)}")
 

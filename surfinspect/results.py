@@ -136,6 +136,14 @@ class RegionResult:
     cells: CellGrid | None = None
     extra: Mapping[str, Any] = field(default_factory=dict)  # pattern-specific figures
 
+    @property
+    def expected_angles(self) -> tuple[float, ...]:
+        """The expected lay direction(s) as a tuple: one, two (crossed) or none."""
+        e = self.expected_lay_deg
+        if e is None:
+            return ()
+        return tuple(float(v) for v in e if v is not None) if isinstance(e, tuple) else (float(e),)
+
 
 @dataclass(frozen=True)
 class DatumInfo:
