@@ -41,6 +41,7 @@ from ._version import __version__
 from .errors import InputError
 from .fsutil import atomic_path
 from .orientation import wrap_deviation
+from .results import CAUTION
 from .spc import D4_MOVING_RANGE
 
 __all__ = [
@@ -84,10 +85,6 @@ NDC_FACTOR = 1.41
 #: in the tests).
 D4_BY_SUBGROUP = {2: D4_MOVING_RANGE, 3: 2.574, 4: 2.282, 5: 2.114, 6: 2.004, 7: 1.924, 8: 1.864, 9: 1.816, 10: 1.777}
 
-CAUTION = (
-    "This measurement supports, and does not replace, the decision of the qualified "
-    "inspector and the customer's specification."
-)
 
 
 class GaugeVerdict(str, enum.Enum):

@@ -80,6 +80,7 @@ from .overlay import (
     place_labels,
 )
 from .results import (
+    CAUTION,
     PartResult,
     PartVerdict,
     RegionResult,
@@ -110,10 +111,6 @@ PAGE_SIZE = A4
 #: Long side of the embedded photo at most (about 220 dpi across the page's text width).
 PICTURE_MAX_PX = 1600
 JPEG_QUALITY = 82
-CAUTION = (
-    "The measurement supports, and does not replace, the qualified inspector's decision "
-    "and the customer's specification."
-)
 DEFAULT_TITLE = "Surface lay inspection report"
 
 #: A page that another module appends: it draws on the canvas, the report adds the footer.

@@ -17,6 +17,12 @@ import numpy as np
 
 SCHEMA = "surfinspect.part-result/1"
 
+#: Printed on every report, study page and target sheet.
+CAUTION = (
+    "The measurement supports, and does not replace, the qualified inspector's decision "
+    "and the customer's specification."
+)
+
 
 class RegionVerdict(str, enum.Enum):
     """Outcome of one region."""
