@@ -72,25 +72,46 @@ def sha256_file(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
-def ensure_output_dir(path: str | os.PathLike, flag: str) -> Path:
-    """Make the output folder given by a command-line flag, or say in one line why it cannot be.
+def check_output_dir(path: str | os.PathLike, flag: str) -> Path:
+    """Check, without making anything, that a flag's output folder can be made and written.
+
+    The folder itself is made by the first write into it, so a run that stops on
+    an input error leaves nothing behind, not even an empty folder.
 
     Raises
     ------
     InputError
-        When ``path`` is a file, or the folder cannot be made or written.
+        When ``path`` or one of its parents is a file, or the folder (or the
+        nearest existing parent) is not writable.
     """
     from .errors import InputError
 
     out = Path(path)
     if out.exists() and not out.is_dir():
         raise InputError(f"{flag} {out}: not a folder (a file of that name exists; allowed: a folder or a new name)")
+    existing = next(p for p in (out, *out.absolute().parents) if p.exists())
+    if not existing.is_dir():
+        raise InputError(f"{flag} {out}: {existing} is a file, not a folder")
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise InputError(f"{flag} {out}: no permission to write in {existing}")
+    return out
+
+
+def ensure_output_dir(path: str | os.PathLike, flag: str) -> Path:
+    """:func:`check_output_dir`, then make the folder.
+
+    Raises
+    ------
+    InputError
+        As :func:`check_output_dir`, or when the folder cannot be made.
+    """
+    from .errors import InputError
+
+    out = check_output_dir(path, flag)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise InputError(f"{flag} {out}: cannot make the folder ({exc.strerror or exc})") from None
-    if not os.access(out, os.W_OK):
-        raise InputError(f"{flag} {out}: the folder is not writable")
     return out
 
 

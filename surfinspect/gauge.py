@@ -86,7 +86,6 @@ NDC_FACTOR = 1.41
 D4_BY_SUBGROUP = {2: D4_MOVING_RANGE, 3: 2.574, 4: 2.282, 5: 2.114, 6: 2.004, 7: 1.924, 8: 1.864, 9: 1.816, 10: 1.777}
 
 
-
 class GaugeVerdict(str, enum.Enum):
     """Outcome of a gauge study."""
 

@@ -102,7 +102,11 @@ def test_unreadable_image_exit_2_and_nothing_written_for_it(setup):
     _assert_input_error(p, "broken.png")
     assert not (out / "broken.json").exists() and not (out / "broken.overlay.png").exists()
     assert (out / "good.json").exists()  # the other part is still inspected
-    _assert_input_error(run("inspect", recipe, tmp / "missing.png", "--out", out), "missing.png: image file not found")
+    fresh = tmp / "fresh"
+    _assert_input_error(
+        run("inspect", recipe, tmp / "missing.png", "--out", fresh), "missing.png: image file not found"
+    )
+    assert not fresh.exists()  # not even an empty output folder is left behind
 
 
 def test_region_outside_image_exit_2(setup):

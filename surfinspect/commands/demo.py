@@ -7,7 +7,7 @@ from pathlib import Path
 
 from ..console import Console
 from ..errors import InputError
-from ..fsutil import ensure_output_dir
+from ..fsutil import check_output_dir
 from ..recipe import load_recipe
 from ..runner import inspect_path, output_stems, print_results, run_exit_code, verdict_counts, write_part_report
 
@@ -39,7 +39,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.regenerate or not all((parts_dir / p.file).exists() for p in DEMO_PARTS):
         make_demo_parts(parts_dir)
         console.info(f"demo images written to {parts_dir}")
-    out = ensure_output_dir(args.out, "--out")
+    out = check_output_dir(args.out, "--out")
     all_outcomes = []
     by_recipe: dict[str, list] = {}
     for p in DEMO_PARTS:

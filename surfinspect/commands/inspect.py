@@ -6,7 +6,7 @@ import argparse
 from pathlib import Path
 
 from ..console import Console
-from ..fsutil import ensure_output_dir
+from ..fsutil import check_output_dir
 from ..recipe import load_recipe
 from ..runner import inspect_path, output_stems, print_results, run_exit_code, verdict_counts, write_part_report
 
@@ -23,7 +23,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe)
-    ensure_output_dir(args.out, "--out")
+    check_output_dir(args.out, "--out")
     outcomes, pixels = [], []
     for path, stem in zip(args.images, output_stems(args.images)):
         outcome, px = inspect_path(path, recipe, args.out, stem, keep_pixels=not args.no_report)
