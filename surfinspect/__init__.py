@@ -9,9 +9,9 @@ Public API::
 """
 
 from ._version import __version__
-from .engine import inspect_image
 from .errors import InputError, RecipeError
-from .imaging import read_image
+from .measure.engine import inspect_image
+from .measure.imaging import read_image
 from .recipe import LayPattern, Recipe, Region, load_recipe, parse_recipe
 from .results import PartResult, PartVerdict, RegionResult, RegionVerdict
 from .results import dumps as result_to_json

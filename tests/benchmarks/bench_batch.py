@@ -18,7 +18,8 @@ from pathlib import Path
 
 import cv2
 
-from surfinspect import batch, demo, synth
+from surfinspect.measure import synth
+from surfinspect.station import batch, demo
 
 RECIPE = Path(__file__).resolve().parents[2] / "recipes" / "lw-220-wall-panel.yaml"
 

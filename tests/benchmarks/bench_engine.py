@@ -32,7 +32,7 @@ regions:
 
 
 def brushed(rows: int, cols: int) -> np.ndarray:
-    from surfinspect import synth
+    from surfinspect.measure import synth
 
     tile = synth.brushed_panel((1000, 1000), 90.0, seed=1, shading=0.0)
     return np.tile(tile, (-(-rows // 1000), -(-cols // 1000)))[:rows, :cols].copy()

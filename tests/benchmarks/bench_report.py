@@ -21,11 +21,11 @@ from pathlib import Path
 
 import numpy as np
 
-from surfinspect import synth
-from surfinspect.engine import inspect_image
-from surfinspect.overlay import write_overlay_png
+from surfinspect.measure import synth
+from surfinspect.measure.engine import inspect_image
 from surfinspect.recipe import parse_recipe
-from surfinspect.report import render_report
+from surfinspect.report.overlay import write_overlay_png
+from surfinspect.report.pdf import render_report
 
 SHAPE = (3000, 4000)  # rows, cols: 12 megapixels
 WHEN = datetime(2031, 4, 2, 9, 0, tzinfo=timezone.utc)

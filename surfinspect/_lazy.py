@@ -1,0 +1,36 @@
+"""Lazy public names for the subpackages (PEP 562), so that ``surfinspect --version`` and
+``surfinspect check`` do not pay for importing OpenCV, SciPy and reportlab up front."""
+
+from __future__ import annotations
+
+import importlib
+from typing import Callable, Mapping
+
+
+def attach(package: str, names_by_module: Mapping[str, tuple[str, ...]]) -> tuple[Callable, Callable, list[str]]:
+    """Return ``__getattr__``, ``__dir__`` and ``__all__`` for a package.
+
+    Parameters
+    ----------
+    package : str
+        The package's ``__name__``.
+    names_by_module : mapping of str to tuple of str
+        Submodule name (relative to the package) to the public names it provides. A submodule
+        itself is also reachable as an attribute.
+    """
+    where = {name: module for module, names in names_by_module.items() for name in names}
+    submodules = set(names_by_module)
+
+    def __getattr__(name: str):
+        if name in where:
+            value = getattr(importlib.import_module(f"{package}.{where[name]}"), name)
+        elif name in submodules:
+            value = importlib.import_module(f"{package}.{name}")
+        else:
+            raise AttributeError(f"module {package!r} has no attribute {name!r}")
+        return value
+
+    def __dir__() -> list[str]:
+        return sorted(set(where) | submodules)
+
+    return __getattr__, __dir__, sorted(where)

@@ -1,0 +1,158 @@
+"""``surfinspect batch``: inspect a folder of images in parallel into the archive.
+
+Exit code: 1 when any part is rejected, else 3 when any part needs review, has
+an unreadable image or was not recorded (the batch stopped), else 0; 2 for an
+input error that stops the whole batch (see :mod:`surfinspect.batch`).
+Stopped by a signal (Ctrl-C, SIGTERM, SIGHUP), the batch ends its worker
+processes and exits with 128 + the signal number, as a shell reports a
+process killed by that signal: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import shlex
+import signal
+import threading
+from pathlib import Path
+from typing import Iterator
+
+from ..archive import store as archive
+from ..station import batch
+from .console import Console
+
+HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
+    parser.add_argument("folder", metavar="FOLDER", help="folder of images (PNG, TIFF, JPEG, BMP)")
+    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
+    parser.add_argument(
+        "--batch-id",
+        required=True,
+        metavar="ID",
+        help="the batch id; run again with the same id to finish a stopped batch",
+    )
+    parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: every core)")
+    parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
+    parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
+    parser.add_argument(
+        "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+    )
+
+
+class _Progress:
+    """A progress bar on a terminal, one plain line per part otherwise."""
+
+    def __init__(self, console: Console):
+        self.console = console
+        self.bar = None
+        self.last: batch.PartDone | None = None
+        if console.is_terminal and not console.quiet:
+            from tqdm import tqdm
+
+            self.bar = tqdm(file=console.err, unit="part", dynamic_ncols=True)
+
+    def __call__(self, done: batch.PartDone) -> None:
+        self.last = done
+        if self.bar is not None:
+            self.bar.total = done.total
+            self.bar.n = done.done
+            self.bar.set_postfix_str(f"{done.part_key}: {done.verdict}", refresh=True)
+        else:
+            note = f" ({done.error})" if done.error else ""
+            self.console.info(f"[{done.done}/{done.total}] {done.part_key}: {done.verdict}{note}")
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
+
+
+class _Stopped(BaseException):
+    """A stop signal, raised in the main thread (a BaseException, like KeyboardInterrupt, so nothing swallows it)."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+#: Signals that stop a batch cleanly; SIGHUP (a closed terminal) is missing on some systems.
+_STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, name))
+
+
+def _raise_stopped(signum: int, frame) -> None:
+    for sig in _STOP_SIGNALS:  # a second signal must not cut the clean-up of the first short
+        signal.signal(sig, signal.SIG_IGN)
+    raise _Stopped(signum)
+
+
+@contextlib.contextmanager
+def _stop_signals_raise() -> Iterator[None]:
+    if threading.current_thread() is not threading.main_thread():
+        yield  # handlers can be set in the main thread only
+        return
+    previous = {sig: signal.signal(sig, _raise_stopped) for sig in _STOP_SIGNALS}
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    config = batch.BatchConfig(
+        recipe_path=Path(args.recipe),
+        folder=Path(args.folder),
+        archive_dir=Path(args.archive),
+        batch_id=args.batch_id,
+        jobs=args.jobs,
+        operator=args.operator,
+        recursive=args.recursive,
+        out_dir=Path(args.out) if args.out else None,
+    )
+    progress = _Progress(console)
+    try:
+        with _stop_signals_raise():
+            outcome = batch.run_batch(config, on_part=progress)
+    except _Stopped as stop:
+        progress.close()  # the bar's last line first, then the message
+        done = progress.last
+        recorded = f"{done.done} of {done.total} part(s) recorded" if done else "no part recorded in this run"
+        console.error(
+            f"batch {args.batch_id}: interrupted ({signal.Signals(stop.signum).name}); {recorded}; "
+            "run again with the same --batch-id to finish"
+        )
+        return 128 + stop.signum
+    finally:
+        progress.close()
+    counts = outcome.counts
+    if outcome.was_finished:
+        console.info(f"batch {outcome.batch_id} was already finished: nothing inspected")
+    elif outcome.resumed:
+        console.info(f"batch {outcome.batch_id} resumed: {outcome.inspected_now} part(s) inspected now")
+    summary = ", ".join(f"{counts[v]} {v}" for v in ("accept", "reject", "review", "error", "pending") if counts[v])
+    console.info(f"batch {outcome.batch_id}: {len(outcome.parts)} parts: {summary}")
+    for key, message in outcome.errors:
+        console.warn(f"{key}: not inspected: {message}")
+    if outcome.interruption:
+        console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
+    elif args.out:
+        console.info(f"report, CSV, results and overlays written to {args.out}")
+    else:
+        _say_where_the_report_is(args, console)
+    return outcome.exit_code
+
+
+def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
+    with archive.Archive(args.archive) as arc:
+        report = arc.batch(args.batch_id).report_sha256
+        if report is None:
+            return
+        console.info(f"report (a PDF stored under its hash, without a suffix): {arc.object_path(report)}")
+    console.info(
+        "readable copies (report.pdf, regions.csv, each part's JSON and overlay): "
+        f"surfinspect show --archive {shlex.quote(args.archive)} --batch-id {args.batch_id} --out DIR"
+    )

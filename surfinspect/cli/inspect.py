@@ -1,0 +1,48 @@
+"""surfinspect inspect RECIPE IMAGE... --out DIR"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from ..fsutil import check_output_dir
+from ..recipe import load_recipe
+from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
+from ._results_table import print_results
+from .console import Console
+
+HELP = "measure and judge the lay of one or more part images against a recipe"
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("recipe", help="recipe YAML file")
+    p.add_argument("images", nargs="+", metavar="IMAGE", help="part images (PNG, TIFF, JPEG, BMP)")
+    p.add_argument("--out", "-o", default="surfinspect-out", metavar="DIR", help="output folder (default: %(default)s)")
+    p.add_argument("--operator", metavar="NAME", help="who inspected, printed in the report")
+    p.add_argument("--no-report", action="store_true", help="write JSON and overlays only, no PDF")
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    recipe = load_recipe(args.recipe)
+    check_output_dir(args.out, "--out")
+    outcomes, pixels = [], []
+    for path, stem in zip(args.images, output_stems(args.images)):
+        outcome, px = inspect_path(path, recipe, args.out, stem, keep_pixels=not args.no_report)
+        if outcome.error:
+            console.error(outcome.error)
+        outcomes.append(outcome)
+        pixels.append(px)
+    print_results(console, outcomes)
+    done = [(o.result, px) for o, px in zip(outcomes, pixels) if o.result is not None]
+    if done and not args.no_report:
+        report = Path(args.out) / "report.pdf"
+        write_part_report(report, [r for r, _ in done], [px for _, px in done], operator=args.operator)
+        console.info(f"report: {report}")
+    counts = verdict_counts(r for r, _ in done)
+    errors = sum(o.result is None for o in outcomes)
+    console.info(
+        f"{counts['accept']} accepted, {counts['reject']} rejected, {counts['review']} need review"
+        + (f", {errors} not inspected (input error)" if errors else "")
+        + f"; results in {args.out}"
+    )
+    return run_exit_code(outcomes)

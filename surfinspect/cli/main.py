@@ -1,0 +1,81 @@
+"""Command-line entry point: parse arguments, dispatch, map outcomes to exit codes.
+
+Each sub-command lives in ``surfinspect/cli/<name>.py`` and provides
+``HELP`` (one line), ``add_arguments(parser)`` and ``run(args, console) -> int``.
+Input errors raised anywhere below become one line on stderr and exit code 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from typing import Sequence
+
+from .._version import __version__
+from ..errors import InputError
+from ..results import EXIT_INPUT_ERROR
+from .console import Console
+
+#: Sub-commands in the order ``--help`` lists them.
+COMMANDS = ("inspect", "check", "demo", "batch", "keygen", "sign", "verify", "show", "target", "bias", "gauge")
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # argparse's own usage errors exit 2 too, in one line
+        self.print_usage(sys.stderr)
+        print(f"surfinspect: error: {message}", file=sys.stderr)
+        raise SystemExit(EXIT_INPUT_ERROR)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="surfinspect", description="Measure and judge the surface lay of panels.")
+    parser.add_argument("--version", action="version", version=f"surfinspect {__version__}")
+    parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
+    # -q also after the command name; SUPPRESS keeps the sub-parser from resetting a -q given before it
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument(
+        "-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print nothing but errors"
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name in COMMANDS:
+        try:
+            module = importlib.import_module(f".{name}", __package__)
+        except ModuleNotFoundError as exc:
+            if exc.name == f"{__package__}.{name}":
+                continue  # command not built yet
+            raise
+        p = sub.add_parser(name, help=module.HELP, description=module.HELP, parents=[common])
+        module.add_arguments(p)
+        p.set_defaults(_run=module.run, _parser=p)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args, unknown = parser.parse_known_args(argv)
+    if unknown:  # name them with the sub-command's own usage, not the top-level one
+        getattr(args, "_parser", parser).error(f"unrecognized arguments: {' '.join(unknown)}")
+    console = Console(quiet=args.quiet)
+    if not getattr(args, "_run", None):
+        parser.print_help()
+        return EXIT_INPUT_ERROR
+    try:
+        return int(args._run(args, console))
+    except InputError as exc:
+        for line in exc.problems:
+            console.error(line)
+        return EXIT_INPUT_ERROR
+    except OSError as exc:
+        # an output that cannot be written (a file where a folder is wanted, no permission, disk
+        # full): a usage problem, not a verdict. Writes are atomic, so nothing half-written remains.
+        where = exc.filename or "output"
+        console.error(f"{where}: cannot write or read ({exc.strerror or exc.__class__.__name__})")
+        return EXIT_INPUT_ERROR
+    except KeyboardInterrupt:
+        console.error("interrupted")
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,125 @@
+"""``surfinspect show``: list an archive's batches, their verdict counts and sign-off state.
+
+With ``--batch-id ID --out DIR`` it also copies that batch's files out of the
+archive under readable names (the archive keeps them as objects named by
+their hash, without a suffix): ``report.pdf``, ``report.signed-N.pdf``,
+``regions.csv`` and each part's JSON and overlay.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from ..archive import store as archive
+from ..errors import InputError
+from ..fsutil import ensure_output_dir
+from ..station import batch
+from .console import Console
+
+HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
+    parser.add_argument(
+        "--out",
+        metavar="DIR",
+        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named",
+    )
+
+
+def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
+    if not signoffs:
+        return "not signed"
+    last = signoffs[-1]
+    more = f" (+{len(signoffs) - 1} earlier)" if len(signoffs) > 1 else ""
+    return f"{last.meaning} by {last.signer_name} {last.signed_at_utc}{more}"
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    if args.out and args.batch_id is None:
+        raise InputError("--out: needs --batch-id (the batch whose files to copy out)")
+    with archive.Archive(args.archive) as arc:
+        if args.batch_id is None:
+            _show_batches(arc, console)
+            return 0
+        _show_batch(arc, args.batch_id, console)
+        if args.out:
+            out = ensure_output_dir(args.out, "--out")
+            written = batch.export_batch(arc, args.batch_id, out)
+            console.info(f"{len(written)} file(s) of batch {args.batch_id} copied to {out}")
+    return 0
+
+
+def _show_batches(arc: archive.Archive, console: Console) -> None:
+    rows = []
+    for b in arc.batches():
+        counts = archive.verdict_counts(arc.parts(b.batch_id))
+        rows.append(
+            [
+                b.batch_id,
+                f"{b.recipe_name} rev {b.recipe_revision}",
+                b.started_at[:16].replace("T", " "),
+                b.part_count,
+                counts["accept"],
+                counts["reject"],
+                counts["review"],
+                counts["error"],
+                "finished" if b.is_finished else f"unfinished ({counts['pending']} to do)",
+                _signoff_state(arc.signoffs(b.batch_id)),
+            ]
+        )
+    if not rows:
+        console.info(f"archive {arc.root}: no batches yet")
+        return
+    console.table(
+        ["batch", "recipe", "started (UTC)", "parts", "accept", "reject", "review", "error", "state", "sign-off"], rows
+    )
+    events, head = arc.chain_head()
+    console.info(f"audit trail: {events} events, head {head}")
+
+
+def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
+    b = arc.batch(batch_id)
+    parts = arc.parts(batch_id)
+    counts = archive.verdict_counts(parts)
+    console.info(f"batch {b.batch_id}: recipe {b.recipe_name} rev {b.recipe_revision} (sha256 {b.recipe_sha256})")
+    console.info(
+        f"operator {b.operator or '-'}, station {b.station or '-'}, started {b.started_at}, "
+        f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}"
+    )
+    console.info(", ".join(f"{n} {v}" for v, n in counts.items() if n) or "no parts")
+    if b.report_sha256:
+        console.info(
+            f"report {arc.object_path(b.report_sha256).relative_to(arc.root)} "
+            "(a PDF stored under its hash; --out DIR copies it out as report.pdf)"
+        )
+    rows = []
+    for p in parts:
+        note = p.error or ""
+        if p.result_sha256 and not p.error:
+            result = arc.read_result(p)
+            note = ", ".join(f"{r['name']}: {r['verdict']}" for r in result["regions"] if r["verdict"] != "pass")
+            note = note or "; ".join(result.get("reasons", []))
+        rows.append([p.part_key, p.verdict or "pending", note])
+    console.table(["part", "verdict", "regions not passed / error"], rows)
+    signoffs = arc.signoffs(batch_id)
+    if signoffs:
+        console.table(
+            ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "comment"],
+            [
+                [
+                    s.signoff_no,
+                    s.signer_name,
+                    s.meaning,
+                    s.signed_at_utc,
+                    s.key_fingerprint[:16] + "…",
+                    str(arc.object_path(s.signed_report_sha256).relative_to(arc.root)),
+                    s.comment,
+                ]
+                for s in signoffs
+            ],
+        )
+    else:
+        console.info("not signed off")

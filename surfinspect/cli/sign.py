@@ -1,0 +1,64 @@
+"""``surfinspect sign``: sign a finished batch off with a meaning, into the archive.
+
+Every input and output is checked before the signature is made: a command
+that fails leaves no sign-off behind.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shlex
+from pathlib import Path
+
+from ..archive import signing
+from ..archive import store as archive
+from ..fsutil import write_bytes_atomic
+from ..station import batch
+from ._checks import check_output_file
+from .console import Console
+
+HELP = "sign a finished batch off (approved, rejected or reviewed) and store the signed report"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
+    parser.add_argument("--key", required=True, metavar="KEYFILE", help="the signer's private key file (from keygen)")
+    parser.add_argument("--meaning", required=True, choices=signing.MEANINGS, help="what the signature means")
+    parser.add_argument("--comment", default="", metavar="TEXT", help="a comment kept in the signed record")
+    parser.add_argument("--passphrase-env", metavar="VAR", help="environment variable holding the key's passphrase")
+    parser.add_argument("--out", metavar="PDF", help="also write the signed report to this .pdf file")
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    out = None
+    if args.out:
+        check_output_file("--out", args.out, suffixes=(".pdf",), not_same_as=[("the --key file", args.key)])
+        out = Path(args.out)
+    with archive.Archive(args.archive) as arc:
+        arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
+        key = signing.load_signing_key(args.key, passphrase=signing.passphrase_from_env(args.passphrase_env))
+        row = archive.sign_batch(
+            arc,
+            args.batch_id,
+            key,
+            meaning=args.meaning,
+            comment=args.comment,
+            render_edition=lambda signoff: batch.render_batch_report(arc, args.batch_id, signoff=signoff),
+        )
+        edition = arc.object_path(row.signed_report_sha256)
+        if out is not None:
+            write_bytes_atomic(out, edition.read_bytes())
+    console.info(
+        f"batch {row.batch_id}: sign-off #{row.signoff_no}, {row.meaning} by {row.signer_name} at {row.signed_at_utc}"
+    )
+    console.info(f"key fingerprint {row.key_fingerprint}")
+    console.info(f"signed report (a PDF stored under its hash, without a suffix): {edition}")
+    if out is not None:
+        console.info(f"signed report copied to {out}")
+    else:
+        console.info(
+            f"readable copy (report.signed-{row.signoff_no}.pdf): "
+            f"surfinspect show --archive {shlex.quote(args.archive)} --batch-id {row.batch_id} --out DIR"
+        )
+    return 0

@@ -1,0 +1,278 @@
+"""The inspection engine: an image and a recipe in, a part result out.
+
+``inspect_image`` is a pure function (no file I/O): it places the recipe's
+regions in the image through the datum frame, measures each region
+(:mod:`surfinspect.orientation`), judges it (:mod:`surfinspect.judge`) and
+combines the verdicts.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+from dataclasses import dataclass
+from pathlib import PurePath
+
+import cv2
+import numpy as np
+
+from .._version import __version__
+from ..errors import InputError
+from ..recipe import Recipe, Region, Shape
+from ..results import (
+    DatumInfo,
+    ImageInfo,
+    PartResult,
+    PartVerdict,
+    RecipeInfo,
+    RegionResult,
+    part_verdict,
+)
+from .datum import DatumError, find_part_frame
+from .imaging import as_grey_float
+from .judge import RegionMeasurement, judge_region
+from .orientation import cell_sums, noise_gradient_energy, noise_sigma
+
+__all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
+
+#: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
+HISTOGRAM_VOTE_STEP = 2
+
+#: Strips measured at once within one image (OpenCV and NumPy release the GIL).
+THREADS = 2
+
+
+@dataclass(frozen=True)
+class Frame:
+    """Maps recipe coordinates (datum frame, y measured downward) to image pixels.
+
+    ``rotation_deg`` is the frame's counter-clockwise skew against the image
+    axes as seen on screen; ``px_per_unit`` converts recipe units (pixels or
+    mm) to image pixels.
+    """
+
+    origin_px: tuple[float, float] = (0.0, 0.0)
+    rotation_deg: float = 0.0
+    px_per_unit: float = 1.0
+
+    def to_image(self, points) -> np.ndarray:
+        """(K, 2) recipe coordinates -> (K, 2) image pixel coordinates (x, y down)."""
+        p = np.asarray(points, dtype=np.float64).reshape(-1, 2) * self.px_per_unit
+        r = math.radians(self.rotation_deg)
+        c, s = math.cos(r), math.sin(r)
+        # +X of the frame points (c, -s) in image px (y down); the frame's downward axis (s, c)
+        x = self.origin_px[0] + p[:, 0] * c + p[:, 1] * s
+        y = self.origin_px[1] - p[:, 0] * s + p[:, 1] * c
+        return np.stack([x, y], axis=1)
+
+    def to_frame(self, points) -> np.ndarray:
+        """Inverse of :meth:`to_image`."""
+        q = np.asarray(points, dtype=np.float64).reshape(-1, 2) - np.asarray(self.origin_px)
+        r = math.radians(self.rotation_deg)
+        c, s = math.cos(r), math.sin(r)
+        u = q[:, 0] * c - q[:, 1] * s
+        v = q[:, 0] * s + q[:, 1] * c
+        return np.stack([u, v], axis=1) / self.px_per_unit
+
+
+def frame_for(recipe: Recipe, image: np.ndarray) -> tuple[Frame, DatumInfo]:
+    """The datum frame of ``recipe`` on ``image``.
+
+    Raises
+    ------
+    InputError
+        (``datum.DatumError``) when ``datum: part-edge`` cannot find the part.
+    """
+    ppu = recipe.units_to_px()
+    if recipe.datum == "part-edge":
+        pf = find_part_frame(image)
+        # the datum module puts pixel centres at integers; region masks use pixel edges
+        # (pixel i spans [i, i + 1)), so the origin moves by half a pixel
+        origin = (float(pf.origin_px[0]) + 0.5, float(pf.origin_px[1]) + 0.5)
+        frame = Frame(origin_px=origin, rotation_deg=float(pf.rotation_deg), px_per_unit=ppu)
+        q = pf.fit_quality
+        info = DatumInfo(
+            kind="part-edge",
+            rotation_deg=float(pf.rotation_deg),
+            origin_px=origin,
+            fit_quality=None if q is None else float(q.edge_rms_px),
+            size_px=tuple(float(v) for v in pf.size_px),
+            pixel_size_mm=recipe.pixel_size_mm,
+            fit=None
+            if q is None
+            else {
+                "edge_rms_px": round(float(q.edge_rms_px), 4),
+                "filled_share": round(float(q.filled_share), 4),
+                "corner_error_deg": round(float(q.corner_error_deg), 4),
+                "outlier_share": round(float(q.outlier_share), 4),
+                "edge_points": int(q.edge_points),
+                "skew_deg": round(float(pf.skew_deg), 4),
+            },
+        )
+        return frame, info
+    frame = Frame(rotation_deg=recipe.camera_rotation_deg, px_per_unit=ppu)
+    return frame, DatumInfo(
+        kind="image", rotation_deg=recipe.camera_rotation_deg, origin_px=(0.0, 0.0), pixel_size_mm=recipe.pixel_size_mm
+    )
+
+
+def _rings(shape: Shape, frame: Frame) -> list[np.ndarray]:
+    return [frame.to_image(ring) for ring in shape.outline()]
+
+
+def region_masks(region: Region, frame: Frame, image_shape: tuple[int, int], recipe_path: str = "<memory>"):
+    """Rasterise a region: bounding box, mask inside it, outlines in image px.
+
+    Returns
+    -------
+    bbox : (x, y, w, h) ints
+    mask : (h, w) bool ndarray
+    outer, holes : tuples of outlines, each a tuple of (x, y) image px
+
+    Raises
+    ------
+    InputError
+        When the region does not lie wholly inside the image, or is empty.
+    """
+    rows, cols = image_shape
+    rings = _rings(region.shape, frame)
+    outer = rings[:1]
+    holes = rings[1:] + [r for ex in region.exclude for r in _rings(ex, frame)]
+    pts = outer[0]
+    xmin, ymin = np.floor(pts.min(axis=0)).astype(int)
+    xmax, ymax = np.ceil(pts.max(axis=0)).astype(int)
+    where = f"{recipe_path}:{region.line}: regions({region.name})"
+    if xmin < -0.5 or ymin < -0.5 or xmax > cols + 0.5 or ymax > rows + 0.5:
+        raise InputError(
+            f"{where}: region lies outside the image (spans x {pts[:, 0].min():.0f}..{pts[:, 0].max():.0f}, "
+            f"y {pts[:, 1].min():.0f}..{pts[:, 1].max():.0f} px; image is {cols}x{rows} px)"
+        )
+    xmin, ymin = max(0, xmin), max(0, ymin)
+    xmax, ymax = min(cols, xmax), min(rows, ymax)
+    w, h = xmax - xmin, ymax - ymin
+    mask = np.zeros((h, w), dtype=np.uint8)
+    shift = 4  # sub-pixel vertices: 1/16 px
+    scale = 1 << shift
+
+    def fixed(ring: np.ndarray) -> np.ndarray:
+        # pixel centres sit at integer coordinates; a rect [0, w) covers pixel centres 0..w-1
+        local = (ring - [xmin + 0.5, ymin + 0.5]) * scale
+        return np.round(local).astype(np.int32).reshape(-1, 1, 2)
+
+    cv2.fillPoly(mask, [fixed(outer[0])], 1, lineType=cv2.LINE_8, shift=shift)
+    if holes:
+        cv2.fillPoly(mask, [fixed(r) for r in holes], 0, lineType=cv2.LINE_8, shift=shift)
+    if not mask.any():
+        raise InputError(f"{where}: region covers no pixels (after excluded shapes are removed)")
+
+    def as_tuple(ring: np.ndarray):
+        return tuple((float(x), float(y)) for x, y in ring)
+
+    return (xmin, ymin, w, h), mask.astype(bool), tuple(as_tuple(r) for r in outer), tuple(as_tuple(r) for r in holes)
+
+
+def inspect_image(
+    image: np.ndarray,
+    recipe: Recipe,
+    *,
+    name: str | None = None,
+    image_info: ImageInfo | None = None,
+    inspected_at: str | None = None,
+) -> PartResult:
+    """Measure and judge the lay of every region of ``recipe`` on ``image``.
+
+    Parameters
+    ----------
+    image : (M, N) ndarray
+        Grey image (uint8, uint16 or float in [0, 1]); colour (M, N, 3) RGB is
+        converted to grey.
+    recipe : Recipe
+    name : str, optional
+        Part name for the result (defaults to the image file's stem, or "part").
+    image_info : ImageInfo, optional
+        File facts (path, SHA-256, bit depth) to carry into the result.
+    inspected_at : str, optional
+        UTC ISO 8601 time stamp; now when omitted.
+
+    Returns
+    -------
+    PartResult
+
+    Raises
+    ------
+    InputError
+        When a region lies outside the image.
+    """
+    pixels = as_grey_float(image)
+    rows, cols = pixels.shape
+    if image_info is None:
+        image_info = ImageInfo(path="", sha256="", width=cols, height=rows, bit_depth=_bit_depth(image))
+    if name is None:
+        name = PurePath(image_info.path).stem if image_info.path else "part"
+    stamp = inspected_at or _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+    recipe_info = RecipeInfo(name=recipe.name, revision=recipe.revision, sha256=recipe.sha256)
+
+    try:
+        frame, datum = frame_for(recipe, pixels)
+    except DatumError as exc:
+        return PartResult(
+            name=name,
+            image=image_info,
+            recipe=recipe_info,
+            verdict=PartVerdict.REVIEW,
+            regions=(),
+            inspected_at=stamp,
+            engine_version=__version__,
+            datum=None,
+            reasons=(f"part frame not found: {exc}",),
+        )
+
+    placed = [region_masks(r, frame, pixels.shape, recipe.path) for r in recipe.regions]
+    noise_energy_by_sigma: dict[float, float] = {}
+    sigma_n = noise_sigma(pixels)
+    results: list[RegionResult] = []
+    for region, (bbox, mask, outer, holes) in zip(recipe.regions, placed):
+        sig = region.sigma_px
+        if sig not in noise_energy_by_sigma:
+            noise_energy_by_sigma[sig] = noise_gradient_energy(sigma_n, sig)
+        cells = cell_sums(
+            pixels,
+            mask,
+            bbox,
+            cell_px=region.cell_px,
+            sigma=sig,
+            angle_offset_deg=frame.rotation_deg,
+            vote_step=HISTOGRAM_VOTE_STEP,
+            threads=THREADS,
+        )
+        centre_px = None
+        if region.centre is not None:
+            cx, cy = frame.to_image([region.centre])[0]
+            centre_px = (float(cx), float(cy))
+        m = RegionMeasurement(
+            cells=cells,
+            region_mask_area=float(mask.sum()),
+            noise_energy=noise_energy_by_sigma[sig],
+            rotation_deg=frame.rotation_deg,
+            centre_px=centre_px,
+            outline_px=outer,
+            exclude_px=holes,
+            pixel_size_mm=recipe.pixel_size_mm,
+        )
+        results.append(judge_region(region, m))
+    verdict = part_verdict([r.verdict for r in results])
+    return PartResult(
+        name=name,
+        image=image_info,
+        recipe=recipe_info,
+        verdict=verdict,
+        regions=tuple(results),
+        inspected_at=stamp,
+        engine_version=__version__,
+        datum=datum,
+    )
+
+
+def _bit_depth(image: np.ndarray) -> int:
+    dt = np.asarray(image).dtype
+    return 16 if dt == np.uint16 else 8 if dt == np.uint8 else 32

@@ -1,0 +1,539 @@
+"""Gauge R&R by the ANOVA method, bias and linearity, study-table reading, the PDF page."""
+
+import numpy as np
+import pytest
+
+from surfinspect.errors import InputError
+from surfinspect.qualify.gauge import (
+    CAUTION,
+    D4_BY_SUBGROUP,
+    GaugeVerdict,
+    bias_study,
+    gauge_rr,
+    gauge_to_dict,
+    read_study_csv,
+    write_gauge_pdf,
+)
+
+
+def _table(cell_means, half_spread=0.5):
+    """(parts, appraisers, 2) values: each cell's two trials at mean -/+ half_spread."""
+    m = np.asarray(cell_means, dtype=float)
+    return np.stack([m - half_spread, m + half_spread], axis=2)
+
+
+# Worked by hand (3 parts x 2 appraisers x 2 trials, trials at cell mean -/+ 0.5):
+#   cell means      A    B    part mean
+#   P1              2    4    3
+#   P2              6    6    6
+#   P3             10   14   12
+#   appraiser mean  6    8    grand 7
+# SS_part  = o r sum (part mean - 7)^2      = 4 (16 + 1 + 25) = 168, df 2, MS 84
+# SS_appr  = p r sum (appr mean - 7)^2      = 6 (1 + 1)       = 12,  df 1, MS 12
+# interaction residuals cell - part - appr + 7: P1: 0, 0; P2: 1, -1; P3: -1, 1
+# SS_int   = r sum residual^2               = 2 * 4           = 8,   df 2, MS 4
+# SS_error = 12 values * 0.5^2              = 3,  df 6, MS 0.5
+# SS_total = 191 (= 168 + 12 + 8 + 3)
+# F_int = 4 / 0.5 = 8 -> p = 0.020 < 0.25: interaction kept
+# EV^2 = 0.5; interaction (4 - 0.5) / 2 = 1.75; appraiser (12 - 4) / (3 * 2) = 1.333333;
+# part (84 - 4) / (2 * 2) = 20; AV^2 = 3.083333; GRR^2 = 3.583333; TV^2 = 23.583333
+# %GRR of TV = 100 sqrt(3.583333 / 23.583333) = 38.980; %GRR of T=30: 600 * 1.892969 / 30 = 37.859
+# ndc = floor(1.41 * 4.472136 / 1.892969) = floor(3.3311) = 3
+INTERACTION_TABLE = _table([[2, 4], [6, 6], [10, 14]])
+
+
+def test_anova_and_components_on_hand_worked_table_with_interaction():
+    study = gauge_rr(INTERACTION_TABLE, tolerance=30.0)
+    a = study.anova_interaction
+    assert [a.row(s).ss for s in ("part", "appraiser", "part x appraiser", "repeatability", "total")] == pytest.approx(
+        [168, 12, 8, 3, 191], rel=1e-12
+    )
+    assert [a.row(s).df for s in ("part", "appraiser", "part x appraiser", "repeatability", "total")] == [
+        2,
+        1,
+        2,
+        6,
+        11,
+    ]
+    assert a.row("part x appraiser").f == pytest.approx(8.0)
+    assert a.row("part").f == pytest.approx(84 / 4)  # random effects: parts against the interaction
+    assert a.row("appraiser").f == pytest.approx(12 / 4)
+    assert study.model == "interaction"
+    assert "significant" in study.model_reason and "kept" in study.model_reason
+    v = {c.name: c.variance for c in study.components}
+    assert v["repeatability"] == pytest.approx(0.5)
+    assert v["part x appraiser"] == pytest.approx(1.75)
+    assert v["appraiser"] == pytest.approx(4 / 3)
+    assert v["reproducibility"] == pytest.approx(3.083333, abs=1e-6)
+    assert v["grr"] == pytest.approx(3.583333, abs=1e-6)
+    assert v["part"] == pytest.approx(20.0)
+    assert v["total"] == pytest.approx(23.583333, abs=1e-6)
+    assert study.grr_percent_of_total_variation == pytest.approx(38.980, abs=1e-3)
+    assert study.grr_percent_of_tolerance == pytest.approx(37.859, abs=1e-3)
+    assert study.ndc == 3
+    assert study.verdict is GaugeVerdict.NOT_ACCEPTABLE
+    assert study.component("grr").percent_contribution == pytest.approx(100 * 3.583333 / 23.583333, abs=1e-4)
+
+
+def test_negative_component_is_set_to_zero():
+    # Worked by hand: cell means P1 (2, 4), P2 (6, 4), P3 (10, 10); appraiser means 6 and 6,
+    # so SS_appr = 0, MS_appr = 0; interaction residuals -1, 1, 1, -1, 0, 0 -> MS_int = 2*4/2 = 4;
+    # appraiser component (0 - 4) / 6 < 0 -> 0. SS_part = 4 (9 + 1 + 16) = 104, MS 52,
+    # part component (52 - 4) / 4 = 12; interaction (4 - 0.5) / 2 = 1.75.
+    study = gauge_rr(_table([[2, 4], [6, 4], [10, 10]]), tolerance=30.0)
+    assert study.model == "interaction"
+    assert study.component("appraiser").variance == 0.0
+    assert study.component("part").variance == pytest.approx(12.0)
+    assert study.component("part x appraiser").variance == pytest.approx(1.75)
+    assert study.component("reproducibility").variance == pytest.approx(1.75)
+
+
+def test_pooled_model_on_hand_worked_table():
+    # Worked by hand (2 parts x 2 appraisers x 2 trials, trials at cell mean -/+ 1):
+    #   cell means P1 (2, 4), P2 (8, 12); part means 3, 10; appraiser means 5, 8; grand 6.5
+    #   SS_part = 4 (12.25 + 12.25) = 98; SS_appr = 4 (2.25 + 2.25) = 18;
+    #   residuals +-0.5 -> SS_int = 2 * 4 * 0.25 = 2, MS 2; SS_error = 8 * 1 = 8, df 4, MS 2
+    #   F_int = 1 -> p = 0.374 >= 0.25: pooled; pooled error SS 10, df 5, MS 2
+    #   EV^2 = 2; appraiser (18 - 2) / 4 = 4; part (98 - 2) / 4 = 24; interaction 0
+    study = gauge_rr(_table([[2, 4], [8, 12]], half_spread=1.0), tolerance=60.0)
+    assert study.anova_interaction.row("part x appraiser").f == pytest.approx(1.0)
+    assert study.model == "pooled"
+    assert "not significant" in study.model_reason and "0.25" in study.model_reason
+    pooled = study.anova_pooled.row("repeatability")
+    assert (pooled.df, pooled.ss, pooled.ms) == (5, pytest.approx(10.0), pytest.approx(2.0))
+    assert study.anova.row("part").f == pytest.approx(98 / 2)
+    v = {c.name: c.variance for c in study.components}
+    assert (v["repeatability"], v["appraiser"], v["part"], v["part x appraiser"]) == (
+        pytest.approx(2.0),
+        pytest.approx(4.0),
+        pytest.approx(24.0),
+        0.0,
+    )
+
+
+def _random_study(seed, parts=10, appraisers=3, trials=3, interaction=0.0):
+    rng = np.random.default_rng(seed)
+    part = rng.normal(0, 2.0, parts)[:, None, None]
+    appraiser = rng.normal(0, 0.3, appraisers)[None, :, None]
+    cross = rng.normal(0, interaction, (parts, appraisers, 1)) if interaction else 0.0
+    return part + appraiser + cross + rng.normal(0, 0.2, (parts, appraisers, trials))
+
+
+def _frame(values):
+    pd = pytest.importorskip("pandas")
+    p, o, r = values.shape
+    return pd.DataFrame(
+        [
+            {"part": f"P{i}", "appraiser": f"A{j}", "trial": k, "value": values[i, j, k]}
+            for i in range(p)
+            for j in range(o)
+            for k in range(r)
+        ]
+    )
+
+
+@pytest.mark.parametrize("seed", [1, 7])
+def test_anova_agrees_with_statsmodels(seed):
+    # Reference: statsmodels anova_lm on ols('value ~ C(part)*C(appraiser)'). Its F values are
+    # all against the residual (fixed effects); the random-effects F of parts and appraisers
+    # is the ratio of the same library's mean squares to the interaction mean square.
+    smf = pytest.importorskip("statsmodels.formula.api")
+    from statsmodels.stats.anova import anova_lm
+
+    values = _random_study(seed, interaction=0.4)
+    ref = anova_lm(smf.ols("value ~ C(part)*C(appraiser)", data=_frame(values)).fit())
+    study = gauge_rr(values, tolerance=20.0)
+    a = study.anova_interaction
+    names = {
+        "part": "C(part)",
+        "appraiser": "C(appraiser)",
+        "part x appraiser": "C(part):C(appraiser)",
+        "repeatability": "Residual",
+    }
+    for ours, theirs in names.items():
+        assert a.row(ours).ms == pytest.approx(ref.loc[theirs, "mean_sq"], rel=1e-9)
+        assert a.row(ours).df == int(ref.loc[theirs, "df"])
+    assert a.row("part x appraiser").f == pytest.approx(ref.loc["C(part):C(appraiser)", "F"], rel=1e-9)
+    assert a.row("part x appraiser").p == pytest.approx(ref.loc["C(part):C(appraiser)", "PR(>F)"], rel=1e-9)
+    ms_int = ref.loc["C(part):C(appraiser)", "mean_sq"]
+    assert a.row("part").f == pytest.approx(ref.loc["C(part)", "mean_sq"] / ms_int, rel=1e-9)
+    assert a.row("appraiser").f == pytest.approx(ref.loc["C(appraiser)", "mean_sq"] / ms_int, rel=1e-9)
+
+
+def test_pooled_anova_agrees_with_statsmodels_additive_model():
+    # Reference: statsmodels anova_lm on ols('value ~ C(part)+C(appraiser)'): the pooled model.
+    smf = pytest.importorskip("statsmodels.formula.api")
+    from statsmodels.stats.anova import anova_lm
+
+    values = _random_study(3)
+    ref = anova_lm(smf.ols("value ~ C(part) + C(appraiser)", data=_frame(values)).fit())
+    study = gauge_rr(values, tolerance=20.0)
+    pooled = study.anova_pooled
+    for ours, theirs in {"part": "C(part)", "appraiser": "C(appraiser)", "repeatability": "Residual"}.items():
+        assert pooled.row(ours).ms == pytest.approx(ref.loc[theirs, "mean_sq"], rel=1e-9)
+    for ours, theirs in {"part": "C(part)", "appraiser": "C(appraiser)"}.items():
+        assert pooled.row(ours).f == pytest.approx(ref.loc[theirs, "F"], rel=1e-9)
+        assert pooled.row(ours).p == pytest.approx(ref.loc[theirs, "PR(>F)"], rel=1e-9)
+
+
+def test_json_has_the_required_keys_and_matches_the_components():
+    values = _random_study(11)  # part sigma 2, appraiser 0.3, repeatability 0.2
+    study = gauge_rr(values, tolerance=40.0)
+    d = gauge_to_dict(study)
+    for key in ("grr_percent_of_total_variation", "grr_percent_of_tolerance", "ndc", "components", "model", "verdict"):
+        assert key in d
+    assert set(d["components"]) >= {"repeatability", "reproducibility", "part", "grr", "total"}
+    assert d["components"]["grr"]["percent_total_variation"] == pytest.approx(d["grr_percent_of_total_variation"])
+    assert d["components"]["grr"]["percent_tolerance"] == pytest.approx(d["grr_percent_of_tolerance"])
+    # appraiser sigma 0.3 against part sigma 2 puts %GRR of TV in the 10-30 % band
+    assert 10 <= study.grr_percent_of_total_variation <= 30 and study.grr_percent_of_tolerance < 10
+    assert study.ndc >= 5
+    assert d["verdict"] == "conditional"
+    # judged on total variation alone it stays conditional; on tolerance alone it is acceptable
+    assert gauge_rr(values, tolerance=40.0, basis="tolerance").verdict is GaugeVerdict.ACCEPTABLE
+
+
+@pytest.mark.parametrize(
+    ("percent", "ndc", "expected"),
+    [
+        (9.99, 5, GaugeVerdict.ACCEPTABLE),
+        (10.0, 5, GaugeVerdict.CONDITIONAL),  # 10-30 % is acceptable only with a reason
+        (30.0, 5, GaugeVerdict.CONDITIONAL),
+        (30.01, 50, GaugeVerdict.NOT_ACCEPTABLE),
+        (5.0, 4, GaugeVerdict.NOT_ACCEPTABLE),  # fewer than 5 distinct categories
+        (5.0, None, GaugeVerdict.ACCEPTABLE),  # no measurement spread: ndc undefined, said in the reasons
+    ],
+)
+def test_verdict_thresholds(percent, ndc, expected):
+    from surfinspect.qualify.gauge import _judge
+
+    verdict, reasons = _judge(percent, percent / 2, ndc, 0.01, "given", 1.0, "both")
+    assert verdict is expected
+    assert reasons[0].startswith("%GRR (larger of total variation and tolerance)")
+
+
+def test_resolution_coarser_than_tenth_of_tolerance_is_not_acceptable():
+    values = np.round(_random_study(11), 0)  # recorded in whole units
+    study = gauge_rr(values, tolerance=8.0)
+    assert study.resolution == pytest.approx(1.0)
+    assert study.verdict is GaugeVerdict.NOT_ACCEPTABLE
+    assert any("resolution 1 > tolerance/10 = 0.8" in r for r in study.reasons)
+
+
+def test_range_chart_constants_match_simulated_ranges():
+    # D4 = 1 + 3 sd(R) / mean(R) of the range R of n standard normals, by simulation
+    # (100 000 subgroups: standard error of the estimate below 0.01).
+    rng = np.random.default_rng(5)
+    for n, d4 in D4_BY_SUBGROUP.items():
+        x = rng.standard_normal((100_000, n))
+        r = x.max(axis=1) - x.min(axis=1)
+        assert d4 == pytest.approx(1 + 3 * r.std() / r.mean(), abs=0.02), n
+
+
+@pytest.mark.parametrize(
+    ("values", "kwargs", "message"),
+    [
+        (np.zeros((2, 2)), {"tolerance": 1.0}, r"shape \(parts, appraisers, trials\)"),
+        (np.zeros((2, 1, 2)), {"tolerance": 1.0}, "each at least 2"),
+        (np.full((2, 2, 2), np.nan), {"tolerance": 1.0}, "finite"),
+        (np.arange(8.0).reshape(2, 2, 2), {"tolerance": 0.0}, "tolerance: must be a width > 0"),
+        (np.arange(8.0).reshape(2, 2, 2), {"tolerance": 1.0, "basis": "best"}, "basis: unknown"),
+        (np.ones((2, 2, 2)), {"tolerance": 1.0}, "no variation"),
+    ],
+)
+def test_gauge_rr_bad_input(values, kwargs, message):
+    with pytest.raises(InputError, match=message):
+        gauge_rr(values, **kwargs)
+
+
+def test_setting_errors_do_not_name_the_table():
+    # a bad setting is not a problem of the file it came with
+    with pytest.raises(InputError, match=r"^tolerance: must be a width > 0 \(got -2\)$"):
+        gauge_rr(np.arange(8.0).reshape(2, 2, 2), tolerance=-2.0, source="gauge.csv")
+    with pytest.raises(InputError, match=r"^resolution: must be a number >= 0 \(got -0.1\)$"):
+        gauge_rr(np.arange(8.0).reshape(2, 2, 2), tolerance=2.0, resolution=-0.1, source="gauge.csv")
+
+
+# ------------------------------------------------------------------ study CSV
+
+
+def _write(tmp_path, text, name="study.csv"):
+    p = tmp_path / name
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def _csv(values, parts=None, appraisers=None, delimiter=","):
+    p, o, r = values.shape
+    lines = [delimiter.join(("part", "appraiser", "trial", "value"))]
+    for i in range(p):
+        for j in range(o):
+            for k in range(r):
+                lines.append(delimiter.join((f"LW-220-{i + 1:02d}", "AB"[j], str(k + 1), repr(float(values[i, j, k])))))
+    return "\n".join(lines) + "\n"
+
+
+def test_read_study_csv_round_trip(tmp_path):
+    path = _write(tmp_path, _csv(INTERACTION_TABLE))
+    table = read_study_csv(path)
+    assert table.parts == ("LW-220-01", "LW-220-02", "LW-220-03")
+    assert table.appraisers == ("A", "B")
+    assert table.trials == ("1", "2")
+    np.testing.assert_array_equal(table.values, INTERACTION_TABLE)
+
+
+def test_read_study_csv_semicolon_and_decimal_comma(tmp_path):
+    text = _csv(INTERACTION_TABLE, delimiter=";").replace(".", ",")
+    table = read_study_csv(_write(tmp_path, "\ufeff" + text))  # spreadsheet export with a byte-order mark
+    np.testing.assert_array_equal(table.values, INTERACTION_TABLE)
+
+
+def _lines(values):
+    return _csv(values).splitlines()
+
+
+@pytest.mark.parametrize(
+    ("edit", "message"),
+    [
+        (
+            lambda ls: ["part,appraiser,value"] + [",".join(x.split(",")[:2] + x.split(",")[3:]) for x in ls[1:]],
+            r"study\.csv:1: header: columns must be .*missing trial",
+        ),
+        (lambda ls: [ls[0] + ",note"] + [x + ",ok" for x in ls[1:]], r"study\.csv:1: header: .*unknown note"),
+        (lambda ls: ls[:3] + ["LW-220-01,B,1,abc"] + ls[4:], r"study\.csv:4: value: not a number \(got 'abc'\)"),
+        (lambda ls: ls[:3] + ["LW-220-01,B,1,nan"] + ls[4:], r"study\.csv:4: value: not a finite number"),
+        (lambda ls: ls[:3] + ["LW-220-01,B,1"] + ls[4:], r"study\.csv:4: row has 3 fields"),
+        (lambda ls: ls[:3] + [",B,1,4.0"] + ls[4:], r"study\.csv:4: part: empty"),
+        # missing trial 2 of LW-220-02 / A (line 7)
+        (lambda ls: ls[:6] + ls[7:], r"study\.csv:6: part 'LW-220-02', appraiser 'A' has no trial 2"),
+        # LW-220-03 measured by A only (its B rows, lines 12 and 13, removed)
+        (lambda ls: ls[:11], r"study\.csv:10: part 'LW-220-03' is measured by appraiser\(s\) A only; missing B"),
+        (
+            lambda ls: ls + ["LW-220-01,A,1,2.0"],
+            r"study\.csv:14: part 'LW-220-01', appraiser 'A', trial '1' repeats line 2",
+        ),
+        (lambda ls: [ls[0]], r"header but no measurements"),
+    ],
+)
+def test_malformed_study_tables_name_the_file_and_row(tmp_path, edit, message):
+    path = _write(tmp_path, "\n".join(edit(_lines(INTERACTION_TABLE))) + "\n")
+    with pytest.raises(InputError, match=message):
+        read_study_csv(path)
+
+
+def test_every_problem_is_listed(tmp_path):
+    lines = _lines(INTERACTION_TABLE)
+    lines[2] = "LW-220-01,A,2,x"
+    lines[5] = "LW-220-02,A,1,y"
+    with pytest.raises(InputError, match=r"study\.csv:3: value: not a number .*and 1 more") as info:
+        read_study_csv(_write(tmp_path, "\n".join(lines)))
+    assert len(info.value.problems) == 2 and info.value.problems[1].startswith(f"{tmp_path / 'study.csv'}:6:")
+
+
+def _crossed_rows(parts=5, appraisers=("ann", "bob", "cy"), trials=2):
+    """Header plus one row per part, appraiser and trial: line n + 1 of the file is item n."""
+    rows = ["part,appraiser,trial,value"]
+    for i in range(parts):
+        for j, appraiser in enumerate(appraisers):
+            for k in range(trials):
+                rows.append(f"P{i + 1},{appraiser},{k + 1},{i + 0.1 * j + 0.01 * k}")
+    return rows
+
+
+def _problems(tmp_path, rows, **kwargs):
+    with pytest.raises(InputError) as info:
+        read_study_csv(_write(tmp_path, "\n".join(rows) + "\n"), **kwargs)
+    return info.value.problems
+
+
+def test_one_extra_trial_row_is_named_alone_with_a_summary(tmp_path):
+    # 5 x 3 x 2 = 30 rows on lines 2-31; the extra trial of P1 / ann is line 32.
+    rows = _crossed_rows() + ["P1,ann,3,0.5"]
+    with pytest.raises(
+        InputError,
+        match=r"study\.csv:32: part 'P1', appraiser 'ann', trial '3': a trial the other "
+        r"cells do not have \(the study's trials: 1, 2\) \(and 1 more\)",
+    ):
+        read_study_csv(_write(tmp_path, "\n".join(rows)))
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == 2
+    assert problems[1].endswith(
+        "study.csv: the study is not balanced (1 extra row): a crossed study has one value "
+        "per part, appraiser and trial, 5 x 3 x 2 = 30 rows (got 31)"
+    )
+
+
+def test_rows_of_an_appraiser_the_other_parts_lack_are_named_together(tmp_path):
+    rows = _crossed_rows() + ["P3,dan,1,0.1", "P3,dan,2,0.3"]
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == 2
+    assert problems[0].endswith(
+        "study.csv:32: part 'P3', appraiser 'dan': an appraiser the other parts do not have "
+        "(2 rows: lines 32, 33; the study's appraisers: ann, bob, cy)"
+    )
+    assert "(2 extra rows)" in problems[1] and "5 x 3 x 2 = 30 rows (got 32)" in problems[1]
+
+
+def test_many_balance_problems_are_listed_up_to_the_limit_then_counted(tmp_path):
+    from surfinspect.qualify.gauge import MAX_BALANCE_LINES
+
+    # trial 2 of ann dropped for every part: 5 cells miss a trial, plus P5 measured by ann and bob only
+    rows = [r for r in _crossed_rows() if not r.endswith(tuple(f",ann,2,{i}.01" for i in range(5)))]
+    rows = [r for r in rows if not r.startswith("P5,cy,")]
+    problems = _problems(tmp_path, rows)
+    assert len(problems) == MAX_BALANCE_LINES + 1
+    assert "part 'P5' is measured by appraiser(s) ann, bob only; missing cy" in problems[0]
+    assert all("has no trial 2" in p for p in problems[1:MAX_BALANCE_LINES])
+    # 5 trials of ann and the 2 trials of P5 / cy are missing: 7 values, 6 problems, 5 listed
+    assert "(7 missing values; 1 more not listed)" in problems[-1] and "(got 23)" in problems[-1]
+
+
+def test_a_recipe_for_a_table_of_values_is_refused(tmp_path):
+    with pytest.raises(
+        InputError,
+        match=r"study\.csv:1: header: the table holds measured values, so a recipe has "
+        r"nothing to measure",
+    ):
+        read_study_csv(_write(tmp_path, "\n".join(_crossed_rows())), measure=lambda path: 0.0)
+
+
+def test_single_appraiser_study_is_refused(tmp_path):
+    text = "part,appraiser,trial,value\nP1,A,1,1\nP1,A,2,2\nP2,A,1,3\nP2,A,2,4\n"
+    with pytest.raises(InputError, match="at least 2 appraisers"):
+        read_study_csv(_write(tmp_path, text))
+
+
+def test_missing_file_is_an_input_error(tmp_path):
+    with pytest.raises(InputError, match=r"nope\.csv: cannot read the study table"):
+        read_study_csv(tmp_path / "nope.csv")
+
+
+# ------------------------------------------------------------------ bias and linearity
+
+
+def test_bias_per_nominal_on_hand_worked_values_and_scipy():
+    # Nominal 0: measured 0.1, 0.3, 179.8 -> deviations 0.1, 0.3, -0.2 (axial wrap)
+    #   bias = 0.2 / 3 = 0.066667; s = sqrt(((0.033333)^2 + (0.233333)^2 + (0.266667)^2) / 2) = 0.251661
+    stats = pytest.importorskip("scipy.stats")
+    study = bias_study([0, 0, 0, 30, 30, 30], [0.1, 0.3, 179.8, 30.2, 30.4, 30.3])
+    zero, thirty = study.per_nominal
+    assert zero.bias_deg == pytest.approx(0.066667, abs=1e-6)
+    assert zero.repeatability_deg == pytest.approx(0.251661, abs=1e-6)
+    assert zero.mean_measured_deg == pytest.approx(0.066667, abs=1e-6)
+    # Reference: scipy's one-sample t test of the deviations against 0
+    ref = stats.ttest_1samp([0.1, 0.3, -0.2], 0.0)
+    assert zero.t == pytest.approx(ref.statistic, rel=1e-9)
+    assert zero.p_value == pytest.approx(ref.pvalue, rel=1e-9)
+    assert zero.ci_deg == pytest.approx(tuple(ref.confidence_interval(0.95)), rel=1e-9)
+    assert thirty.bias_deg == pytest.approx(0.3, abs=1e-9)
+
+
+def test_linearity_agrees_with_statsmodels_ols():
+    # Reference: statsmodels OLS of deviation on nominal, conf_int(alpha=0.05).
+    sm = pytest.importorskip("statsmodels.api")
+    rng = np.random.default_rng(2)
+    nominals = np.repeat([0.0, 30.0, 60.0, 90.0, 120.0], 4)
+    deviations = 0.05 + 0.002 * nominals + rng.normal(0, 0.03, nominals.size)
+    study = bias_study(nominals, nominals + deviations)
+    fit = sm.OLS(deviations, sm.add_constant(nominals)).fit()
+    ci = fit.conf_int(alpha=0.05)
+    lin = study.linearity
+    assert lin.intercept == pytest.approx(fit.params[0], rel=1e-9)
+    assert lin.slope == pytest.approx(fit.params[1], rel=1e-9)
+    assert lin.intercept_ci == pytest.approx(tuple(ci[0]), rel=1e-9)
+    assert lin.slope_ci == pytest.approx(tuple(ci[1]), rel=1e-9)
+    assert lin.slope_p_value == pytest.approx(fit.pvalues[1], rel=1e-6)
+    assert [b.nominal_deg for b in study.per_nominal] == [0, 30, 60, 90, 120]
+
+
+def test_single_nominal_has_no_linearity_and_single_measurement_no_spread():
+    study = bias_study([45.0], [45.2])
+    assert study.linearity is None
+    (only,) = study.per_nominal
+    assert only.bias_deg == pytest.approx(0.2)
+    assert only.repeatability_deg is None and only.ci_deg is None
+
+
+@pytest.mark.parametrize(
+    ("nominals", "measured", "message"),
+    [
+        ([0, 30], [0.1], "2 nominal angles for 1 measurements"),
+        ([], [], "no measurements"),
+        ([0, 30], [0.1, float("nan")], "finite"),
+    ],
+)
+def test_bias_study_bad_input(nominals, measured, message):
+    with pytest.raises(InputError, match=message):
+        bias_study(nominals, measured)
+
+
+# ------------------------------------------------------------------ PDF page
+
+
+def test_gauge_pdf_page_holds_tables_verdict_caution_and_vector_charts(tmp_path):
+    pypdf = pytest.importorskip("pypdf")
+    study = gauge_rr(INTERACTION_TABLE, tolerance=30.0, source="study.csv")
+    out = tmp_path / "gauge.pdf"
+    write_gauge_pdf(study, out)
+    reader = pypdf.PdfReader(str(out))
+    assert len(reader.pages) == 1
+    text = reader.pages[0].extract_text()
+    for expected in (
+        "ANOVA, with interaction",
+        "Variance components",
+        "Gauge not acceptable",
+        "Range of trials by appraiser",
+        "Means by part and appraiser",
+        "part x appraiser",
+    ):
+        assert expected in text
+    assert " ".join(CAUTION.split()[:6]) in " ".join(text.split())
+    assert len(reader.pages[0].images) == 0  # charts are vector graphics, not pictures
+    assert not list(tmp_path.glob("*.part"))
+
+
+def test_image_table_is_checked_before_any_image_is_measured(tmp_path):
+    measured = []
+    text = "part,appraiser,trial,image\nP1,A,1,a.png\nP1,A,2,b.png\nP1,B,1,c.png\nP2,A,1,d.png\n"
+    with pytest.raises(InputError, match="part 'P2' is measured by appraiser") as info:
+        read_study_csv(_write(tmp_path, text), measure=lambda p: measured.append(p) or 0.0)
+    assert any("has no trial 2" in p for p in info.value.problems)
+    assert measured == []
+
+
+def test_image_table_values_come_from_measure_with_paths_beside_the_table(tmp_path):
+    rows = ["part,appraiser,trial,image"]
+    for i in range(2):
+        for a in "AB":
+            for k in (1, 2):
+                rows.append(f"P{i},{a},{k},img/P{i}-{a}-{k}.png")
+    seen = []
+
+    def fake_measure(path):
+        seen.append(path)
+        part, appraiser, trial = path.stem.split("-")
+        return int(part[1]) * 10 + (appraiser == "B") + 0.1 * int(trial)
+
+    table = read_study_csv(_write(tmp_path, "\n".join(rows)), measure=fake_measure)
+    assert seen[0] == tmp_path / "img" / "P0-A-1.png"
+    np.testing.assert_allclose(table.values[1, 1], [11.1, 11.2])
+
+
+def test_image_table_without_measure_and_failed_measurement(tmp_path):
+    text = "part,appraiser,trial,image\n" + "".join(
+        f"P{i},{a},{k},x.png\n" for i in (1, 2) for a in "AB" for k in (1, 2)
+    )
+    path = _write(tmp_path, text)
+    with pytest.raises(InputError, match="lists images; give a recipe and region"):
+        read_study_csv(path)
+
+    def refuse(p):
+        raise InputError(f"{p}: image file not found")
+
+    with pytest.raises(InputError, match=r"study\.csv:2: image: .*x\.png: image file not found \(and 7 more\)"):
+        read_study_csv(path, measure=refuse)
+
+
+def test_header_with_both_value_and_image_is_refused(tmp_path):
+    with pytest.raises(InputError, match="both value and image"):
+        read_study_csv(_write(tmp_path, "part,appraiser,trial,value,image\nP1,A,1,1,x.png\n"))

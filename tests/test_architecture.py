@@ -1,0 +1,123 @@
+"""The house rules of the package layout, as checks that can fail.
+
+Rooms are stacked floors: a module may import its own room and the rooms below it, never one
+above. The shared contracts at the bottom import no room at all, and the measurement core imports
+nothing but the standard library, numpy, scipy, OpenCV and scikit-image (no PDF, database or web
+code). The map of the rooms is at the top of DEVELOPERS.md; keep the two in step.
+"""
+
+from __future__ import annotations
+
+import ast
+import sys
+from pathlib import Path
+
+import pytest
+
+PACKAGE = Path(__file__).resolve().parents[1] / "surfinspect"
+
+#: Floor of each room, lowest first. ``shared`` is the top-level modules (contracts and utilities).
+FLOORS = {"shared": 0, "measure": 1, "qualify": 2, "report": 3, "archive": 4, "station": 5, "review": 6, "cli": 7}
+
+#: What the measurement core may import besides the standard library and its own package.
+MEASURE_THIRD_PARTY = {"numpy", "scipy", "cv2", "skimage"}
+
+#: Modules that exist to face the outside (the public API and ``python -m``) may import any room.
+FACADES = {"surfinspect/__init__.py", "surfinspect/__main__.py"}
+
+
+def _modules() -> list[Path]:
+    return sorted(PACKAGE.rglob("*.py"))
+
+
+def _dotted(path: Path) -> list[str]:
+    parts = list(path.relative_to(PACKAGE.parent).with_suffix("").parts)
+    return parts[:-1] if parts[-1] == "__init__" else parts
+
+
+def _room(dotted: list[str]) -> str:
+    """``surfinspect.measure.engine`` -> measure; ``surfinspect.recipe`` -> shared."""
+    if len(dotted) >= 2 and dotted[1] in FLOORS and (PACKAGE / dotted[1]).is_dir():
+        return dotted[1]
+    return "shared"
+
+
+def _imports(path: Path) -> list[tuple[int, str]]:
+    """Every import in the file (also inside functions), as absolute dotted names."""
+    here = _dotted(path)
+    package = here if path.name == "__init__.py" else here[:-1]
+    found = []
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"), str(path))):
+        if isinstance(node, ast.Import):
+            found += [(node.lineno, alias.name) for alias in node.names]
+        elif isinstance(node, ast.ImportFrom):
+            if node.level:
+                base = package[: len(package) - (node.level - 1)]
+                target = ".".join(base + ([node.module] if node.module else []))
+            else:
+                target = node.module or ""
+            if node.level and not node.module:  # from . import a, b: each name may be a module
+                found += [(node.lineno, f"{target}.{alias.name}") for alias in node.names]
+            else:
+                found.append((node.lineno, target))
+    return found
+
+
+def _is_package_module(name: str) -> bool:
+    """Whether ``surfinspect.x.y`` names a module or package (not a name inside one)."""
+    rel = Path(*name.split("."))
+    return (PACKAGE.parent / rel).with_suffix(".py").exists() or (PACKAGE.parent / rel).is_dir()
+
+
+def _target_room(name: str) -> str:
+    parts = name.split(".")
+    while len(parts) > 1 and not _is_package_module(".".join(parts)):
+        parts = parts[:-1]
+    return _room(parts)
+
+
+@pytest.mark.parametrize("path", _modules(), ids=lambda p: str(p.relative_to(PACKAGE.parent)))
+def test_no_module_imports_a_room_above_its_own(path):
+    rel = str(path.relative_to(PACKAGE.parent))
+    if rel in FACADES:
+        return
+    room = _room(_dotted(path))
+    upward = [
+        f"{rel}:{line}: imports {name} ({_target_room(name)} is above {room})"
+        for line, name in _imports(path)
+        if name.split(".")[0] == "surfinspect" and FLOORS[_target_room(name)] > FLOORS[room]
+    ]
+    assert not upward, "\n".join(upward)
+
+
+@pytest.mark.parametrize(
+    "path", sorted((PACKAGE / "measure").rglob("*.py")), ids=lambda p: str(p.relative_to(PACKAGE.parent))
+)
+def test_measurement_core_imports_only_numeric_libraries(path):
+    rel = str(path.relative_to(PACKAGE.parent))
+    foreign = [
+        f"{rel}:{line}: imports {name}"
+        for line, name in _imports(path)
+        if (top := name.split(".")[0]) != "surfinspect"
+        and top not in sys.stdlib_module_names
+        and top not in MEASURE_THIRD_PARTY
+    ]
+    banned_stdlib = [
+        f"{rel}:{line}: imports {name}" for line, name in _imports(path) if name.split(".")[0] == "sqlite3"
+    ]
+    assert not foreign + banned_stdlib, "\n".join(foreign + banned_stdlib)
+
+
+def test_the_checker_sees_an_upward_import(tmp_path, monkeypatch):
+    """The rules above must be able to fail: a fake measure module importing the report is caught."""
+    fake = PACKAGE / "measure" / "engine.py"
+    imports = _imports(fake)
+    assert any(name.startswith("surfinspect.recipe") for _, name in imports)  # relative import resolved
+    probe = tmp_path / "probe.py"
+    probe.write_text("from ..report import pdf\nimport reportlab\n")
+    monkeypatch.setattr(sys.modules[__name__], "_dotted", lambda p: ["surfinspect", "measure", "probe"])
+    names = [n for _, n in _imports(probe)]
+    assert names == ["surfinspect.report", "reportlab"]
+    assert FLOORS[_target_room("surfinspect.report")] > FLOORS["measure"]
+    assert _target_room("surfinspect.report.pdf.render_report") == "report"
+    assert _target_room("surfinspect.results.PartResult") == "shared"
