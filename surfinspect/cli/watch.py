@@ -12,19 +12,14 @@ or archive could not be written).
 from __future__ import annotations
 
 import argparse
-import contextlib
 import shlex
 import signal
-import threading
-from pathlib import Path
-from typing import Iterator
 
 from ..station import watch
+from .batch import batch_fields, on_stop_signals
 from .console import Console
 
 HELP = "judge each image as it arrives in a folder, publish verdicts (JSON lines, OPC UA), archive the batch"
-
-_STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, name))
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -54,23 +49,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--poll", action="store_true", help="poll the folder instead of inotify (network shares)")
 
 
-@contextlib.contextmanager
-def _signals_stop(station: watch.Station) -> Iterator[None]:
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-
-    def stop(signum, frame) -> None:
-        station.request_stop(f"{signal.Signals(signum).name} received")
-
-    previous = {sig: signal.signal(sig, stop) for sig in _STOP_SIGNALS}
-    try:
-        yield
-    finally:
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
-
-
 def _status_text(batch_id: str, status: watch.StationStatus) -> str:
     c = status.counts
     last = status.last
@@ -82,17 +60,8 @@ def _status_text(batch_id: str, status: watch.StationStatus) -> str:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    if args.settle is not None and not args.settle > 0:
-        from ..errors import InputError
-
-        raise InputError(f"--settle: must be more than 0 seconds (got {args.settle})")
     config = watch.WatchConfig(
-        recipe_path=Path(args.recipe),
-        folder=Path(args.folder),
-        archive_dir=Path(args.archive),
-        batch_id=args.batch_id,
-        jobs=args.jobs,
-        operator=args.operator,
+        **batch_fields(args),
         opcua=args.opcua,
         stop_after=args.stop_after,
         idle_timeout_s=args.idle_timeout,
@@ -105,7 +74,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         console.status(_status_text(args.batch_id, status))
 
     station = watch.Station(config, on_judged=judged, on_warning=console.warn)
-    with _signals_stop(station):
+    with on_stop_signals(lambda signum, frame: station.request_stop(f"{signal.Signals(signum).name} received")):
         outcome = station.run()
     console.status("")
     _summarise(args, console, outcome)

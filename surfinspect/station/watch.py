@@ -191,6 +191,8 @@ class Station:
             raise InputError(f"--stop-after: must be at least 1 (got {cfg.stop_after})")
         if cfg.idle_timeout_s is not None and not cfg.idle_timeout_s > 0:
             raise InputError(f"--idle-timeout: must be more than 0 seconds (got {cfg.idle_timeout_s})")
+        if not cfg.settle_s > 0:
+            raise InputError(f"--settle: must be more than 0 seconds (got {cfg.settle_s})")
         if cfg.opcua:
             parse_endpoint(cfg.opcua)
         archive_mod.check_batch_id(cfg.batch_id)

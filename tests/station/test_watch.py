@@ -392,3 +392,25 @@ def test_closed_batch_id_is_refused_and_bad_flags_exit_2(tmp_path, capsys):
     ):
         assert main(["watch", *base, *extra]) == 2
         assert message in capsys.readouterr().err
+
+
+def test_close_cut_short_is_finished_by_the_next_run(tmp_path, monkeypatch):
+    station, judged, _ = _in_process(tmp_path, stop_after=2)
+    for name, source in _parts_plan(2):
+        shutil.copy(source, tmp_path / "camera" / name)
+    real_finish = batch._finish
+
+    def power_cut(arc_, batch_id):
+        raise KeyboardInterrupt  # stands for a kill after the parts went into the archive, before the report
+
+    monkeypatch.setattr(batch, "_finish", power_cut)
+    with pytest.raises(KeyboardInterrupt):
+        _run_bounded(station)
+    with arc.Archive(tmp_path / "archive") as a:
+        assert not a.batch("LINE-3").is_finished and all(p.is_done for p in a.parts("LINE-3"))
+    monkeypatch.setattr(batch, "_finish", real_finish)
+    again, judged_again, _ = _in_process(tmp_path, stop_after=2)
+    outcome = _run_bounded(again)
+    assert outcome.closed and "interrupted" in outcome.why_closed and judged_again == []
+    assert sorted(p.part_key for p in outcome.parts) == sorted(n for n, _ in _parts_plan(2))
+    assert arc.verify(tmp_path / "archive") == []
