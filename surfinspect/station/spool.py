@@ -103,8 +103,13 @@ class Spool:
             with open(self.journal, "rb+") as fh:
                 fh.truncate(good_end)
                 os.fsync(fh.fileno())
-        for rec in records[1:]:
-            part = SpooledPart(**rec)
+        for number, rec in enumerate(records[1:], start=2):
+            try:
+                part = SpooledPart(**rec)
+            except TypeError:
+                raise InputError(
+                    f"{self.journal}: line {number}: not a part record (the journal was damaged)"
+                ) from None
             self._parts[part.part_key] = part
 
     # -- reading

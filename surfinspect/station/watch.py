@@ -156,7 +156,7 @@ class Station:
         self._stop = threading.Event()
         self._why_stop = ""
         self._fatal: str | None = None
-        self._publish_lock = threading.Lock()
+        self._publish_lock = threading.RLock()
         self._counts = _Counts()
         self._retried: set[str] = set()
         self._inflight: dict[str, Future] = {}
@@ -331,8 +331,9 @@ class Station:
             for r in result.regions
         )
         latency = _ms_since(arrival.completed_at)
-        self._publish(JudgedPart(key, result.image.sha256, verdict, verdict_code(verdict), regions, latency))
-        self._recording.submit(self._guarded, self._record, arrival, staged, result, loaded.pixels)
+        with self._publish_lock:  # recorded in the order published
+            self._publish(JudgedPart(key, result.image.sha256, verdict, verdict_code(verdict), regions, latency))
+            self._recording.submit(self._guarded, self._record, arrival, staged, result, loaded.pixels)
 
     def _record(self, arrival: Arrival, staged: Path, result, pixels) -> None:
         result_json, overlay_png = _result_files(pixels, result)
@@ -352,21 +353,32 @@ class Station:
         """A file that could not be read: judged again once it settles, recorded as not inspected if it stays so."""
         path, key = arrival.path, arrival.path.name
         now = _stat_or_none(path)
-        try:
+        if now is None or now != before or key not in self._retried:
+            self._spool.unstage(staged)
             if now is None:
                 self.on_warning(f"{key}: the file vanished before it was judged; skipped")
-                return
-            if now != before or key not in self._retried:  # still being written, or caught at a bad moment
+            else:  # still being written, or caught at a bad moment: once more when it stays unchanged
                 self._retried.add(key)
                 self._arrivals.note(path, "changed")
-                return
-            try:
-                sha = sha256_file(staged)
-            except OSError as exc:
-                sha, reason = None, f"{key}: cannot read the file ({exc.strerror or exc})"
-            error = archive_mod.ERROR_VERDICT
+            return
+        try:
+            sha = sha256_file(staged)
+        except OSError as exc:
+            sha, reason = None, f"{key}: cannot read the file ({exc.strerror or exc})"
+        error = archive_mod.ERROR_VERDICT
+        with self._publish_lock:
             self._publish(JudgedPart(key, sha, error, verdict_code(error), (), _ms_since(arrival.completed_at), reason))
-            self._spool.record(key, image=staged if sha else None, image_sha256=sha, verdict=error, error=reason)
+            self._recording.submit(self._guarded, self._record_not_inspected, arrival, staged, sha, reason)
+
+    def _record_not_inspected(self, arrival: Arrival, staged: Path, sha: str | None, reason: str) -> None:
+        try:
+            self._spool.record(
+                arrival.path.name,
+                image=staged if sha else None,
+                image_sha256=sha,
+                verdict=archive_mod.ERROR_VERDICT,
+                error=reason,
+            )
         finally:
             self._spool.unstage(staged)
 

@@ -414,3 +414,32 @@ def test_close_cut_short_is_finished_by_the_next_run(tmp_path, monkeypatch):
     assert outcome.closed and "interrupted" in outcome.why_closed and judged_again == []
     assert sorted(p.part_key for p in outcome.parts) == sorted(n for n, _ in _parts_plan(2))
     assert arc.verify(tmp_path / "archive") == []
+
+
+def test_endpoint_in_use_is_an_input_error_and_leaves_no_server(tmp_path):
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        port = busy.getsockname()[1]
+        station, _, _ = _in_process(tmp_path, opcua=f"opc.tcp://127.0.0.1:{port}", idle_timeout_s=0.5)
+        with pytest.raises(InputError, match=f"--opcua opc.tcp://127.0.0.1:{port}/surfinspect/: cannot serve OPC UA"):
+            station.run()
+    assert not [t for t in threading.enumerate() if t.name == "opcua-server"]
+
+
+def test_status_line_only_on_a_terminal():
+    import io
+
+    from surfinspect.cli.console import Console
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    for err, shown in ((Terminal(), True), (io.StringIO(), False)):
+        console = Console(out=io.StringIO(), err=err)
+        console.status("LINE: 3 parts")
+        console.warn("x.png: the file vanished")
+        text = err.getvalue()
+        assert ("\rLINE: 3 parts\x1b[K\n" in text) is shown
+        assert text.endswith("surfinspect: warning: x.png: the file vanished\n")
