@@ -80,6 +80,7 @@ class JudgedPart:
     regions: tuple[PublishedRegion, ...]
     latency_ms: float  # file complete -> verdict ready to publish
     error: str | None = None
+    judged_at: str = field(default_factory=archive_mod.utc_now)  # UTC, when the verdict was ready
 
     def json_line(self) -> str:
         record = {
@@ -92,6 +93,7 @@ class JudgedPart:
                 for r in self.regions
             ],
             "latency_ms": round(self.latency_ms, 2),
+            "judged_at": self.judged_at,
         }
         if self.error is not None:
             record["error"] = self.error

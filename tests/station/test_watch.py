@@ -19,6 +19,7 @@ import subprocess
 import sys
 import threading
 import time
+from datetime import datetime, timezone
 from pathlib import Path
 
 import pytest
@@ -143,8 +144,9 @@ class VerdictClient:
 
     def __init__(self, url: str):
         self.url = url
-        self.verdicts: list[tuple[str, str]] = []  # (verdict, part name read with it)
+        self.verdicts: list[str] = []
         self.heartbeats: list[int] = []
+        self.written_at: list = []  # server-side source timestamps of the verdict writes
         self.ready = threading.Event()
         self._stop = threading.Event()
         self.error: BaseException | None = None
@@ -160,6 +162,7 @@ class VerdictClient:
                 name = node.nodeid.Identifier.rsplit(".", 1)[-1]
                 if name == "Verdict" and value:
                     client.verdicts.append(value)
+                    client.written_at.append(data.monitored_item.Value.SourceTimestamp)
                 elif name == "Heartbeat":
                     client.heartbeats.append(value)
 
@@ -231,6 +234,9 @@ def test_line_run_publishes_every_part_once_in_order_and_archives_it_as_batch_wo
         assert line["latency_ms"] > 0
     # the controller saw each part's verdict, in the order the station judged them
     assert client.verdicts == [line["verdict"] for line in lines]
+    for line, written in zip(lines, client.written_at):  # the OPC UA value is set within 100 ms of the verdict
+        judged = datetime.fromisoformat(line["judged_at"].replace("Z", "+00:00"))
+        assert 0 <= (written.replace(tzinfo=timezone.utc) - judged).total_seconds() < 0.1
     assert len(client.heartbeats) >= 2 and client.heartbeats == sorted(client.heartbeats)
     with arc.Archive(archive) as a:
         rows = a.parts("LINE-1")
