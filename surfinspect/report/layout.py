@@ -24,52 +24,25 @@ from .overlay import (
 
 #: Decimals of every angle the report prints (values rounded from the JSON form).
 PAGE_SIZE = A4
-
-
 #: Long side of the embedded photo at most (about 220 dpi across the page's text width).
 PICTURE_MAX_PX = 1600
-
-
 JPEG_QUALITY = 82
-
-
 DEFAULT_TITLE = "Surface lay inspection report"
-
 
 #: A page that another module appends: it draws on the canvas, the report adds the footer.
 ExtraPage = Callable[[Canvas, tuple[float, float]], None]
 
-
 _MARGIN = 36.0
-
-
 _FOOTER = 30.0
-
-
 _FRAME_W = PAGE_SIZE[0] - 2 * _MARGIN
-
-
 _PICTURE_MAX_H = 340.0
-
-
 _GLYPH_SPACING_PT = 12.0  # denser glyphs cover the photo on paper
-
-
 _VERDICT_ORDER = {PartVerdict.REJECT: 0, PartVerdict.REVIEW: 1, PartVerdict.ACCEPT: 2}
-
-
 _REGION_SEVERITY = {RegionVerdict.FAIL: 2, RegionVerdict.NO_TEXTURE: 1, RegionVerdict.PASS: 0}
 
-
 _BODY = ParagraphStyle("body", fontName="Helvetica", fontSize=8, leading=10)
-
-
 _SMALL = ParagraphStyle("small", fontName="Helvetica", fontSize=7, leading=8.6)
-
-
 _CELL = ParagraphStyle("cell", fontName="Helvetica", fontSize=7.5, leading=9)
-
-
 _CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName="Helvetica-Bold")
 
 
@@ -89,6 +62,9 @@ def _tint(colour: RGB, amount: float = 0.3) -> colors.Color:
     """The colour mixed with white: a light fill that keeps black text readable."""
     r, g, b = (1.0 - amount + amount * c / 255.0 for c in colour)
     return colors.Color(r, g, b)
+
+
+# --------------------------------------------------------------------- layout
 
 
 class _Layout:
@@ -171,6 +147,9 @@ def _table(rows, col_widths, style_commands, *, repeat_rows: int = 1) -> Table:
     return Table(rows, colWidths=col_widths, style=TableStyle(base + list(style_commands)), repeatRows=repeat_rows)
 
 
+# ------------------------------------------------------------ verdict marks
+
+
 def _verdict_icon(c: Canvas, kind: str, cx: float, cy: float, size: float) -> None:
     """A shape that names the verdict in black-and-white print."""
     r = size / 2
@@ -241,8 +220,6 @@ def _titled_box(c: Canvas, y: float, height: float, title: str, *, line_width: f
 
 #: The encoding of the standard PDF fonts the report uses (reportlab's WinAnsiEncoding, Windows Latin-1).
 _FONT_ENCODING = "cp1252"
-
-
 REPLACED_CHARACTERS_NOTE = "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)"
 
 

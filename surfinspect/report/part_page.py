@@ -38,8 +38,6 @@ from .regions import (
 from .rose import _draw_deviation_bars, _draw_rose, _figure_list
 
 _PART_HEADER_H = 40.0
-
-
 _VERDICT_LINE = ParagraphStyle("verdict", fontName="Helvetica-Bold", fontSize=8.5, leading=10.5)
 
 
@@ -89,8 +87,6 @@ def _image_lines(part: PartResult) -> str:
 
 #: Height of the picture when the part's other blocks leave more room on its page (points).
 _PICTURE_ROOMY_H = 470.0
-
-
 #: Smallest picture height that is still worth keeping a part on one page for (points).
 _PICTURE_MIN_H = 240.0
 
@@ -169,8 +165,6 @@ def _no_picture_note(c: Canvas, y: float) -> None:
 
 
 _FIGURES_PER_ROW = 4
-
-
 _FIGURE_H = 138.0
 
 

@@ -47,14 +47,8 @@ class _PartFigures:
 
 
 _CENTRED = ("circular", "radial")  # the expected lay turns about a centre, cell by cell
-
-
 _UNDIRECTED = ("multidirectional", "particulate")  # no direction may dominate
-
-
 _JUDGED_ANGLE = ("directional", "crossed", *_CENTRED)  # patterns whose tolerance_deg applies
-
-
 #: ISO 1302 lay symbols of the patterns that have no angle of their own (common drawing practice).
 _ISO_1302_SYMBOL = {"crossed": "X", "multidirectional": "M", "particulate": "P", "circular": "C", "radial": "R"}
 

@@ -11,14 +11,8 @@ from ..results import (
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
 
 _SIGNOFF_LINE = 14.5
-
-
 _SIGNOFF_VALUE_X = 90.0
-
-
 _SIGNOFF_VALUE_W = _FRAME_W - _SIGNOFF_VALUE_X - 10
-
-
 _SIGNOFF_TEXT_SIZE = 7.5
 
 

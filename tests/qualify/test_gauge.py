@@ -1,19 +1,13 @@
-"""Gauge R&R by the ANOVA method, bias and linearity, study-table reading, the PDF page."""
+"""Gauge R&R by the ANOVA method, bias and linearity, study-table reading (the PDF page: tests/report)."""
 
 import numpy as np
 import pytest
 
 from surfinspect.errors import InputError
-from surfinspect.qualify.gauge import (
-    CAUTION,
-    D4_BY_SUBGROUP,
-    GaugeVerdict,
-    bias_study,
-    gauge_rr,
-    gauge_to_dict,
-    read_study_csv,
-    write_gauge_pdf,
-)
+from surfinspect.qualify.bias import bias_study
+from surfinspect.qualify.gauge import D4_BY_SUBGROUP, GaugeVerdict, gauge_rr
+from surfinspect.qualify.gauge_forms import gauge_to_dict
+from surfinspect.qualify.study_table import read_study_csv
 
 
 def _table(cell_means, half_spread=0.5):
@@ -375,7 +369,7 @@ def test_rows_of_an_appraiser_the_other_parts_lack_are_named_together(tmp_path):
 
 
 def test_many_balance_problems_are_listed_up_to_the_limit_then_counted(tmp_path):
-    from surfinspect.qualify.gauge import MAX_BALANCE_LINES
+    from surfinspect.qualify.study_table import MAX_BALANCE_LINES
 
     # trial 2 of ann dropped for every part: 5 cells miss a trial, plus P5 measured by ann and bob only
     rows = [r for r in _crossed_rows() if not r.endswith(tuple(f",ann,2,{i}.01" for i in range(5)))]
@@ -465,31 +459,6 @@ def test_single_nominal_has_no_linearity_and_single_measurement_no_spread():
 def test_bias_study_bad_input(nominals, measured, message):
     with pytest.raises(InputError, match=message):
         bias_study(nominals, measured)
-
-
-# ------------------------------------------------------------------ PDF page
-
-
-def test_gauge_pdf_page_holds_tables_verdict_caution_and_vector_charts(tmp_path):
-    pypdf = pytest.importorskip("pypdf")
-    study = gauge_rr(INTERACTION_TABLE, tolerance=30.0, source="study.csv")
-    out = tmp_path / "gauge.pdf"
-    write_gauge_pdf(study, out)
-    reader = pypdf.PdfReader(str(out))
-    assert len(reader.pages) == 1
-    text = reader.pages[0].extract_text()
-    for expected in (
-        "ANOVA, with interaction",
-        "Variance components",
-        "Gauge not acceptable",
-        "Range of trials by appraiser",
-        "Means by part and appraiser",
-        "part x appraiser",
-    ):
-        assert expected in text
-    assert " ".join(CAUTION.split()[:6]) in " ".join(text.split())
-    assert len(reader.pages[0].images) == 0  # charts are vector graphics, not pictures
-    assert not list(tmp_path.glob("*.part"))
 
 
 def test_image_table_is_checked_before_any_image_is_measured(tmp_path):
