@@ -20,10 +20,8 @@ from ..results import (
 )
 from .charts import _chart, _chart_key
 from .layout import _CELL, _CELL_BOLD, _FRAME_W, _MARGIN, _SMALL, _Layout, _table, _tint
-from .overlay import (
-    PART_LOOKS,
-)
 from .regions import _JUDGED_ANGLE, _coherence_of
+from .scene import PART_LOOKS
 
 
 @dataclass(frozen=True)

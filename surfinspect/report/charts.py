@@ -10,9 +10,7 @@ from reportlab.pdfgen.canvas import Canvas
 
 from ..formatting import format_fixed
 from .layout import _MARGIN, _rl
-from .overlay import (
-    PALETTE,
-)
+from .scene import PALETTE
 
 
 def _chart(

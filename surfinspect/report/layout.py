@@ -17,10 +17,7 @@ from ..results import (
     PartVerdict,
     RegionVerdict,
 )
-from .overlay import (
-    PART_LOOKS,
-    RGB,
-)
+from .scene import PART_LOOKS, RGB
 
 #: Decimals of every angle the report prints (values rounded from the JSON form).
 PAGE_SIZE = A4

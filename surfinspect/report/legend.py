@@ -13,12 +13,7 @@ from ..results import (
     RegionVerdict,
 )
 from .layout import _FRAME_W, _MARGIN, _rl, _titled_box, _verdict_icon
-from .overlay import (
-    PALETTE,
-    PART_LOOKS,
-    REGION_LOOKS,
-    STYLE_UNITS,
-)
+from .scene import PALETTE, PART_LOOKS, REGION_LOOKS, STYLE_UNITS
 
 _LEGEND_H = 228.0
 

@@ -18,12 +18,7 @@ from ..results import (
     PartResult,
 )
 from .layout import _FRAME_W, _GLYPH_SPACING_PT, _MARGIN, _PICTURE_MAX_H, PAGE_SIZE, _fit_text, _Layout, _verdict_badge
-from .overlay import (
-    PART_LOOKS,
-    build_scene,
-    checked_picture,
-    measured_angles,
-)
+from .overlay import checked_picture
 from .picture import _draw_picture, _picture_jpeg
 from .regions import (
     _CENTRED,
@@ -36,6 +31,7 @@ from .regions import (
     _verdict_sentence,
 )
 from .rose import _draw_deviation_bars, _draw_rose, _figure_list
+from .scene import PART_LOOKS, build_scene, measured_angles
 
 _PART_HEADER_H = 40.0
 _VERDICT_LINE = ParagraphStyle("verdict", fontName="Helvetica-Bold", fontSize=8.5, leading=10.5)

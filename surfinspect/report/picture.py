@@ -13,14 +13,8 @@ from reportlab.lib.utils import ImageReader
 from reportlab.pdfgen.canvas import FILL_EVEN_ODD, Canvas
 
 from .layout import JPEG_QUALITY, PICTURE_MAX_PX, _rl
-from .overlay import (
-    STYLE_UNITS,
-    OverlayScene,
-    grey_to_uint8,
-    label_obstacles,
-    paint_scene,
-    place_labels,
-)
+from .overlay import grey_to_uint8, paint_scene
+from .scene import STYLE_UNITS, OverlayScene, label_obstacles, place_labels
 
 
 def _picture_jpeg(grey: np.ndarray) -> tuple[bytes, tuple[int, int]]:

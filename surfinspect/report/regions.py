@@ -18,10 +18,7 @@ from ..results import (
     RegionVerdict,
 )
 from .layout import _CELL, _CELL_BOLD, _REGION_SEVERITY, _percent, _table, _tint
-from .overlay import (
-    REGION_LOOKS,
-    patch_label,
-)
+from .scene import REGION_LOOKS, patch_label
 
 
 @dataclass(frozen=True)

@@ -16,10 +16,8 @@ from ..results import (
     RegionVerdict,
 )
 from .layout import _rl
-from .overlay import (
-    PALETTE,
-)
 from .regions import _CENTRED, _PartFigures
+from .scene import PALETTE
 
 
 def _draw_rose(

@@ -32,13 +32,8 @@ from .layout import (
     _verdict_icon,
 )
 from .legend import _LEGEND_H, _legend
-from .overlay import (
-    PALETTE,
-    PART_LOOKS,
-    REGION_LOOKS,
-    RGB,
-)
 from .regions import _JUDGED_ANGLE, _PartFigures
+from .scene import PALETTE, PART_LOOKS, REGION_LOOKS, RGB
 from .signoff import _signoff_block, _signoff_height
 
 
