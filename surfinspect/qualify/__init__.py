@@ -34,12 +34,12 @@ __getattr__, __dir__, __all__ = attach(
             "render_grating",
             "layout_targets",
             "render_sheet",
-            "write_target_pdf",
             "write_target_png",
             "target_recipe_yaml",
             "write_target_recipe",
             "check_dpi",
             "check_recipe_tolerance",
         ),
+        "target_pdf": ("write_target_pdf",),
     },
 )

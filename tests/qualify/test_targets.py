@@ -7,6 +7,7 @@ import pytest
 
 from surfinspect.errors import InputError
 from surfinspect.qualify import targets
+from surfinspect.qualify.target_pdf import write_target_pdf
 from surfinspect.qualify.targets import (
     A4_MM,
     MM_PER_INCH,
@@ -15,7 +16,6 @@ from surfinspect.qualify.targets import (
     render_grating,
     render_sheet,
     target_recipe_yaml,
-    write_target_pdf,
     write_target_png,
     write_target_recipe,
 )
