@@ -18,10 +18,24 @@ from .scene import PALETTE, PART_LOOKS, REGION_LOOKS, STYLE_UNITS
 _LEGEND_H = 228.0
 
 
+_KEY_TEXT_X = _MARGIN + 54  # where the words of the left column's keys start
+
+
 def _legend(c: Canvas, y: float) -> None:
     """Angle convention, colours and shapes, explained once."""
     c.saveState()
     _titled_box(c, y, _LEGEND_H, "How to read the pictures", line_width=0.6, title_size=9)
+    yy = _line_keys(c, y - 30)
+    _mark_keys(c, yy)
+    # right column: angle convention
+    x = _MARGIN + _FRAME_W / 2 + 20
+    _angle_convention(c, x, y)
+    _verdict_keys(c, x, y)
+    c.restoreState()
+
+
+def _line_keys(c: Canvas, yy: float) -> float:
+    """Left column, first the lines: region outlines by verdict, cell glyphs, expected and measured arrows."""
     line_keys = [
         ("outline", PALETTE["pass"], None, "Region passes (outline solid)"),
         ("outline", PALETTE["fail"], REGION_LOOKS[RegionVerdict.FAIL].dash, "Region fails (outline dashed)"),
@@ -36,8 +50,7 @@ def _legend(c: Canvas, y: float) -> None:
         ("expected", PALETTE["expected"], None, "Expected lay of the region (white double arrow)"),
         ("measured", PALETTE["measured"], None, "Measured lay of the region (blue double arrow)"),
     ]
-    x0, x1, tx = _MARGIN + 10, _MARGIN + 46, _MARGIN + 54
-    yy = y - 30
+    x0, x1, tx = _MARGIN + 10, _MARGIN + 46, _KEY_TEXT_X
     for key, colour, dash, text in line_keys:
         w = STYLE_UNITS[key] * 0.55
         c.setLineCap(1)
@@ -57,6 +70,12 @@ def _legend(c: Canvas, y: float) -> None:
         c.setFont("Helvetica", 7.5)
         c.drawString(tx, yy - 2.5, text)
         yy -= 15
+    return yy
+
+
+def _mark_keys(c: Canvas, yy: float) -> None:
+    """Left column, then the marks: expected tick per cell, centre, excluded area, patch box, part frame."""
+    tx = _KEY_TEXT_X
     # expected direction per cell, where it turns: a white tick under the cell's line
     c.setLineCap(0)
     for colour, width, half in (
@@ -101,8 +120,10 @@ def _legend(c: Canvas, y: float) -> None:
     c.line(_MARGIN + 14, yy + 9, _MARGIN + 16, yy + 5)
     c.circle(_MARGIN + 14, yy - 4, 2, stroke=1, fill=0)
     c.drawString(tx, yy - 2.5, "Part frame: origin, +X and +Y (datum part-edge)")
-    # right column: angle convention
-    x = _MARGIN + _FRAME_W / 2 + 20
+
+
+def _angle_convention(c: Canvas, x: float, y: float) -> None:
+    """Right column: the angle convention, drawn (a 30 degree lay) and in words."""
     c.setFont("Helvetica-Bold", 8)
     c.drawString(x, y - 30, "Angle convention")
     cx, cy, r = x + 30, y - 80, 26
@@ -136,6 +157,10 @@ def _legend(c: Canvas, y: float) -> None:
     ):
         text.textLine(line)
     c.drawText(text)
+
+
+def _verdict_keys(c: Canvas, x: float, y: float) -> None:
+    """Right column, below: the three part verdicts by word, colour and shape; how to read a rose plot."""
     c.setFont("Helvetica-Bold", 8)
     c.drawString(x, y - 140, "Verdicts (word and shape)")
     yy = y - 156
@@ -156,4 +181,3 @@ def _legend(c: Canvas, y: float) -> None:
     c.setFont("Helvetica", 6.8)
     c.drawString(x, yy - 4, "Rose plots: grey petals = orientation histogram (area ~ weight),")
     c.drawString(x, yy - 12, "green band = tolerance, dashed = expected, blue = measured lay.")
-    c.restoreState()

@@ -80,7 +80,7 @@ __all__ = [
 ]
 
 
-def _check_inputs(parts, images, report_id) -> tuple[list[PartResult], list]:
+def _check_inputs(parts, images, report_id, not_inspected) -> tuple[list[PartResult], list, list[NotInspected]]:
     parts = list(parts)
     images = list(images)
     if not parts:
@@ -94,7 +94,27 @@ def _check_inputs(parts, images, report_id) -> tuple[list[PartResult], list]:
     for k, p in enumerate(parts):
         if not isinstance(p, PartResult):
             raise InputError(f"report: parts[{k}]: not a PartResult (got {type(p).__name__})")
-    return parts, images
+    not_inspected = list(not_inspected)
+    for k, item in enumerate(not_inspected):
+        if not isinstance(item, NotInspected):
+            raise InputError(f"report: not_inspected[{k}]: not a NotInspected (got {type(item).__name__})")
+    return parts, images, not_inspected
+
+
+def _report_time(generated_at: datetime | str | None) -> datetime:
+    """The report's time in UTC: now, an aware or naive (taken as UTC) datetime, or ISO 8601 text."""
+    if generated_at is None:
+        generated_at = datetime.now(timezone.utc)
+    elif isinstance(generated_at, str):
+        try:
+            generated_at = datetime.fromisoformat(generated_at.replace("Z", "+00:00"))
+        except ValueError:
+            raise InputError(
+                f"report: generated_at: not an ISO 8601 time (got {generated_at!r}, allowed e.g. 2031-04-02T09:00:00Z)"
+            ) from None
+    if generated_at.tzinfo is None:
+        generated_at = generated_at.replace(tzinfo=timezone.utc)
+    return generated_at.astimezone(timezone.utc)
 
 
 def render_report(
@@ -155,52 +175,35 @@ def render_report(
         an empty ``report_id``, or a ``not_inspected`` entry that is not a
         :class:`NotInspected`.
     """
-    parts, images = _check_inputs(parts, images, report_id)
-    report_id = str(report_id)
-    title = title or DEFAULT_TITLE
-    station = station or socket.gethostname()
-    if generated_at is None:
-        generated_at = datetime.now(timezone.utc)
-    elif isinstance(generated_at, str):
-        try:
-            generated_at = datetime.fromisoformat(generated_at.replace("Z", "+00:00"))
-        except ValueError:
-            raise InputError(
-                f"report: generated_at: not an ISO 8601 time (got {generated_at!r}, allowed e.g. 2031-04-02T09:00:00Z)"
-            ) from None
-    if generated_at.tzinfo is None:
-        generated_at = generated_at.replace(tzinfo=timezone.utc)
-    generated_at = generated_at.astimezone(timezone.utc)
-
-    not_inspected = list(not_inspected)
-    for k, item in enumerate(not_inspected):
-        if not isinstance(item, NotInspected):
-            raise InputError(f"report: not_inspected[{k}]: not a NotInspected (got {type(item).__name__})")
+    parts, images, not_inspected = _check_inputs(parts, images, report_id, not_inspected)
     figs = [(i, _PartFigures(p, tuple(region_to_dict(r) for r in p.regions))) for i, p in enumerate(parts)]
-    ordered = sorted(figs, key=_sort_key)
-    stats = _batch_stats(parts) if batch_stats else []
-    summary_kwargs = dict(
-        report_id=report_id,
-        title=title,
+    summary = dict(
+        report_id=str(report_id),
+        title=title or DEFAULT_TITLE,
         operator=operator,
-        station=station,
-        generated_at=generated_at,
+        station=station or socket.gethostname(),
+        generated_at=_report_time(generated_at),
         signoff=signoff,
         not_inspected=not_inspected,
-        stats=stats,
+        stats=_batch_stats(parts) if batch_stats else [],
     )
+    pages = _lay_out_pages(figs, images, summary, extra_pages)
+    return _draw_pdf(pages, parts, summary)
 
-    # pass 1 counts the summary's pages, so the part table can give each part's page
+
+def _lay_out_pages(figs: list[tuple[int, _PartFigures]], images: list, summary: dict, extra_pages) -> list[list]:
+    """Every page's drawing steps in order: summary, parts, statistics, parts not inspected, extras.
+
+    The summary is laid out twice: the first pass counts its pages, so that the
+    part table of the second can give each part's page.
+    """
+    ordered = sorted(figs, key=_sort_key)
+    parts = [fig.part for _, fig in figs]
+    stats, not_inspected = summary["stats"], summary["not_inspected"]
     probe = _Layout()
-    _layout_summary(probe, ordered, {i: 999 for i, _ in figs}, not_inspected_page=999, stats_page=999, **summary_kwargs)
-    body = _Layout()
-    page_of: dict[int, int] = {}
+    _layout_summary(probe, ordered, {i: 999 for i, _ in figs}, not_inspected_page=999, stats_page=999, **summary)
     first_part_page = len(probe.pages) + 1
-    for i, fig in ordered:
-        if not body.page_is_empty:
-            body.new_page()
-        page_of[i] = first_part_page + len(body.pages) - 1
-        _layout_part(body, fig, images[i], f"part-{len(page_of)}", f"#{i + 1} of {len(parts)}")
+    body, page_of = _layout_part_pages(ordered, images, first_part_page)
     next_page = first_part_page + len(body.pages)
     stats_page = None
     if stats:
@@ -209,14 +212,8 @@ def render_report(
         _layout_batch_stats(stats_layout, parts, stats, page_of)
         stats_page, next_page = next_page, next_page + len(stats_layout.pages)
     layout = _Layout()
-    _layout_summary(
-        layout,
-        ordered,
-        page_of,
-        not_inspected_page=next_page if not_inspected else None,
-        stats_page=stats_page,
-        **summary_kwargs,
-    )
+    not_inspected_page = next_page if not_inspected else None
+    _layout_summary(layout, ordered, page_of, not_inspected_page=not_inspected_page, stats_page=stats_page, **summary)
     if len(layout.pages) != len(probe.pages):  # pragma: no cover - row heights do not depend on page digits
         raise RuntimeError("summary pagination changed between passes")
     layout.pages.extend(body.pages)
@@ -227,21 +224,37 @@ def render_report(
     for extra in extra_pages:
         layout.new_page()
         layout.pages[-1].append(lambda c, extra=extra: _extra(c, extra))
-    pages = [p for p in layout.pages if p]
+    return [p for p in layout.pages if p]
 
+
+def _layout_part_pages(ordered: list[tuple[int, _PartFigures]], images: list, first_page: int):
+    """The part pages in the summary's order, and the page number each part starts on."""
+    body = _Layout()
+    page_of: dict[int, int] = {}
+    for i, fig in ordered:
+        if not body.page_is_empty:
+            body.new_page()
+        page_of[i] = first_page + len(body.pages) - 1
+        _layout_part(body, fig, images[i], f"part-{len(page_of)}", f"#{i + 1} of {len(ordered)}")
+    return body, page_of
+
+
+def _draw_pdf(pages: list[list], parts: list[PartResult], summary: dict) -> bytes:
+    """Draw the pages with their footers into a deterministic PDF (fixed date, id from the report id)."""
+    report_id, title, generated_at = summary["report_id"], summary["title"], summary["generated_at"]
     buf = io.BytesIO()
     c = Canvas(buf, pagesize=PAGE_SIZE, invariant=1, pageCompression=1)
     stamp = generated_at.strftime("D:%Y%m%d%H%M%S+00'00'")
     c.setDateFormatter(lambda *_: stamp)
     c.setTitle(f"{title} {report_id}")
     c.setSubject(f"surfinspect report {report_id}")  # enters the PDF document id
-    c.setAuthor(operator or "surfinspect")
+    c.setAuthor(summary["operator"] or "surfinspect")
     c.setCreator("surfinspect " + ", ".join(_unique(p.engine_version for p in parts)))
     c.setKeywords(f"report {report_id}; generated {generated_at.strftime('%Y-%m-%dT%H:%M:%SZ')}")
     for n, page in enumerate(pages, start=1):
         for draw in page:
             draw(c)
-        _footer(c, n, len(pages), report_id, signoff)
+        _footer(c, n, len(pages), report_id, summary["signoff"])
         c.showPage()
     c.save()
     return buf.getvalue()

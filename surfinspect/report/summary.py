@@ -9,14 +9,10 @@ from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
 from reportlab.pdfgen.canvas import Canvas
-from reportlab.platypus import Paragraph
+from reportlab.platypus import Paragraph, Table
 
 from ..formatting import format_signed_angle
-from ..results import (
-    PartVerdict,
-    RegionVerdict,
-    SignOff,
-)
+from ..results import PartResult, PartVerdict, RegionVerdict, SignOff
 from .batch_stats import _RegionStats, _stats_line
 from .layout import (
     _CELL,
@@ -102,35 +98,55 @@ def _layout_summary(
     stats: Sequence[_RegionStats] = (),
     stats_page: int | None = None,
 ) -> None:
+    """The summary page(s): head with counts, facts of the batch, sign-off, the parts table, the legend."""
     parts = [f.part for _, f in figs]
+    layout.block(88, lambda c, y: _summary_head(c, y, parts, title, report_id, len(not_inspected)))
+    layout.flowable(_facts_table(parts, generated_at, station, operator, stats, stats_page))
+    layout.block(_signoff_height(signoff), lambda c, y: _signoff_block(c, y, signoff))
+    order = (
+        "rejected first, then not inspected, then review, then accepted"
+        if not_inspected
+        else "rejected first, then review, then accepted"
+    )
+    layout.text(f"<b>Parts</b> ({order}; # is the part's number in production order)", gap=2)
+    layout.flowable(_parts_table(figs, page_of, not_inspected, not_inspected_page))
+    layout.block(_LEGEND_H, _legend)
+
+
+def _summary_head(
+    c: Canvas, y: float, parts: Sequence[PartResult], title: str, report_id: str, not_inspected: int
+) -> None:
+    """Title, report id and part counts, and the boxes of counts by verdict."""
     counts = {v: sum(p.verdict is v for p in parts) for v in PartVerdict}
+    c.setFillColor(colors.black)
+    c.setFont("Helvetica-Bold", 17)
+    c.drawString(_MARGIN, y - 17, title)
+    c.setFont("Helvetica", 9)
+    line = f"Report {report_id} · {len(parts)} part{'s' if len(parts) != 1 else ''} inspected"
+    if not_inspected:
+        line += f" · {not_inspected} not inspected (image unreadable)"
+    c.drawString(_MARGIN, y - 31, line)
+    _count_boxes(c, y - 40, counts, not_inspected)
 
-    def head(c: Canvas, y: float) -> None:
-        c.setFillColor(colors.black)
-        c.setFont("Helvetica-Bold", 17)
-        c.drawString(_MARGIN, y - 17, title)
-        c.setFont("Helvetica", 9)
-        line = f"Report {report_id} · {len(parts)} part{'s' if len(parts) != 1 else ''} inspected"
-        if not_inspected:
-            line += f" · {len(not_inspected)} not inspected (image unreadable)"
-        c.drawString(_MARGIN, y - 31, line)
-        _count_boxes(c, y - 40, counts, len(not_inspected))
 
-    layout.block(88, head)
+def _facts_table(
+    parts: Sequence[PartResult],
+    generated_at: datetime,
+    station: str,
+    operator: str | None,
+    stats: Sequence[_RegionStats],
+    stats_page: int | None,
+) -> Table:
+    """Recipes, engine version, time (UTC and local), station, operator and the batch statistics lines."""
     local = generated_at.astimezone()
     info = []
     for name, revision, sha in _unique((p.recipe.name, p.recipe.revision, p.recipe.sha256) for p in parts):
         n = sum(p.recipe.name == name and p.recipe.revision == revision for p in parts)
-        info.append(
-            [
-                "Recipe",
-                Paragraph(
-                    f"<b>{escape(name)}</b> · revision {revision} · {n} part{'s' if n != 1 else ''}<br/>"
-                    f"SHA-256 <font name=Courier size=7>{sha}</font>",
-                    _CELL,
-                ),
-            ]
+        recipe = (
+            f"<b>{escape(name)}</b> · revision {revision} · {n} part{'s' if n != 1 else ''}<br/>"
+            f"SHA-256 <font name=Courier size=7>{sha}</font>"
         )
+        info.append(["Recipe", Paragraph(recipe, _CELL)])
     info += [
         ["Engine version", ", ".join(_unique(p.engine_version for p in parts))],
         ["Generated (UTC)", generated_at.strftime("%Y-%m-%d %H:%M:%S UTC")],
@@ -141,24 +157,22 @@ def _layout_summary(
     if stats:
         lines = "<br/>".join(_stats_line(st) for st in stats)
         where = f" (page {stats_page})" if stats_page is not None else ""
-        info.append(
-            [
-                "Batch statistics",
-                Paragraph(f"{lines}<br/><font size=6.5>control charts and capability{where}</font>", _CELL),
-            ]
-        )
-    layout.flowable(
-        _table(
-            info,
-            [100, _FRAME_W - 100],
-            [
-                ("FONT", (0, 0), (0, -1), "Helvetica-Bold", 7.5),
-                ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.93, 0.93, 0.93)),
-            ],
-            repeat_rows=0,
-        )
-    )
-    layout.block(_signoff_height(signoff), lambda c, y: _signoff_block(c, y, signoff))
+        note = f"{lines}<br/><font size=6.5>control charts and capability{where}</font>"
+        info.append(["Batch statistics", Paragraph(note, _CELL)])
+    shading = [
+        ("FONT", (0, 0), (0, -1), "Helvetica-Bold", 7.5),
+        ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.93, 0.93, 0.93)),
+    ]
+    return _table(info, [100, _FRAME_W - 100], shading, repeat_rows=0)
+
+
+def _parts_table(
+    figs: Sequence[tuple[int, _PartFigures]],
+    page_of: Mapping[int, int],
+    not_inspected: Sequence[NotInspected],
+    not_inspected_page: int | None,
+) -> Table:
+    """One row per part: rejects, then parts not inspected (a hold like the rejects), then the rest."""
     rows = [["#", "Part", "Verdict", "Worst region", "Worst deviation", "First reason", "Page"]]
     style = []
 
@@ -179,70 +193,41 @@ def _layout_summary(
         if word in (PART_LOOKS[PartVerdict.REJECT][0], _NOT_INSPECTED_WORD):
             style.append(("LINEBEFORE", (0, k), (0, k), 2.5, colors.black))
 
-    def add_part(index: int, fig: _PartFigures) -> None:
-        worst = fig.worst
-        if worst is None:
-            region_name, deviation = "—", "—"
-        else:
-            region, d = worst
-            region_name = f"{region.name} ({REGION_LOOKS[region.verdict].word})"
-            if region.verdict is RegionVerdict.NO_TEXTURE:
-                deviation = "no texture"
-            else:
-                deviation = (
-                    format_signed_angle(d["deviation_deg"]) if region.lay_pattern in _JUDGED_ANGLE else "not judged"
-                )
-        reasons = [r for reg in fig.part.regions if reg.verdict is not RegionVerdict.PASS for r in reg.reasons]
-        reasons = list(fig.part.reasons) + reasons
-        word, colour, _ = PART_LOOKS[fig.part.verdict]
-        add_row(
-            str(index + 1),
-            fig.part.name,
-            word,
-            colour,
-            region_name,
-            deviation,
-            reasons[0] if reasons else "—",
-            page_of.get(index),
-        )
-
-    ordered = list(figs)
-    rejects = [f for f in ordered if f[1].part.verdict is PartVerdict.REJECT]
-    for index, fig in rejects:
-        add_part(index, fig)
-    for item in not_inspected:  # a hold like the rejects: listed before the parts that need review
-        add_row(
-            "—",
-            item.name,
-            _NOT_INSPECTED_WORD,
-            PALETTE["no-texture"],
-            "—",
-            "—",
-            item.error or "image could not be read",
-            not_inspected_page,
-        )
-    for index, fig in ordered:
+    for index, fig in figs:
+        if fig.part.verdict is PartVerdict.REJECT:
+            add_row(*_part_row(index, fig), page_of.get(index))
+    for item in not_inspected:
+        reason = item.error or "image could not be read"
+        add_row("—", item.name, _NOT_INSPECTED_WORD, PALETTE["no-texture"], "—", "—", reason, not_inspected_page)
+    for index, fig in figs:
         if fig.part.verdict is not PartVerdict.REJECT:
-            add_part(index, fig)
-    order = (
-        "rejected first, then not inspected, then review, then accepted"
-        if not_inspected
-        else "rejected first, then review, then accepted"
-    )
-    layout.text(f"<b>Parts</b> ({order}; # is the part's number in production order)", gap=2)
-    layout.flowable(
-        _table(
-            rows,
-            [20, 96, 62, 88, 66, 161, 30],
-            style
-            + [
-                ("ALIGN", (0, 1), (0, -1), "RIGHT"),
-                ("ALIGN", (4, 1), (4, -1), "RIGHT"),
-                ("ALIGN", (-1, 1), (-1, -1), "RIGHT"),
-            ],
-        )
-    )
-    layout.block(_LEGEND_H, _legend)
+            add_row(*_part_row(index, fig), page_of.get(index))
+    right = [
+        ("ALIGN", (0, 1), (0, -1), "RIGHT"),
+        ("ALIGN", (4, 1), (4, -1), "RIGHT"),
+        ("ALIGN", (-1, 1), (-1, -1), "RIGHT"),
+    ]
+    return _table(rows, [20, 96, 62, 88, 66, 161, 30], style + right)
+
+
+def _part_row(index: int, fig: _PartFigures) -> tuple[str, str, str, RGB, str, str, str]:
+    """A part's number, name, verdict word and colour, worst region and its deviation, first reason."""
+    worst = fig.worst
+    if worst is None:
+        region_name, deviation = "—", "—"
+    else:
+        region, d = worst
+        region_name = f"{region.name} ({REGION_LOOKS[region.verdict].word})"
+        if region.verdict is RegionVerdict.NO_TEXTURE:
+            deviation = "no texture"
+        elif region.lay_pattern in _JUDGED_ANGLE:
+            deviation = format_signed_angle(d["deviation_deg"])
+        else:
+            deviation = "not judged"
+    reasons = [r for reg in fig.part.regions if reg.verdict is not RegionVerdict.PASS for r in reg.reasons]
+    reasons = list(fig.part.reasons) + reasons
+    word, colour, _ = PART_LOOKS[fig.part.verdict]
+    return str(index + 1), fig.part.name, word, colour, region_name, deviation, reasons[0] if reasons else "—"
 
 
 def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total: int) -> None:
