@@ -181,93 +181,88 @@ def _layout_batch_stats(
         _SMALL,
     )
     for st in stats:
-        header = f"<b>{escape(st.recipe)} / {escape(st.region)}</b>"
-        if st.judged:
-            header += f" · tolerance ± {format_angle(st.tolerance)}"
-        if st.capability is not None:
-            cap = st.capability
-            header += (
-                f" · n = {cap.n} · mean deviation {format_signed_angle(cap.mean)} · within sigma "
-                f"{format_fixed(cap.sigma, 3)}° · <b>{_capability_text(st)}</b>"
-            )
-        if st.note:
-            header += f" · {escape(st.note)}"
-        layout.text(header, gap=2)
-        if st.dev_chart is None and st.coh_chart is None:
-            layout.text("No chart for this region.", gap=10)
-            continue
-        layout.block(12, lambda c, y: _chart_key(c, y), gap=2)
-        blocks = []
-        if st.dev_chart is not None:
-            ch = st.dev_chart
-            blocks += [
-                (
-                    118,
-                    "Lay deviation (°): individuals",
-                    ch.values,
-                    dict(
-                        centre=ch.center,
-                        ucl=ch.ucl,
-                        lcl=ch.lcl,
-                        flagged=ch.out_of_limits,
-                        beyond=st.beyond_tolerance,
-                        spec=(-st.tolerance, st.tolerance),
-                        unit="°",
-                        decimals=ANGLE_DECIMALS,
-                    ),
-                ),
-                (
-                    70,
-                    "Lay deviation (°): moving range",
-                    (math.nan, *ch.mr),
-                    dict(
-                        centre=ch.mr_bar,
-                        ucl=ch.mr_ucl,
-                        lcl=None,
-                        flagged=[k + 1 for k in ch.mr_out_of_limits],
-                        unit="°",
-                        decimals=ANGLE_DECIMALS,
-                        lower_zero=True,
-                    ),
-                ),
-            ]
-        if st.coh_chart is not None:
-            ch = st.coh_chart
-            # enough decimals to tell the limits apart, up to the 4 the result file keeps
-            spread = ch.ucl - ch.lcl
-            dec = 3 if spread <= 0 else int(min(4, max(3, math.ceil(-math.log10(spread)) + 1)))
-            blocks += [
-                (
-                    100,
-                    "Coherence: individuals",
-                    ch.values,
-                    dict(centre=ch.center, ucl=ch.ucl, lcl=ch.lcl, flagged=ch.out_of_limits, decimals=dec),
-                ),
-                (
-                    64,
-                    "Coherence: moving range",
-                    (math.nan, *ch.mr),
-                    dict(
-                        centre=ch.mr_bar,
-                        ucl=ch.mr_ucl,
-                        lcl=None,
-                        flagged=[k + 1 for k in ch.mr_out_of_limits],
-                        decimals=dec,
-                        lower_zero=True,
-                    ),
-                ),
-            ]
-        for h, title, values, kw in blocks:
-            layout.block(
-                h,
-                lambda c, y, h=h, title=title, values=values, kw=kw: _chart(
-                    c, _MARGIN, y, _FRAME_W, h, title, values, **kw
-                ),
-                gap=4,
-            )
-        table = _flag_table(st, parts, page_of)
-        if table is None:
-            layout.text("No part outside the control limits or beyond the tolerance.", gap=10)
-        else:
-            layout.text("<b>Parts flagged on these charts</b>", gap=2)
-            layout.flowable(table, gap=12)
+        _layout_region_stats(layout, st, parts, page_of)
+
+
+def _layout_region_stats(
+    layout: _Layout, st: _RegionStats, parts: Sequence[PartResult], page_of: Mapping[int, int]
+) -> None:
+    """One region of the statistics page: its header line, its charts, the table of parts they flag."""
+    layout.text(_region_stats_header(st), gap=2)
+    if st.dev_chart is None and st.coh_chart is None:
+        layout.text("No chart for this region.", gap=10)
+        return
+    layout.block(12, lambda c, y: _chart_key(c, y), gap=2)
+    for h, title, values, kw in _chart_blocks(st):
+        layout.block(
+            h,
+            lambda c, y, h=h, title=title, values=values, kw=kw: _chart(
+                c, _MARGIN, y, _FRAME_W, h, title, values, **kw
+            ),
+            gap=4,
+        )
+    table = _flag_table(st, parts, page_of)
+    if table is None:
+        layout.text("No part outside the control limits or beyond the tolerance.", gap=10)
+    else:
+        layout.text("<b>Parts flagged on these charts</b>", gap=2)
+        layout.flowable(table, gap=12)
+
+
+def _region_stats_header(st: _RegionStats) -> str:
+    """Recipe / region, tolerance, n, mean deviation, within sigma, Cp/Cpk and any note, as one line."""
+    header = f"<b>{escape(st.recipe)} / {escape(st.region)}</b>"
+    if st.judged:
+        header += f" · tolerance ± {format_angle(st.tolerance)}"
+    if st.capability is not None:
+        cap = st.capability
+        header += (
+            f" · n = {cap.n} · mean deviation {format_signed_angle(cap.mean)} · within sigma "
+            f"{format_fixed(cap.sigma, 3)}° · <b>{_capability_text(st)}</b>"
+        )
+    if st.note:
+        header += f" · {escape(st.note)}"
+    return header
+
+
+def _chart_blocks(st: _RegionStats) -> list[tuple[float, str, Sequence[float], dict]]:
+    """(height, title, values, chart keywords) of the region's charts: deviation X and MR, coherence X and MR."""
+    blocks = []
+    if st.dev_chart is not None:
+        ch = st.dev_chart
+        individuals = dict(
+            centre=ch.center,
+            ucl=ch.ucl,
+            lcl=ch.lcl,
+            flagged=ch.out_of_limits,
+            beyond=st.beyond_tolerance,
+            spec=(-st.tolerance, st.tolerance),
+            unit="°",
+            decimals=ANGLE_DECIMALS,
+        )
+        blocks += [
+            (118, "Lay deviation (°): individuals", ch.values, individuals),
+            _moving_range_block(70, "Lay deviation (°): moving range", ch, unit="°", decimals=ANGLE_DECIMALS),
+        ]
+    if st.coh_chart is not None:
+        ch = st.coh_chart
+        # enough decimals to tell the limits apart, up to the 4 the result file keeps
+        spread = ch.ucl - ch.lcl
+        dec = 3 if spread <= 0 else int(min(4, max(3, math.ceil(-math.log10(spread)) + 1)))
+        individuals = dict(centre=ch.center, ucl=ch.ucl, lcl=ch.lcl, flagged=ch.out_of_limits, decimals=dec)
+        blocks += [
+            (100, "Coherence: individuals", ch.values, individuals),
+            _moving_range_block(64, "Coherence: moving range", ch, decimals=dec),
+        ]
+    return blocks
+
+
+def _moving_range_block(h: float, title: str, ch: IndividualsChart, **kw) -> tuple[float, str, tuple, dict]:
+    """A moving-range chart: each range at the later of its two parts, no lower limit, the axis from 0."""
+    flagged = [k + 1 for k in ch.mr_out_of_limits]
+    return (
+        h,
+        title,
+        (math.nan, *ch.mr),
+        dict(centre=ch.mr_bar, ucl=ch.mr_ucl, lcl=None, flagged=flagged, **kw, lower_zero=True),
+    )
