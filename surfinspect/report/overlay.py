@@ -154,62 +154,96 @@ def paint_scene(p: ScenePainter, scene: OverlayScene) -> None:
     radial lay; the part frame; labels last, in order of importance (region
     verdicts, patch numbers, centre, frame axes), so nothing covers them.
     """
-    u = p.unit
-
-    def w(key: str) -> float:
-        return STYLE_UNITS[key] * u
-
-    dark, light = PALETTE["halo-dark"], PALETTE["halo-light"]
-    halo = w("halo")
     holes = [h for r in scene.regions for h in r.holes]
     if holes:
         p.darken(holes)
     for r in scene.regions:
-        if not (len(r.glyphs) or len(r.deviating_glyphs) or len(r.expected_glyphs)):
-            continue
-        regular, deviating, edge = glyph_widths(r.glyph_length_px * p.scale, r.glyph_stride, u)
-        with p.clipped_to(r):
-            if len(r.expected_glyphs):
-                tick = max(0.8 * regular, 0.5 * STYLE_UNITS["glyph"] * u)
-                p.stroke(
-                    r.expected_glyphs,
-                    False,
-                    PALETTE["expected"],
-                    tick,
-                    halo=dark,
-                    halo_width=tick + 2 * edge,
-                    butt=True,
-                )
-            p.stroke(r.glyphs, False, PALETTE["cell"], regular, halo=dark, halo_width=regular + 2 * edge, butt=True)
-            p.stroke(
-                r.deviating_glyphs,
-                False,
-                PALETTE["cell-deviating"],
-                deviating,
-                halo=dark,
-                halo_width=deviating + 2 * edge,
-                butt=True,
-            )
+        _paint_cell_glyphs(p, r)
+    _paint_outlines(p, scene)
+    head_out = max(p.min_arrow_head, _width(p, "arrow-head"))
+    _paint_lay_arrows(p, scene, head_out / p.scale)
+    centre_labels = _paint_lay_centres(p, scene, head_out)
+    f = scene.frame
+    if f is not None:
+        _paint_frame(p, f, head_out)
+    for r in scene.regions:
+        p.label(r.label, r.label_anchor, REGION_LOOKS[r.verdict].colour)
     for r in scene.regions:
         for m in r.patches:
-            p.rectangle(m.bbox_px, PALETTE["patch"], w("patch"), halo=dark, halo_width=w("patch") + 2 * halo)
+            p.label(patch_label(m.number), m.bbox_px[:2], PALETTE["patch"], above=True)
+    for text, anchor in centre_labels:
+        p.label(text, anchor, PALETTE["halo-light"])
+    if f is not None:
+        p.label("X", f.x_tip, PALETTE["halo-light"])
+        p.label("Y", f.y_tip, PALETTE["halo-light"])
+
+
+def _width(p: ScenePainter, key: str) -> float:
+    """A line width of :data:`STYLE_UNITS` in the painter's units."""
+    return STYLE_UNITS[key] * p.unit
+
+
+def _halo_width(p: ScenePainter, key: str) -> float:
+    """The width of a line's dark or light edge: the line and a halo on each side."""
+    return _width(p, key) + 2 * _width(p, "halo")
+
+
+def _paint_cell_glyphs(p: ScenePainter, r: RegionScene) -> None:
+    """The expected ticks, then the measured cell lines and the deviating ones, inside the region only."""
+    if not (len(r.glyphs) or len(r.deviating_glyphs) or len(r.expected_glyphs)):
+        return
+    u, dark = p.unit, PALETTE["halo-dark"]
+    regular, deviating, edge = glyph_widths(r.glyph_length_px * p.scale, r.glyph_stride, u)
+    with p.clipped_to(r):
+        if len(r.expected_glyphs):
+            tick = max(0.8 * regular, 0.5 * STYLE_UNITS["glyph"] * u)
+            p.stroke(
+                r.expected_glyphs, False, PALETTE["expected"], tick, halo=dark, halo_width=tick + 2 * edge, butt=True
+            )
+        p.stroke(r.glyphs, False, PALETTE["cell"], regular, halo=dark, halo_width=regular + 2 * edge, butt=True)
+        p.stroke(
+            r.deviating_glyphs,
+            False,
+            PALETTE["cell-deviating"],
+            deviating,
+            halo=dark,
+            halo_width=deviating + 2 * edge,
+            butt=True,
+        )
+
+
+def _paint_outlines(p: ScenePainter, scene: OverlayScene) -> None:
+    """Patch boxes, then the region outlines and holes over them in their verdict's colour and dash."""
+    dark = PALETTE["halo-dark"]
+    for r in scene.regions:
+        for m in r.patches:
+            p.rectangle(m.bbox_px, PALETTE["patch"], _width(p, "patch"), halo=dark, halo_width=_halo_width(p, "patch"))
     for r in scene.regions:
         look = REGION_LOOKS[r.verdict]
-        p.stroke(r.holes, True, look.colour, w("hole"), dash=look.dash, halo=dark, halo_width=w("hole") + 2 * halo)
-        p.stroke(
-            r.outlines, True, look.colour, w("outline"), dash=look.dash, halo=dark, halo_width=w("outline") + 2 * halo
-        )
-    head_out = max(p.min_arrow_head, w("arrow-head"))
-    head = head_out / p.scale
+        for lines, key in ((r.holes, "hole"), (r.outlines, "outline")):
+            width, halo_width = _width(p, key), _halo_width(p, key)
+            p.stroke(lines, True, look.colour, width, dash=look.dash, halo=dark, halo_width=halo_width)
+
+
+def _paint_lay_arrows(p: ScenePainter, scene: OverlayScene, head: float) -> None:
+    """The expected (white) and measured (blue) double arrows of each region at its centroid."""
     for r in scene.regions:
         if r.centre is None:
             continue
         for e in r.expected_screen_deg:
             arrow = arrow_polylines(r.centre, e, r.arrow_half_length, head)
-            p.stroke(arrow, False, PALETTE["expected"], w("expected"), halo=dark, halo_width=w("expected") + 2 * halo)
+            width, halo_width = _width(p, "expected"), _halo_width(p, "expected")
+            p.stroke(arrow, False, PALETTE["expected"], width, halo=PALETTE["halo-dark"], halo_width=halo_width)
         for m in r.measured_screen_deg:
             arrow = arrow_polylines(r.centre, m, 0.8 * r.arrow_half_length, head)
-            p.stroke(arrow, False, PALETTE["measured"], w("measured"), halo=light, halo_width=w("measured") + 2 * halo)
+            width, halo_width = _width(p, "measured"), _halo_width(p, "measured")
+            p.stroke(arrow, False, PALETTE["measured"], width, halo=PALETTE["halo-light"], halo_width=halo_width)
+
+
+def _paint_lay_centres(p: ScenePainter, scene: OverlayScene, head_out: float) -> list[tuple[str, tuple]]:
+    """The centre of each circular or radial lay; return its labels (regions about one centre share one)."""
+    head = head_out / p.scale
+    width, halo_width, dark = _width(p, "frame"), _halo_width(p, "frame"), PALETTE["halo-dark"]
     centre_labels = []
     for r in scene.regions:
         if r.lay_centre is None:
@@ -217,10 +251,8 @@ def paint_scene(p: ScenePainter, scene: OverlayScene) -> None:
         cx, cy = r.lay_centre
         arm = 0.9 * head
         cross = [np.array([[cx - arm, cy], [cx + arm, cy]]), np.array([[cx, cy - arm], [cx, cy + arm]])]
-        p.stroke(cross, False, PALETTE["expected"], w("frame"), halo=dark, halo_width=w("frame") + 2 * halo)
-        p.circle(
-            r.lay_centre, 0.55 * head_out, PALETTE["expected"], w("frame"), halo=dark, halo_width=w("frame") + 2 * halo
-        )
+        p.stroke(cross, False, PALETTE["expected"], width, halo=dark, halo_width=halo_width)
+        p.circle(r.lay_centre, 0.55 * head_out, PALETTE["expected"], width, halo=dark, halo_width=halo_width)
         text = f"{r.name} centre" + (" (fitted)" if r.lay_centre_fitted else "")
         same = [k for k, (_, at) in enumerate(centre_labels) if math.dist(at, r.lay_centre) < 1.0]
         if same:  # regions about one centre share one label
@@ -228,21 +260,16 @@ def paint_scene(p: ScenePainter, scene: OverlayScene) -> None:
             centre_labels[k] = (centre_labels[k][0].replace(" centre", f", {text}", 1), centre_labels[k][1])
         else:
             centre_labels.append((text, r.lay_centre))
-    f = scene.frame
-    if f is not None:
-        axes = axis_polylines(f.origin, f.x_tip, head) + axis_polylines(f.origin, f.y_tip, head)
-        p.stroke(axes, False, PALETTE["frame"], w("frame"), halo=light, halo_width=w("frame") + 2 * halo)
-        p.circle(f.origin, 0.5 * head_out, PALETTE["frame"], w("frame"), halo=light, halo_width=w("frame") + 2 * halo)
-    for r in scene.regions:
-        p.label(r.label, r.label_anchor, REGION_LOOKS[r.verdict].colour)
-    for r in scene.regions:
-        for m in r.patches:
-            p.label(patch_label(m.number), m.bbox_px[:2], PALETTE["patch"], above=True)
-    for text, anchor in centre_labels:
-        p.label(text, anchor, light)
-    if f is not None:
-        p.label("X", f.x_tip, light)
-        p.label("Y", f.y_tip, light)
+    return centre_labels
+
+
+def _paint_frame(p: ScenePainter, f: FrameScene, head_out: float) -> None:
+    """The part frame: origin and the X and Y axes with arrow heads."""
+    head = head_out / p.scale
+    axes = axis_polylines(f.origin, f.x_tip, head) + axis_polylines(f.origin, f.y_tip, head)
+    width, halo_width, light = _width(p, "frame"), _halo_width(p, "frame"), PALETTE["halo-light"]
+    p.stroke(axes, False, PALETTE["frame"], width, halo=light, halo_width=halo_width)
+    p.circle(f.origin, 0.5 * head_out, PALETTE["frame"], width, halo=light, halo_width=halo_width)
 
 
 _SHIFT = 4  # OpenCV sub-pixel bits for drawing at fractional coordinates
