@@ -222,81 +222,14 @@ def write_gauge_pdf(study: GaugeStudy, path: str | Path, *, title: str = "Gauge 
         c = canvas.Canvas(str(tmp), pagesize=A4, pageCompression=1)
         c.setTitle(title)
         c.setAuthor(f"surfinspect {__version__}")
-        c.setFillColorRGB(*_INK)
-        y = page_h - 18 * mm
-        c.setFont("Helvetica-Bold", 14)
-        c.drawString(left, y, title)
-        y -= 14
-        c.setFont("Helvetica", 8.5)
-        c.drawString(
-            left,
-            y,
-            f"{study.source or 'study'}  |  {len(study.parts)} parts x {len(study.appraisers)} appraisers x "
-            f"{study.n_trials} trials  |  tolerance width {study.tolerance:g}  |  "
-            f"{datetime.now(timezone.utc).strftime('%Y-%m-%d %H:%M UTC')}",
-        )
-        # verdict
-        y -= 26
-        tint = _VERDICT_TINT[study.verdict]
-        c.setStrokeColorRGB(*tint)
-        c.setLineWidth(1.4)
-        c.rect(left, y - 4, page_w - 2 * left, 22, stroke=1, fill=0)
-        c.setFillColorRGB(*tint)
-        c.setFont("Helvetica-Bold", 11)
-        c.drawString(left + 6, y + 3, f"Gauge {study.verdict.value.replace('-', ' ')}")
-        c.setFillColorRGB(*_INK)
-        c.setFont("Helvetica", 8.5)
-        ndc = "undefined" if study.ndc is None else str(study.ndc)
-        c.drawString(
-            left + 150,
-            y + 3,
-            f"%GRR of total variation {study.grr_percent_of_total_variation:.2f}%   "
-            f"%GRR of tolerance {study.grr_percent_of_tolerance:.2f}%   ndc {ndc}",
-        )
-        y -= 16
-        c.setFont("Helvetica", 7.5)
-        for reason in study.reasons:
-            c.drawString(left + 6, y, "- " + reason)
-            y -= 9.5
-        c.drawString(left + 6, y, "- model: " + study.model_reason)
-        y -= 16
-
-        widths = (110, 35, 75, 75, 65, 65)
-        header = [h.capitalize() if h == "source" else h for h in ANOVA_HEADER]
-
-        tables = [study.anova_interaction] + ([study.anova_pooled] if study.model == "pooled" else [])
-        for table in tables:
-            used = " (used)" if table is study.anova else ""
-            name = "with interaction" if table.model == "interaction" else "interaction pooled into repeatability"
-            c.setFont("Helvetica-Bold", 9)
-            c.drawString(left, y, f"ANOVA, {name}{used}")
-            y = _draw_table(c, left, y - 4, header, anova_text_rows(table), widths) - 14
-
-        c.setFont("Helvetica-Bold", 9)
-        c.drawString(left, y, "Variance components")
-        y = _draw_table(
-            c,
-            left,
-            y - 4,
-            ("Source", *COMPONENT_HEADER[1:4], "% total var.", "% tolerance"),
-            component_text_rows(study),
-            (110, 70, 65, 70, 65, 65),
-        )
-        c.setFont("Helvetica", 7)
-        c.drawString(
-            left,
-            y - 9,
-            "% total variation = sigma / sigma(TV); % tolerance = 6 sigma / tolerance width; "
-            "ndc = floor(1.41 PV / GRR).",
-        )
-        y -= 24
-
+        y = _study_head(c, study, title, left, page_h - 18 * mm)
+        y = _verdict_box(c, study, left, y - 26, page_w - 2 * left)
+        y = _study_tables(c, study, left, y)
         chart_h = min(120.0, (y - 34 * mm) / 2 - 30)
         chart_w = page_w - 2 * left - 95
         _draw_range_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
         y -= chart_h + 40
         _draw_means_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
-
         c.setFont("Helvetica-Oblique", 7.5)
         c.setFillColorRGB(*_INK)
         c.drawString(left, 14 * mm, CAUTION)
@@ -304,3 +237,77 @@ def write_gauge_pdf(study: GaugeStudy, path: str | Path, *, title: str = "Gauge 
         c.drawRightString(page_w - left, 10 * mm, f"surfinspect {__version__}")
         c.showPage()
         c.save()
+
+
+def _study_head(c, study: GaugeStudy, title: str, left: float, y: float) -> float:
+    """Title, and the study's source, size, tolerance and time; return the y of the last line."""
+    c.setFillColorRGB(*_INK)
+    c.setFont("Helvetica-Bold", 14)
+    c.drawString(left, y, title)
+    y -= 14
+    c.setFont("Helvetica", 8.5)
+    c.drawString(
+        left,
+        y,
+        f"{study.source or 'study'}  |  {len(study.parts)} parts x {len(study.appraisers)} appraisers x "
+        f"{study.n_trials} trials  |  tolerance width {study.tolerance:g}  |  "
+        f"{datetime.now(timezone.utc).strftime('%Y-%m-%d %H:%M UTC')}",
+    )
+    return y
+
+
+def _verdict_box(c, study: GaugeStudy, left: float, y: float, width: float) -> float:
+    """The verdict in its colour with %GRR and ndc, then its reasons and the model's; return the y below."""
+    tint = _VERDICT_TINT[study.verdict]
+    c.setStrokeColorRGB(*tint)
+    c.setLineWidth(1.4)
+    c.rect(left, y - 4, width, 22, stroke=1, fill=0)
+    c.setFillColorRGB(*tint)
+    c.setFont("Helvetica-Bold", 11)
+    c.drawString(left + 6, y + 3, f"Gauge {study.verdict.value.replace('-', ' ')}")
+    c.setFillColorRGB(*_INK)
+    c.setFont("Helvetica", 8.5)
+    ndc = "undefined" if study.ndc is None else str(study.ndc)
+    c.drawString(
+        left + 150,
+        y + 3,
+        f"%GRR of total variation {study.grr_percent_of_total_variation:.2f}%   "
+        f"%GRR of tolerance {study.grr_percent_of_tolerance:.2f}%   ndc {ndc}",
+    )
+    y -= 16
+    c.setFont("Helvetica", 7.5)
+    for reason in study.reasons:
+        c.drawString(left + 6, y, "- " + reason)
+        y -= 9.5
+    c.drawString(left + 6, y, "- model: " + study.model_reason)
+    return y - 16
+
+
+def _study_tables(c, study: GaugeStudy, left: float, y: float) -> float:
+    """The ANOVA table(s) and the variance components with their note; return the y below."""
+    widths = (110, 35, 75, 75, 65, 65)
+    header = [h.capitalize() if h == "source" else h for h in ANOVA_HEADER]
+    tables = [study.anova_interaction] + ([study.anova_pooled] if study.model == "pooled" else [])
+    for table in tables:
+        used = " (used)" if table is study.anova else ""
+        name = "with interaction" if table.model == "interaction" else "interaction pooled into repeatability"
+        c.setFont("Helvetica-Bold", 9)
+        c.drawString(left, y, f"ANOVA, {name}{used}")
+        y = _draw_table(c, left, y - 4, header, anova_text_rows(table), widths) - 14
+    c.setFont("Helvetica-Bold", 9)
+    c.drawString(left, y, "Variance components")
+    y = _draw_table(
+        c,
+        left,
+        y - 4,
+        ("Source", *COMPONENT_HEADER[1:4], "% total var.", "% tolerance"),
+        component_text_rows(study),
+        (110, 70, 65, 70, 65, 65),
+    )
+    c.setFont("Helvetica", 7)
+    c.drawString(
+        left,
+        y - 9,
+        "% total variation = sigma / sigma(TV); % tolerance = 6 sigma / tolerance width; ndc = floor(1.41 PV / GRR).",
+    )
+    return y - 24
