@@ -318,85 +318,16 @@ def gauge_rr(
     .. [3] D. C. Montgomery and G. C. Runger, *Quality Engineering* 6(2),
        289-305, 1993. doi:10.1080/08982119308919024 (DOI from memory).
     """
-    # Settings are checked first and are not about the table, so their messages do not name it.
-    if not (math.isfinite(tolerance) and tolerance > 0):
-        raise InputError(f"tolerance: must be a width > 0 (got {tolerance:g})")
-    if basis not in ("both", "tolerance", "total-variation"):
-        raise InputError(f"basis: unknown (got {basis!r}, allowed both, tolerance, total-variation)")
-    if not 0 < interaction_alpha < 1:
-        raise InputError(f"interaction_alpha: must be in (0, 1) (got {interaction_alpha:g})")
-    if resolution is not None and not (math.isfinite(resolution) and resolution >= 0):
-        raise InputError(f"resolution: must be a number >= 0 (got {resolution:g})")
-    y = np.asarray(values, dtype=float)
-    where = f"{source}: " if source else "gauge study: "
-    if y.ndim != 3 or min(y.shape) < 2:
-        raise InputError(f"{where}values must have shape (parts, appraisers, trials), each at least 2 (got {y.shape})")
-    if not np.isfinite(y).all():
-        raise InputError(f"{where}values must all be finite numbers")
-    p, o, r = y.shape
-    part_labels = tuple(parts) if parts is not None else tuple(str(i + 1) for i in range(p))
-    appraiser_labels = tuple(appraisers) if appraisers is not None else tuple(chr(ord("A") + j) for j in range(o))
-    if len(part_labels) != p or len(appraiser_labels) != o:
-        raise InputError(
-            f"{where}labels: {len(part_labels)} parts and {len(appraiser_labels)} appraisers for values of shape {y.shape}"
-        )
-
+    _check_settings(tolerance, basis, interaction_alpha, resolution)
+    y, part_labels, appraiser_labels, where = _checked_values(values, parts, appraisers, source)
     full, pooled = _anova_tables(y)
     if full.row("total").ss <= 0:
         raise InputError(f"{where}all study values are equal: there is no variation to analyse")
-    interaction_p = full.row("part x appraiser").p
-    if interaction_p is None or interaction_p >= interaction_alpha:
-        model = "pooled"
-        shown = "undefined (no variation within or between cells)" if interaction_p is None else f"{interaction_p:.3g}"
-        model_reason = (
-            f"part x appraiser interaction not significant (p = {shown} >= alpha = {interaction_alpha:g}): "
-            "pooled into repeatability"
-        )
-    else:
-        model = "interaction"
-        model_reason = (
-            f"part x appraiser interaction significant (p = {interaction_p:.3g} < alpha = {interaction_alpha:g}): "
-            "kept in the model"
-        )
-
-    ms_part, ms_appraiser = full.row("part").ms, full.row("appraiser").ms
-    if model == "interaction":
-        ms_error = full.row("repeatability").ms
-        ms_interaction = full.row("part x appraiser").ms
-        var_interaction = max(0.0, (ms_interaction - ms_error) / r)
-        reference = ms_interaction  # parts and appraisers are measured against the interaction
-    else:
-        ms_error = pooled.row("repeatability").ms
-        var_interaction = 0.0
-        reference = ms_error
-    var_repeat = ms_error
-    var_appraiser = max(0.0, (ms_appraiser - reference) / (p * r))
-    var_part = max(0.0, (ms_part - reference) / (o * r))
-    var_reproduce = var_appraiser + var_interaction
-    var_grr = var_repeat + var_reproduce
-    var_total = var_grr + var_part
-    variances = {
-        "repeatability": var_repeat,
-        "reproducibility": var_reproduce,
-        "appraiser": var_appraiser,
-        "part x appraiser": var_interaction,
-        "grr": var_grr,
-        "part": var_part,
-        "total": var_total,
-    }
-    sigma_total = math.sqrt(var_total)
-    components = tuple(
-        VarianceComponent(
-            name=name,
-            variance=variances[name],
-            sigma=math.sqrt(variances[name]),
-            percent_contribution=100.0 * variances[name] / var_total if var_total > 0 else 0.0,
-            percent_total_variation=100.0 * math.sqrt(variances[name]) / sigma_total if sigma_total > 0 else 0.0,
-            percent_tolerance=100.0 * SPREAD_SIGMAS * math.sqrt(variances[name]) / tolerance,
-        )
-        for name in COMPONENTS
-    )
-    grr, pv = math.sqrt(var_grr), math.sqrt(var_part)
+    model, model_reason = _choose_model(full, interaction_alpha)
+    variances = _variances(full, pooled, model, y.shape)
+    components = _components(variances, tolerance)
+    sigma_total = math.sqrt(variances["total"])
+    grr, pv = math.sqrt(variances["grr"]), math.sqrt(variances["part"])
     pct_tv = 100.0 * grr / sigma_total if sigma_total > 0 else 0.0
     pct_tol = 100.0 * SPREAD_SIGMAS * grr / tolerance
     ndc = math.floor(NDC_FACTOR * pv / grr) if grr > 0 else None
@@ -410,7 +341,7 @@ def gauge_rr(
     return GaugeStudy(
         parts=part_labels,
         appraisers=appraiser_labels,
-        n_trials=r,
+        n_trials=y.shape[2],
         tolerance=float(tolerance),
         values=y.copy(),
         anova_interaction=full,
@@ -427,6 +358,99 @@ def gauge_rr(
         verdict=verdict,
         reasons=tuple(reasons),
         source=source,
+    )
+
+
+def _check_settings(tolerance: float, basis: str, interaction_alpha: float, resolution: float | None) -> None:
+    """The study's settings; they are checked first and are not about the table, so the messages do not name it."""
+    if not (math.isfinite(tolerance) and tolerance > 0):
+        raise InputError(f"tolerance: must be a width > 0 (got {tolerance:g})")
+    if basis not in ("both", "tolerance", "total-variation"):
+        raise InputError(f"basis: unknown (got {basis!r}, allowed both, tolerance, total-variation)")
+    if not 0 < interaction_alpha < 1:
+        raise InputError(f"interaction_alpha: must be in (0, 1) (got {interaction_alpha:g})")
+    if resolution is not None and not (math.isfinite(resolution) and resolution >= 0):
+        raise InputError(f"resolution: must be a number >= 0 (got {resolution:g})")
+
+
+def _checked_values(
+    values: np.ndarray, parts: Sequence[str] | None, appraisers: Sequence[str] | None, source: str
+) -> tuple[np.ndarray, tuple[str, ...], tuple[str, ...], str]:
+    """The (P, A, R) values as floats, the part and appraiser labels, and the prefix of messages about them."""
+    y = np.asarray(values, dtype=float)
+    where = f"{source}: " if source else "gauge study: "
+    if y.ndim != 3 or min(y.shape) < 2:
+        raise InputError(f"{where}values must have shape (parts, appraisers, trials), each at least 2 (got {y.shape})")
+    if not np.isfinite(y).all():
+        raise InputError(f"{where}values must all be finite numbers")
+    p, o, _ = y.shape
+    part_labels = tuple(parts) if parts is not None else tuple(str(i + 1) for i in range(p))
+    appraiser_labels = tuple(appraisers) if appraisers is not None else tuple(chr(ord("A") + j) for j in range(o))
+    if len(part_labels) != p or len(appraiser_labels) != o:
+        raise InputError(
+            f"{where}labels: {len(part_labels)} parts and {len(appraiser_labels)} appraisers for values of shape {y.shape}"
+        )
+    return y, part_labels, appraiser_labels, where
+
+
+def _choose_model(full: AnovaTable, interaction_alpha: float) -> tuple[str, str]:
+    """Keep the part x appraiser interaction when significant, else pool it; say which and why."""
+    interaction_p = full.row("part x appraiser").p
+    if interaction_p is None or interaction_p >= interaction_alpha:
+        shown = "undefined (no variation within or between cells)" if interaction_p is None else f"{interaction_p:.3g}"
+        return "pooled", (
+            f"part x appraiser interaction not significant (p = {shown} >= alpha = {interaction_alpha:g}): "
+            "pooled into repeatability"
+        )
+    return "interaction", (
+        f"part x appraiser interaction significant (p = {interaction_p:.3g} < alpha = {interaction_alpha:g}): "
+        "kept in the model"
+    )
+
+
+def _variances(full: AnovaTable, pooled: AnovaTable, model: str, shape: tuple[int, int, int]) -> dict[str, float]:
+    """Variance components from the expected mean squares of the model used, negatives set to 0."""
+    p, o, r = shape
+    ms_part, ms_appraiser = full.row("part").ms, full.row("appraiser").ms
+    if model == "interaction":
+        ms_error = full.row("repeatability").ms
+        ms_interaction = full.row("part x appraiser").ms
+        var_interaction = max(0.0, (ms_interaction - ms_error) / r)
+        reference = ms_interaction  # parts and appraisers are measured against the interaction
+    else:
+        ms_error = pooled.row("repeatability").ms
+        var_interaction = 0.0
+        reference = ms_error
+    var_repeat = ms_error
+    var_appraiser = max(0.0, (ms_appraiser - reference) / (p * r))
+    var_part = max(0.0, (ms_part - reference) / (o * r))
+    var_reproduce = var_appraiser + var_interaction
+    var_grr = var_repeat + var_reproduce
+    return {
+        "repeatability": var_repeat,
+        "reproducibility": var_reproduce,
+        "appraiser": var_appraiser,
+        "part x appraiser": var_interaction,
+        "grr": var_grr,
+        "part": var_part,
+        "total": var_grr + var_part,
+    }
+
+
+def _components(variances: dict[str, float], tolerance: float) -> tuple[VarianceComponent, ...]:
+    """Each component's sigma and its shares of the total variance, total variation and tolerance."""
+    var_total = variances["total"]
+    sigma_total = math.sqrt(var_total)
+    return tuple(
+        VarianceComponent(
+            name=name,
+            variance=variances[name],
+            sigma=math.sqrt(variances[name]),
+            percent_contribution=100.0 * variances[name] / var_total if var_total > 0 else 0.0,
+            percent_total_variation=100.0 * math.sqrt(variances[name]) / sigma_total if sigma_total > 0 else 0.0,
+            percent_tolerance=100.0 * SPREAD_SIGMAS * math.sqrt(variances[name]) / tolerance,
+        )
+        for name in COMPONENTS
     )
 
 
