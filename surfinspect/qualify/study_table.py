@@ -101,61 +101,82 @@ def read_study_csv(path: str | Path, *, measure: Measure | None = None) -> Study
         if not any(cell.strip() for cell in record):
             continue
         if header is None:
-            header = [cell.strip().lower() for cell in record]
-            missing = [c for c in LABEL_COLUMNS if c not in header]
-            unknown = [c for c in header if c not in LABEL_COLUMNS + VALUE_COLUMNS]
-            values_given = [c for c in VALUE_COLUMNS if c in header]
-            if not values_given:
-                missing.append(" or ".join(VALUE_COLUMNS))
-            if missing or unknown or len(set(header)) != len(header) or len(values_given) != 1:
-                found = [f"missing {', '.join(missing)}"] if missing else []
-                found += [f"unknown {', '.join(unknown)}"] if unknown else []
-                found += ["both value and image"] if len(values_given) > 1 else []
-                found += ["a column repeated"] if len(set(header)) != len(header) else []
-                raise InputError(
-                    f"{name}:{line}: header: columns must be {allowed} (got {', '.join(header)}; {'; '.join(found)})"
-                )
-            value_column = values_given[0]
-            if value_column == "image" and measure is None:
-                raise InputError(
-                    f"{name}:{line}: header: the table lists images; give a recipe and region to measure them"
-                )
-            if value_column == "value" and measure is not None:
-                # a recipe given for a table of values would be ignored without a word
-                raise InputError(
-                    f"{name}:{line}: header: the table holds measured values, so a recipe has nothing to measure "
-                    "(allowed: a recipe with an image column, or a value column without a recipe)"
-                )
+            header, value_column = _read_header(record, f"{name}:{line}", allowed, measure)
             continue
-        if len(record) != len(header):
-            problems.append(f"{name}:{line}: row has {len(record)} fields (allowed {len(header)}: {', '.join(header)})")
-            continue
-        cells = {key: cell.strip() for key, cell in zip(header, record)}
-        empty = [key for key in LABEL_COLUMNS + (value_column,) if not cells[key]]
-        for key in empty:
-            problems.append(f"{name}:{line}: {key}: empty (a {'value' if key == 'value' else 'label'} is required)")
-        if value_column == "value" and cells["value"]:
-            number = cells["value"].replace(",", ".") if delimiter == ";" else cells["value"]
-            try:
-                value = float(number)
-            except ValueError:
-                problems.append(f"{name}:{line}: value: not a number (got {cells['value']!r})")
-                continue
-            if not math.isfinite(value):
-                problems.append(f"{name}:{line}: value: not a finite number (got {cells['value']!r})")
-                continue
-        if not empty:
-            rows.append((line, cells["part"], cells["appraiser"], cells["trial"], cells[value_column]))
+        row = _read_row(record, header, value_column, delimiter, f"{name}:{line}", problems)
+        if row is not None:
+            rows.append((line, *row))
     if header is None:  # pragma: no cover - a non-blank first line is a header
         raise InputError(f"{name}: no header row")
     _raise_all(problems)
     layout = _balanced_layout(name, rows)
+    values = _study_values(name, path.parent, rows, layout, value_column, delimiter, measure)
+    return StudyTable(name, layout.parts, layout.appraisers, layout.trials, values)
+
+
+def _read_header(record: list[str], at: str, allowed: str, measure: Measure | None) -> tuple[list[str], str]:
+    """The header's column names and its value column (``value`` or ``image``), checked against ``measure``."""
+    header = [cell.strip().lower() for cell in record]
+    missing = [c for c in LABEL_COLUMNS if c not in header]
+    unknown = [c for c in header if c not in LABEL_COLUMNS + VALUE_COLUMNS]
+    values_given = [c for c in VALUE_COLUMNS if c in header]
+    if not values_given:
+        missing.append(" or ".join(VALUE_COLUMNS))
+    if missing or unknown or len(set(header)) != len(header) or len(values_given) != 1:
+        found = [f"missing {', '.join(missing)}"] if missing else []
+        found += [f"unknown {', '.join(unknown)}"] if unknown else []
+        found += ["both value and image"] if len(values_given) > 1 else []
+        found += ["a column repeated"] if len(set(header)) != len(header) else []
+        raise InputError(f"{at}: header: columns must be {allowed} (got {', '.join(header)}; {'; '.join(found)})")
+    value_column = values_given[0]
+    if value_column == "image" and measure is None:
+        raise InputError(f"{at}: header: the table lists images; give a recipe and region to measure them")
+    if value_column == "value" and measure is not None:
+        # a recipe given for a table of values would be ignored without a word
+        raise InputError(
+            f"{at}: header: the table holds measured values, so a recipe has nothing to measure "
+            "(allowed: a recipe with an image column, or a value column without a recipe)"
+        )
+    return header, value_column
+
+
+def _read_row(
+    record: list[str], header: list[str], value_column: str, delimiter: str, at: str, problems: list[str]
+) -> tuple[str, str, str, str] | None:
+    """(part, appraiser, trial, raw value or image) of one row, or None with its problems added."""
+    if len(record) != len(header):
+        problems.append(f"{at}: row has {len(record)} fields (allowed {len(header)}: {', '.join(header)})")
+        return None
+    cells = {key: cell.strip() for key, cell in zip(header, record)}
+    empty = [key for key in LABEL_COLUMNS + (value_column,) if not cells[key]]
+    for key in empty:
+        problems.append(f"{at}: {key}: empty (a {'value' if key == 'value' else 'label'} is required)")
+    if value_column == "value" and cells["value"]:
+        number = cells["value"].replace(",", ".") if delimiter == ";" else cells["value"]
+        try:
+            value = float(number)
+        except ValueError:
+            problems.append(f"{at}: value: not a number (got {cells['value']!r})")
+            return None
+        if not math.isfinite(value):
+            problems.append(f"{at}: value: not a finite number (got {cells['value']!r})")
+            return None
+    if empty:
+        return None
+    return cells["part"], cells["appraiser"], cells["trial"], cells[value_column]
+
+
+def _study_values(
+    name: str, folder: Path, rows, layout: _Layout, value_column: str, delimiter: str, measure: Measure | None
+) -> np.ndarray:
+    """The (P, A, R) values: read from the table, or measured from its images once its structure is checked."""
+    problems: list[str] = []
     values = np.empty(layout.shape)
     for (line, part, appraiser, trial, raw), index in zip(rows, layout.indices):
         if value_column == "value":
             values[index] = float(raw.replace(",", ".") if delimiter == ";" else raw)
             continue
-        image = Path(raw) if Path(raw).is_absolute() else path.parent / raw
+        image = Path(raw) if Path(raw).is_absolute() else folder / raw
         try:
             measured = float(measure(image))
         except InputError as exc:
@@ -166,7 +187,7 @@ def read_study_csv(path: str | Path, *, measure: Measure | None = None) -> Study
             continue
         values[index] = measured
     _raise_all(problems)
-    return StudyTable(name, layout.parts, layout.appraisers, layout.trials, values)
+    return values
 
 
 @dataclass(frozen=True)
@@ -216,56 +237,101 @@ def _balanced_layout(name: str, rows: list[tuple[int, str, str, str, str]]) -> _
     """
     if not rows:
         raise InputError(f"{name}: the study table has a header but no measurements")
-    parts: dict[str, int] = {}
-    appraisers: dict[str, int] = {}
-    trials: dict[str, int] = {}
-    seen: dict[tuple[str, str, str], int] = {}
-    repeated: list[tuple[int, str]] = []
-    first_line_of_part: dict[str, int] = {}
-    lines_of_cell: dict[tuple[str, str], list[tuple[int, str]]] = {}
-    for line, part, appraiser, trial, _ in rows:
-        parts.setdefault(part, len(parts))
-        appraisers.setdefault(appraiser, len(appraisers))
-        trials.setdefault(trial, len(trials))
-        first_line_of_part.setdefault(part, line)
-        key = (part, appraiser, trial)
-        if key in seen:
-            repeated.append(
-                (
-                    line,
-                    f"part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
-                    "(allowed: one value per part, appraiser and trial)",
+    t = _Tally.of(rows)
+    appraisers_of_part = {part: frozenset(a for p, a in t.lines_of_cell if p == part) for part in t.parts}
+    study_appraisers = _intended_set(list(appraisers_of_part.values()), list(t.appraisers))
+    cells = [cell for cell in t.lines_of_cell if cell[1] in study_appraisers]
+    study_trials = _intended_set([frozenset(tr for _, tr in t.lines_of_cell[c]) for c in cells], list(t.trials))
+    extra_appraisers, extra_trials, missing_trials, extra_rows, missing_cell_values = _cell_problems(
+        t, study_appraisers, study_trials
+    )
+    missing_appraisers, missing_part_values = _part_problems(t, appraisers_of_part, study_appraisers, study_trials)
+    extra_rows += len(t.repeated)
+    missing_values = missing_cell_values + missing_part_values
+    # Categories in this order, each by line: what is wrong with a part before what is wrong with a cell.
+    balance = [
+        f"{name}:{line}: {text}"
+        for group in (t.repeated, extra_appraisers, missing_appraisers, extra_trials, missing_trials)
+        for line, text in sorted(group, key=lambda item: item[0])
+    ]
+    problems = balance[:MAX_BALANCE_LINES]
+    if len(t.parts) < 2:
+        problems.append(f"{name}: the study needs at least 2 parts (got {len(t.parts)})")
+    if len(study_appraisers) < 2:
+        problems.append(f"{name}: the study needs at least 2 appraisers or setups (got {len(study_appraisers)})")
+    if len(study_trials) < 2:
+        problems.append(f"{name}: the study needs at least 2 trials per part and appraiser (got {len(study_trials)})")
+    if balance:
+        counted = [_plural(extra_rows, "extra row")] if extra_rows else []
+        counted += [_plural(missing_values, "missing value")] if missing_values else []
+        listed = f"; {len(balance) - MAX_BALANCE_LINES} more not listed" if len(balance) > MAX_BALANCE_LINES else ""
+        shape = (len(t.parts), len(study_appraisers), len(study_trials))
+        problems.append(
+            f"{name}: the study is not balanced ({', '.join(counted)}{listed}): a crossed study has one value "
+            f"per part, appraiser and trial, {shape[0]} x {shape[1]} x {shape[2]} = {math.prod(shape)} rows "
+            f"(got {len(rows)})"
+        )
+    _raise_all(problems)
+    indices = tuple((t.parts[p], t.appraisers[a], t.trials[tr]) for _, p, a, tr, _ in rows)
+    return _Layout(tuple(t.parts), tuple(t.appraisers), tuple(t.trials), indices)
+
+
+@dataclass
+class _Tally:
+    """The labels of a study table in order of first appearance, its repeated rows and its cells' rows."""
+
+    parts: dict[str, int]
+    appraisers: dict[str, int]
+    trials: dict[str, int]
+    repeated: list[tuple[int, str]]
+    first_line_of_part: dict[str, int]
+    lines_of_cell: dict[tuple[str, str], list[tuple[int, str]]]  # (part, appraiser): [(line, trial)]
+
+    @classmethod
+    def of(cls, rows: list[tuple[int, str, str, str, str]]) -> _Tally:
+        t = cls({}, {}, {}, [], {}, {})
+        seen: dict[tuple[str, str, str], int] = {}
+        for line, part, appraiser, trial, _ in rows:
+            t.parts.setdefault(part, len(t.parts))
+            t.appraisers.setdefault(appraiser, len(t.appraisers))
+            t.trials.setdefault(trial, len(t.trials))
+            t.first_line_of_part.setdefault(part, line)
+            key = (part, appraiser, trial)
+            if key in seen:
+                t.repeated.append(
+                    (
+                        line,
+                        f"part {part!r}, appraiser {appraiser!r}, trial {trial!r} repeats line {seen[key]} "
+                        "(allowed: one value per part, appraiser and trial)",
+                    )
                 )
-            )
-            continue
-        seen[key] = line
-        lines_of_cell.setdefault((part, appraiser), []).append((line, trial))
+                continue
+            seen[key] = line
+            t.lines_of_cell.setdefault((part, appraiser), []).append((line, trial))
+        return t
 
-    appraisers_of_part = {part: frozenset(a for p, a in lines_of_cell if p == part) for part in parts}
-    study_appraisers = _intended_set(list(appraisers_of_part.values()), list(appraisers))
-    shown_appraisers = ", ".join(a for a in appraisers if a in study_appraisers)
-    cells = [cell for cell in lines_of_cell if cell[1] in study_appraisers]
-    study_trials = _intended_set([frozenset(t for _, t in lines_of_cell[c]) for c in cells], list(trials))
-    shown_trials = ", ".join(t for t in trials if t in study_trials)
 
+def _cell_problems(t: _Tally, study_appraisers: frozenset[str], study_trials: frozenset[str]):
+    """Per cell: rows of an appraiser or a trial the study does not have, and missing trials.
+
+    Returns the three lists of (line, text), the number of extra rows and the number of missing values.
+    """
+    shown_appraisers = ", ".join(a for a in t.appraisers if a in study_appraisers)
+    shown_trials = ", ".join(tr for tr in t.trials if tr in study_trials)
     extra_appraisers: list[tuple[int, str]] = []
-    missing_appraisers: list[tuple[int, str]] = []
     extra_trials: list[tuple[int, str]] = []
     missing_trials: list[tuple[int, str]] = []
-    extra_rows = len(repeated)
-    missing_values = 0
-    for (part, appraiser), cell_rows in lines_of_cell.items():
+    extra_rows = missing_values = 0
+    for (part, appraiser), cell_rows in t.lines_of_cell.items():
         if appraiser not in study_appraisers:
             extra_rows += len(cell_rows)
             where = ", ".join(str(line) for line, _ in cell_rows)
             extra_appraisers.append(
                 (
                     cell_rows[0][0],
-                    (
-                        f"part {part!r}, appraiser {appraiser!r}: an appraiser the other parts do not have "
-                        f"({_plural(len(cell_rows), 'row')}: {'line' if len(cell_rows) == 1 else 'lines'} {where}; "
-                        f"the study's appraisers: {shown_appraisers})"
-                    ),
+                    f"part {part!r}, appraiser {appraiser!r}: an appraiser the other parts do not have "
+                    f"({_plural(len(cell_rows), 'row')}: {'line' if len(cell_rows) == 1 else 'lines'} {where}; "
+                    f"the study's appraisers: {shown_appraisers})",
                 )
             )
             continue
@@ -275,63 +341,43 @@ def _balanced_layout(name: str, rows: list[tuple[int, str, str, str, str]]) -> _
                 extra_trials.append(
                     (
                         line,
-                        (
-                            f"part {part!r}, appraiser {appraiser!r}, trial {trial!r}: a trial the other cells do not have "
-                            f"(the study's trials: {shown_trials})"
-                        ),
+                        f"part {part!r}, appraiser {appraiser!r}, trial {trial!r}: a trial the other cells do not have "
+                        f"(the study's trials: {shown_trials})",
                     )
                 )
-        absent = [t for t in trials if t in study_trials and t not in {tr for _, tr in cell_rows}]
+        absent = [tr for tr in t.trials if tr in study_trials and tr not in {x for _, x in cell_rows}]
         if absent:
             missing_values += len(absent)
             missing_trials.append(
                 (
                     cell_rows[0][0],
-                    (
-                        f"part {part!r}, appraiser {appraiser!r} has no trial {', '.join(absent)} "
-                        f"(trials in the study: {shown_trials})"
-                    ),
+                    f"part {part!r}, appraiser {appraiser!r} has no trial {', '.join(absent)} "
+                    f"(trials in the study: {shown_trials})",
                 )
             )
-    for part, line in first_line_of_part.items():
-        absent = [a for a in appraisers if a in study_appraisers and a not in appraisers_of_part[part]]
+    return extra_appraisers, extra_trials, missing_trials, extra_rows, missing_values
+
+
+def _part_problems(
+    t: _Tally,
+    appraisers_of_part: dict[str, frozenset[str]],
+    study_appraisers: frozenset[str],
+    study_trials: frozenset[str],
+) -> tuple[list[tuple[int, str]], int]:
+    """Parts not measured by every appraiser of the study, at each part's first line; and the values missing."""
+    missing_appraisers: list[tuple[int, str]] = []
+    missing_values = 0
+    for part, line in t.first_line_of_part.items():
+        absent = [a for a in t.appraisers if a in study_appraisers and a not in appraisers_of_part[part]]
         if absent:
             missing_values += len(absent) * len(study_trials)
-            present = [a for a in appraisers if a in study_appraisers and a in appraisers_of_part[part]]
+            present = [a for a in t.appraisers if a in study_appraisers and a in appraisers_of_part[part]]
             by = f"by appraiser(s) {', '.join(present)} only" if present else "by none of the study's appraisers"
             missing_appraisers.append(
                 (
                     line,
-                    (
-                        f"part {part!r} is measured {by}; missing {', '.join(absent)} "
-                        "(a crossed study needs every part measured by every appraiser)"
-                    ),
+                    f"part {part!r} is measured {by}; missing {', '.join(absent)} "
+                    "(a crossed study needs every part measured by every appraiser)",
                 )
             )
-
-    # Categories in this order, each by line: what is wrong with a part before what is wrong with a cell.
-    balance = [
-        f"{name}:{line}: {text}"
-        for group in (repeated, extra_appraisers, missing_appraisers, extra_trials, missing_trials)
-        for line, text in sorted(group, key=lambda item: item[0])
-    ]
-    problems = balance[:MAX_BALANCE_LINES]
-    if len(parts) < 2:
-        problems.append(f"{name}: the study needs at least 2 parts (got {len(parts)})")
-    if len(study_appraisers) < 2:
-        problems.append(f"{name}: the study needs at least 2 appraisers or setups (got {len(study_appraisers)})")
-    if len(study_trials) < 2:
-        problems.append(f"{name}: the study needs at least 2 trials per part and appraiser (got {len(study_trials)})")
-    if balance:
-        counted = [_plural(extra_rows, "extra row")] if extra_rows else []
-        counted += [_plural(missing_values, "missing value")] if missing_values else []
-        listed = f"; {len(balance) - MAX_BALANCE_LINES} more not listed" if len(balance) > MAX_BALANCE_LINES else ""
-        shape = (len(parts), len(study_appraisers), len(study_trials))
-        problems.append(
-            f"{name}: the study is not balanced ({', '.join(counted)}{listed}): a crossed study has one value "
-            f"per part, appraiser and trial, {shape[0]} x {shape[1]} x {shape[2]} = {math.prod(shape)} rows "
-            f"(got {len(rows)})"
-        )
-    _raise_all(problems)
-    indices = tuple((parts[p], appraisers[a], trials[t]) for _, p, a, t, _ in rows)
-    return _Layout(tuple(parts), tuple(appraisers), tuple(trials), indices)
+    return missing_appraisers, missing_values
