@@ -206,3 +206,29 @@ def test_the_size_checker_sees_a_long_module_and_a_long_function(tmp_path):
     found = _oversized(probe, "surfinspect/probe.py")
     assert set(found) == {"surfinspect/probe.py", "surfinspect/probe.py::long_one"}
     assert "long_one is 81 lines" in found["surfinspect/probe.py::long_one"]
+
+
+# ------------------------------------------------------------------ public names of the rooms
+
+
+@pytest.mark.parametrize("room", [r for r in FLOORS if r != "shared" and (PACKAGE / r / "__init__.py").exists()])
+def test_every_public_name_of_a_room_resolves_to_its_module(room):
+    """Each name a room's ``__init__`` lists (lazily) exists in the module it points at, and a
+    module that states its own ``__all__`` lists there every name the room gives for it."""
+    import importlib
+
+    package = importlib.import_module(f"surfinspect.{room}")
+    missing, unlisted = [], []
+    for name in package.__all__:
+        try:
+            value = getattr(package, name)
+        except (AttributeError, ImportError) as exc:
+            missing.append(f"{room}.{name}: {exc}")
+            continue
+        home = getattr(value, "__module__", None)
+        module = sys.modules.get(home or "")
+        if module is not None and home.startswith(f"surfinspect.{room}.") and hasattr(module, "__all__"):
+            if name not in module.__all__:
+                unlisted.append(f"{home}.{name}")
+    assert not missing, "\n".join(missing)
+    assert not unlisted, "listed by the room but not in its module's __all__: " + ", ".join(unlisted)

@@ -31,21 +31,8 @@ What is drawn, and how it reads without colour:
 Labels are set last, each in a filled box, and moved off one another
 (:func:`place_labels`) so that no label hides another.
 
-Angles: a lay ``theta`` is counter-clockwise from the part's +X axis with +Y up
-on screen. On screen its direction is ``theta + rotation`` (the datum's
-counter-clockwise skew against the image); in image pixels (rows down) that
-is the vector ``(cos phi, -sin phi)``. :func:`screen_direction` is the one
-place where the conversion happens.
-
-The palette is the colour-blind-safe set of Okabe and Ito [1]_ [2]_.
-
-References
-----------
-.. [1] M. Okabe and K. Ito, "Color Universal Design (CUD): How to make figures
-   and presentations that are friendly to colorblind people", 2008,
-   https://jfly.uni-koeln.de/color/
-.. [2] B. Wong, "Points of view: Color blindness", Nature Methods 8, 441 (2011).
-   doi:10.1038/nmeth.1618
+Angles (the one conversion, :func:`screen_direction`) and the palette (colour-blind safe)
+are described in :mod:`surfinspect.report.scene`.
 """
 
 from __future__ import annotations
