@@ -1,4 +1,4 @@
-"""Known-angle reference targets: gratings at true physical scale, as PDF or PNG.
+"""Known-angle reference targets: gratings at true physical scale, as PDF (:mod:`.target_pdf`) or PNG.
 
 A target sheet holds one grating per nominal lay angle, each with fiducial
 crosses at its corners and its nominal angle printed beside it, plus a scale
@@ -88,7 +88,7 @@ def render_grating(
 ) -> np.ndarray:
     """A grating whose lines run along ``lay_deg``.
 
-    The sine grating is :func:`surfinspect.synth.sine_grating`,
+    The sine grating is :func:`surfinspect.measure.synth.sine_grating`,
     ``mean + amplitude * sin(2 pi u / period + phase)`` with
     ``u = -sin(lay) x + cos(lay) y_up`` at pixel centres (point samples of a
     band-limited pattern are exact). The square grating is

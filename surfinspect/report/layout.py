@@ -1,4 +1,4 @@
-"""Page geometry, paragraph styles, fonts and the footer of the PDF report: the pieces every page uses."""
+"""Page geometry, paragraph styles, fonts, tables and verdict badges of the PDF report: the pieces every page uses."""
 
 from __future__ import annotations
 

@@ -1,4 +1,5 @@
-"""The PDF inspection report (reportlab).
+"""The PDF inspection report (reportlab): :func:`render_report` assembles the pages that the
+other modules of ``report`` lay out (``summary``, ``part_page``, ``batch_stats``, ``footer``).
 
 Pages, in order:
 
@@ -11,7 +12,7 @@ Pages, in order:
    shapes).
 2. One page or more per part, in the summary's order: the verdict and why in
    one sentence, the photo as a downsampled JPEG with the overlay of
-   :mod:`surfinspect.overlay` drawn on top as vector graphics in the result's
+   :mod:`surfinspect.report.overlay` drawn on top as vector graphics in the result's
    own image-pixel coordinates (as tall as the page leaves room for), a table
    per region in the words of its lay pattern, the deviating patches, a rose
    plot of each region's orientation histogram (and, where the expected lay
