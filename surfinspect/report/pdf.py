@@ -81,7 +81,7 @@ __all__ = [
 ]
 
 
-def _check_inputs(parts, images, report_id, not_inspected) -> tuple[list[PartResult], list, list[NotInspected]]:
+def _check_inputs(parts, images, report_id) -> tuple[list[PartResult], list]:
     parts = list(parts)
     images = list(images)
     if not parts:
@@ -95,11 +95,15 @@ def _check_inputs(parts, images, report_id, not_inspected) -> tuple[list[PartRes
     for k, p in enumerate(parts):
         if not isinstance(p, PartResult):
             raise InputError(f"report: parts[{k}]: not a PartResult (got {type(p).__name__})")
+    return parts, images
+
+
+def _check_not_inspected(not_inspected) -> list[NotInspected]:
     not_inspected = list(not_inspected)
     for k, item in enumerate(not_inspected):
         if not isinstance(item, NotInspected):
             raise InputError(f"report: not_inspected[{k}]: not a NotInspected (got {type(item).__name__})")
-    return parts, images, not_inspected
+    return not_inspected
 
 
 def _report_time(generated_at: datetime | str | None) -> datetime:
@@ -176,14 +180,16 @@ def render_report(
         an empty ``report_id``, or a ``not_inspected`` entry that is not a
         :class:`NotInspected`.
     """
-    parts, images, not_inspected = _check_inputs(parts, images, report_id, not_inspected)
+    parts, images = _check_inputs(parts, images, report_id)
+    when = _report_time(generated_at)  # checked before not_inspected, as it always was
+    not_inspected = _check_not_inspected(not_inspected)
     figs = [(i, _PartFigures(p, tuple(region_to_dict(r) for r in p.regions))) for i, p in enumerate(parts)]
     summary = dict(
         report_id=str(report_id),
         title=title or DEFAULT_TITLE,
         operator=operator,
         station=station or socket.gethostname(),
-        generated_at=_report_time(generated_at),
+        generated_at=when,
         signoff=signoff,
         not_inspected=not_inspected,
         stats=_batch_stats(parts) if batch_stats else [],
