@@ -50,6 +50,8 @@ __all__ = ["DEFAULT_SETTLE_S", "WatchConfig", "JudgedPart", "StationStatus", "Wa
 #: Settle time of a file that was neither renamed in nor closed after writing, s.
 DEFAULT_SETTLE_S = 1.0
 _TICK_S = 0.1
+#: Parts judged but not yet recorded, at most (each holds its pixels until its overlay is drawn).
+RECORD_BACKLOG = 4
 #: Niceness added to the thread that draws overlays and records parts (behind the verdicts).
 RECORDING_NICE = 10
 
@@ -167,6 +169,7 @@ class Station:
         self._judged_now = 0
         self._server: VerdictServer | None = None
         self._recording: ThreadPoolExecutor | None = None
+        self._backlog = threading.BoundedSemaphore(RECORD_BACKLOG)
 
     def request_stop(self, why: str) -> None:
         """Close the batch after the parts in flight (safe from a signal handler)."""
@@ -282,16 +285,16 @@ class Station:
                         "is not judged again"
                     )
                 else:
-                    self._inflight[key] = pool.submit(self._guarded, self._judge, arrival)
+                    self._inflight[key] = pool.submit(self._judge_stage, arrival)
 
     # ------------------------------------------------------ one part
 
-    def _guarded(self, work: Callable, arrival: Arrival, *args) -> None:
-        """Run one stage of a part; a fault that must stop the station stops it (no part is lost silently)."""
+    def _guarded(self, work: Callable, arrival: Arrival, *args):
+        """Run one stage of a part, returning what it returns; a fault that must stop the station stops it."""
         if self._fatal is not None:
-            return  # stopping: the part stays in the folder for the next run
+            return None  # stopping: the part stays in the folder for the next run
         try:
-            work(arrival, *args)
+            return work(arrival, *args)
         except ImageChanged:
             self._arrivals.note(arrival.path, "changed")  # rewritten in place while judged: again once settled
         except OSError as exc:
@@ -305,25 +308,41 @@ class Station:
                 f"{arrival.path.name}: internal error while judging ({type(exc).__name__}: {exc}); the station stopped"
             )
 
+    def _judge_stage(self, arrival: Arrival) -> None:
+        """Judge one part once the recorder has room (its backlog holds pixels: memory stays bounded)."""
+        self._backlog.acquire()
+        handed = False
+        try:
+            handed = bool(self._guarded(self._judge, arrival))
+        finally:
+            if not handed:
+                self._backlog.release()
+
+    def _record_stage(self, work: Callable, arrival: Arrival, *args) -> None:
+        try:
+            self._guarded(work, arrival, *args)
+        finally:
+            self._backlog.release()
+
     def _fail(self, message: str) -> None:
         if self._fatal is None:
             self._fatal = message
         self._stop.set()
 
-    def _judge(self, arrival: Arrival) -> None:
+    def _judge(self, arrival: Arrival) -> bool:
+        """Judge and publish one part; True when it was handed to the recorder."""
         path, key = arrival.path, arrival.path.name
         before = _stat_or_none(path)
         try:
             staged = self._spool.stage(path)
         except FileNotFoundError:
             self.on_warning(f"{key}: the file vanished before it was judged; skipped")
-            return
+            return False
         try:
             loaded, result = judge_path(path, self._recipe, Path(key).stem)
         except InputError as exc:
             reason = part_error_text(exc, path).replace(str(path), key)
-            self._not_judged(arrival, staged, before, reason)
-            return
+            return self._not_judged(arrival, staged, before, reason)
         except BaseException:
             self._spool.unstage(staged)
             raise
@@ -335,7 +354,8 @@ class Station:
         latency = _ms_since(arrival.completed_at)
         with self._publish_lock:  # recorded in the order published
             self._publish(JudgedPart(key, result.image.sha256, verdict, verdict_code(verdict), regions, latency))
-            self._recording.submit(self._guarded, self._record, arrival, staged, result, loaded.pixels)
+            self._recording.submit(self._record_stage, self._record, arrival, staged, result, loaded.pixels)
+        return True
 
     def _record(self, arrival: Arrival, staged: Path, result, pixels) -> None:
         result_json, overlay_png = _result_files(pixels, result)
@@ -351,7 +371,7 @@ class Station:
         finally:
             self._spool.unstage(staged)
 
-    def _not_judged(self, arrival: Arrival, staged: Path, before, reason: str) -> None:
+    def _not_judged(self, arrival: Arrival, staged: Path, before, reason: str) -> bool:
         """A file that could not be read: judged again once it settles, recorded as not inspected if it stays so."""
         path, key = arrival.path, arrival.path.name
         now = _stat_or_none(path)
@@ -362,7 +382,7 @@ class Station:
             else:  # still being written, or caught at a bad moment: once more when it stays unchanged
                 self._retried.add(key)
                 self._arrivals.note(path, "changed")
-            return
+            return False
         try:
             sha = sha256_file(staged)
         except OSError as exc:
@@ -370,7 +390,8 @@ class Station:
         error = archive_mod.ERROR_VERDICT
         with self._publish_lock:
             self._publish(JudgedPart(key, sha, error, verdict_code(error), (), _ms_since(arrival.completed_at), reason))
-            self._recording.submit(self._guarded, self._record_not_inspected, arrival, staged, sha, reason)
+            self._recording.submit(self._record_stage, self._record_not_inspected, arrival, staged, sha, reason)
+        return True
 
     def _record_not_inspected(self, arrival: Arrival, staged: Path, sha: str | None, reason: str) -> None:
         try:

@@ -449,3 +449,27 @@ def test_status_line_only_on_a_terminal():
         text = err.getvalue()
         assert ("\rLINE: 3 parts\x1b[K\n" in text) is shown
         assert text.endswith("surfinspect: warning: x.png: the file vanished\n")
+
+
+def test_parts_waiting_for_their_record_are_bounded(tmp_path, monkeypatch):
+    """A backlog of files at start-up with a slow recorder: judging waits, memory does not grow."""
+    station, judged, _ = _in_process(tmp_path, stop_after=10, jobs=2)
+    for name, source in _parts_plan(10):
+        shutil.copy(source, tmp_path / "camera" / name)
+    real_files = watch._result_files
+    ahead = []
+
+    def slow_files(pixels, result):
+        time.sleep(0.05)
+        return real_files(pixels, result)
+
+    def count(part, status):
+        judged.append(part)
+        journal = spool.spool_dir(tmp_path / "archive", "LINE-3") / spool.JOURNAL_NAME
+        ahead.append(len(judged) - (len(journal.read_bytes().splitlines()) - 1))  # the header is no part
+
+    monkeypatch.setattr(watch, "_result_files", slow_files)
+    station.on_judged = count
+    outcome = _run_bounded(station)
+    assert len(outcome.parts) == 10 and len(judged) == 10
+    assert max(ahead) <= watch.RECORD_BACKLOG
