@@ -13,6 +13,7 @@ in that namespace, ``ns=<index>;s=<path>``; all values are read-only)::
         BatchId          String             the open batch
         Recipe           String             recipe name and revision
         Heartbeat        UInt64             +1 every HEARTBEAT_S while the station runs
+        State            String             watching | closing (the batch report is being written)
         PartsJudged      UInt32             +1 per part judged: the trigger for a controller
         LastPart/        object
             Name         String             part key (the image's file name)
@@ -117,6 +118,12 @@ class VerdictServer:
     def publish(self, part: PublishedPart) -> None:
         self._call(self._write_part(part), _WRITE_TIMEOUT_S)
 
+    def set_state(self, state: str) -> None:
+        """``watching`` or ``closing``: a controller stops sending parts to a closing station."""
+        from asyncua import ua
+
+        self._call(self._set(f"{ROOT}.State", state, ua.VariantType.String), _WRITE_TIMEOUT_S)
+
     def stop(self) -> None:
         if not self._thread.is_alive():
             return
@@ -164,6 +171,7 @@ class VerdictServer:
         await var(root, f"{ROOT}.BatchId", "BatchId", self.batch_id, S)
         await var(root, f"{ROOT}.Recipe", "Recipe", self.recipe, S)
         await var(root, f"{ROOT}.Heartbeat", "Heartbeat", 0, ua.VariantType.UInt64)
+        await var(root, f"{ROOT}.State", "State", "watching", S)
         await var(root, f"{ROOT}.PartsJudged", "PartsJudged", parts_judged, U32)
         last = await obj(root, f"{ROOT}.LastPart", "LastPart")
         for name, value, vtype in (

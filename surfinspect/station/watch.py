@@ -437,6 +437,9 @@ class Station:
 
     def _close(self, arc: archive_mod.Archive, recipe: Recipe, spool: Spool) -> WatchOutcome:
         cfg = self.config
+        if self._server is not None:
+            with contextlib.suppress(Exception):  # the close goes on without the controller being told
+                self._server.set_state("closing")
         try:
             parts = spool.parts()
             if not parts:

@@ -147,6 +147,7 @@ class VerdictClient:
         self.verdicts: list[str] = []
         self.heartbeats: list[int] = []
         self.written_at: list = []  # server-side source timestamps of the verdict writes
+        self.states: list[str] = []
         self.ready = threading.Event()
         self._stop = threading.Event()
         self.error: BaseException | None = None
@@ -165,6 +166,8 @@ class VerdictClient:
                     client.written_at.append(data.monitored_item.Value.SourceTimestamp)
                 elif name == "Heartbeat":
                     client.heartbeats.append(value)
+                elif name == "State":
+                    client.states.append(value)
 
         try:
             deadline = time.monotonic() + TIMEOUT_S
@@ -174,17 +177,19 @@ class VerdictClient:
                         ns = await c.get_namespace_index(NAMESPACE_URI)
                         verdict = c.get_node(ua.NodeId("LayStation.LastPart.Verdict", ns))
                         beat = c.get_node(ua.NodeId("LayStation.Heartbeat", ns))
+                        state = c.get_node(ua.NodeId("LayStation.State", ns))
                         sub = await c.create_subscription(10, Handler())
                         # every write counts, also the same verdict twice in a row (trigger on the timestamp)
                         trigger = ua.DataChangeFilter(Trigger=ua.DataChangeTrigger.StatusValueTimestamp)
                         await sub._subscribe([verdict], mfilter=trigger, queuesize=100)
-                        await sub.subscribe_data_change(beat)
+                        await sub.subscribe_data_change([beat, state])
                         self.ready.set()
                         while not self._stop.is_set():
                             await asyncio.sleep(0.05)
-                        await sub.delete()
                         return
-                except (OSError, asyncio.TimeoutError, TimeoutError):
+                except Exception:
+                    if self._stop.is_set():
+                        return  # the station stopped its server first
                     if time.monotonic() > deadline or self.ready.is_set():
                         raise
                     await asyncio.sleep(0.2)
@@ -218,11 +223,12 @@ def test_line_run_publishes_every_part_once_in_order_and_archives_it_as_batch_wo
         writer.join(TIMEOUT_S)
         station.wait_for_lines(len(plan))
         time.sleep(0.3)  # the last notification's publishing interval
+        station.proc.send_signal(signal.SIGTERM)
+        rc, err = station.finish()
     finally:
         client.stop()
-    station.proc.send_signal(signal.SIGTERM)
-    rc, err = station.finish()
     assert client.error is None
+    assert client.states[0] == "watching" and client.states[-1] == "closing"
     assert rc == 1, err  # the batch holds rejects: the exit code of `batch`
     lines = station.lines
     # every image judged exactly once, never while incomplete: the hash is the finished file's
