@@ -73,7 +73,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         console.record(part.json_line())
         console.status(_status_text(args.batch_id, status))
 
-    station = watch.Station(config, on_judged=judged, on_warning=console.warn)
+    station = watch.Station(config, on_judged=judged, on_warning=console.warn, on_note=console.note)
     with on_stop_signals(lambda signum, frame: station.request_stop(f"{signal.Signals(signum).name} received")):
         outcome = station.run()
     console.status("")
@@ -93,7 +93,7 @@ def _summarise(args: argparse.Namespace, console: Console, outcome: watch.WatchO
         counts[p.verdict] = counts.get(p.verdict, 0) + 1
     summary = ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
     console.note(
-        f"batch {outcome.batch_id} closed ({outcome.why_closed}): {len(outcome.parts)} parts: {summary}; "
+        f"batch {outcome.batch_id} closed ({outcome.why_closed}): {len(outcome.parts)} part(s): {summary}; "
         f"{outcome.judged_now} judged in this run"
     )
     console.note(

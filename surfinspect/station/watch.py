@@ -153,10 +153,12 @@ class Station:
         *,
         on_judged: Callable[[JudgedPart, StationStatus], None] | None = None,
         on_warning: Callable[[str], None] | None = None,
+        on_note: Callable[[str], None] | None = None,
     ):
         self.config = config
         self.on_judged = on_judged or (lambda part, status: None)
         self.on_warning = on_warning or (lambda text: None)
+        self.on_note = on_note or (lambda text: None)
         self._stop = threading.Event()
         self._why_stop = ""
         self._fatal: str | None = None
@@ -240,7 +242,8 @@ class Station:
             self._server.start(self._counts.by_verdict, self._counts.judged)
         observer = None
         try:
-            observer, _ = start_observer(arrivals, poll=cfg.poll)
+            observer, method = start_observer(arrivals, poll=cfg.poll)
+            self._say_started(method, len(spool))
             for path in sorted(cfg.folder.iterdir()):  # what arrived while the station was down
                 if is_part_image(path) and path.name not in spool:
                     arrivals.note(path, "existing")
@@ -257,6 +260,14 @@ class Station:
         if self._fatal is not None:
             self._stop_server()
             raise InputError(self._fatal)
+
+    def _say_started(self, method: str, recorded: int) -> None:
+        cfg = self.config
+        resumed = f"; {recorded} part(s) recorded before, not judged again" if recorded else ""
+        served = f"; OPC UA at {self._server.url}" if self._server is not None else ""
+        self.on_note(
+            f"batch {cfg.batch_id}: watching {cfg.folder} ({method}){resumed}{served}; stop to close the batch"
+        )
 
     def _loop(self, pool: ThreadPoolExecutor) -> None:
         cfg, spool, arrivals = self.config, self._spool, self._arrivals
