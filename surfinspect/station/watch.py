@@ -266,7 +266,7 @@ class Station:
         resumed = f"; {recorded} part(s) recorded before, not judged again" if recorded else ""
         served = f"; OPC UA at {self._server.url}" if self._server is not None else ""
         self.on_note(
-            f"batch {cfg.batch_id}: watching {cfg.folder} ({method}){resumed}{served}; stop to close the batch"
+            f"batch {cfg.batch_id}: watching {cfg.folder} ({method}){resumed}{served}; Ctrl-C or SIGTERM closes the batch"
         )
 
     def _loop(self, pool: ThreadPoolExecutor) -> None:
