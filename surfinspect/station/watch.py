@@ -172,6 +172,7 @@ class Station:
         self._server: VerdictServer | None = None
         self._recording: ThreadPoolExecutor | None = None
         self._backlog = threading.BoundedSemaphore(RECORD_BACKLOG)
+        self._left: tuple[str, ...] = ()  # complete files not judged before the close
 
     def request_stop(self, why: str) -> None:
         """Close the batch after the parts in flight (safe from a signal handler)."""
@@ -220,7 +221,11 @@ class Station:
             for part in spool.parts():
                 self._counts.add(part.verdict)
             if existing is None:  # a batch is handed to the archive when it closes
-                self._watch(recipe, spool)
+                try:
+                    self._watch(recipe, spool)
+                except BaseException:
+                    self._stop_server()
+                    raise
             else:
                 self._why_stop = "finishing the close that was interrupted"
             return self._close(arc, recipe, spool)
@@ -454,7 +459,7 @@ class Station:
         try:
             parts = spool.parts()
             if not parts:
-                return WatchOutcome(cfg.batch_id, False, self._why_stop or "stopped", (), 0, 0, self._left_unjudged())
+                return WatchOutcome(cfg.batch_id, False, self._why_stop or "stopped", (), 0, 0, self._left)
             batch.archive_inspected(
                 arc,
                 cfg.batch_id,
@@ -473,11 +478,8 @@ class Station:
             rows,
             self._judged_now,
             batch.batch_exit_code(rows),
-            self._left_unjudged(),
+            self._left,
         )
-
-    def _left_unjudged(self) -> tuple[str, ...]:
-        return getattr(self, "_left", ())
 
     def _stop_server(self) -> None:
         if self._server is not None:
