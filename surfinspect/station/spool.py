@@ -99,9 +99,12 @@ class Spool:
                 f"--batch-id: open batch {header['batch_id']!r} was started with another recipe "
                 f"({str(first.get('recipe_sha256'))[:12]}…); use the same recipe file or a new batch id"
             )
-        if good_end < len(data):
+        if good_end != len(data):  # a torn tail to cut off, or a whole last record still without its newline
             with open(self.journal, "rb+") as fh:
-                fh.truncate(good_end)
+                fh.truncate(min(good_end, len(data)))
+                if good_end > len(data):
+                    fh.seek(0, os.SEEK_END)
+                    fh.write(b"\n")
                 os.fsync(fh.fileno())
         for number, rec in enumerate(records[1:], start=2):
             try:

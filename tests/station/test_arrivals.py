@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import shutil
 import time
 
 import pytest
@@ -103,3 +104,22 @@ def test_journal_notices_an_image_rewritten_in_place_while_judged(tmp_path):
         sha = hashlib.sha256(b"first").hexdigest()
         journal.record("img.png", image=staged, image_sha256=sha, verdict="accept", result_json=b"{}", overlay_png=b"")
     assert len(journal) == 0
+
+
+def test_journal_cut_at_any_byte_after_its_header_reopens_as_a_prefix(tmp_path):
+    """A crash may cut the journal anywhere while a line is appended: what remains is whole records."""
+    journal = spool.Spool(tmp_path / "a", "B1", "r" * 64)
+    keys = [f"p{i}.png" for i in range(3)]
+    for key in keys:
+        journal.record(key, image=None, image_sha256=None, verdict="error", error=f"{key}: unreadable")
+    data = journal.journal.read_bytes()
+    header_end = data.index(b"\n") + 1
+    for cut in range(header_end, len(data) + 1):
+        root = tmp_path / f"cut{cut}"
+        shutil.copytree(journal.root, spool.spool_dir(root, "B1"))
+        (spool.spool_dir(root, "B1") / spool.JOURNAL_NAME).write_bytes(data[:cut])
+        again = spool.Spool(root, "B1", "r" * 64)
+        whole = data[:cut].count(b"\n") - 1 + data[:cut].endswith(b"}")  # a last record may lack its newline
+        assert [p.part_key for p in again.parts()] == keys[:whole]
+        again.record("next.png", image=None, image_sha256=None, verdict="error", error="x")  # appends cleanly
+        assert [p.part_key for p in spool.Spool(root, "B1", "r" * 64).parts()] == keys[:whole] + ["next.png"]
