@@ -25,7 +25,6 @@ from __future__ import annotations
 
 import contextlib
 import json
-import os
 import threading
 import time
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -52,8 +51,6 @@ DEFAULT_SETTLE_S = 1.0
 _TICK_S = 0.1
 #: Parts judged but not yet recorded, at most (each holds its pixels until its overlay is drawn).
 RECORD_BACKLOG = 4
-#: Niceness added to the thread that draws overlays and records parts (behind the verdicts).
-RECORDING_NICE = 10
 
 
 @dataclass(frozen=True)
@@ -253,7 +250,7 @@ class Station:
                 if is_part_image(path) and path.name not in spool:
                     arrivals.note(path, "existing")
             # verdicts from ``jobs`` threads; overlays and records in one thread behind them, in publishing order
-            with ThreadPoolExecutor(1, "record", initializer=_yield_to_verdicts) as self._recording:
+            with ThreadPoolExecutor(max_workers=1, thread_name_prefix="record") as self._recording:
                 with ThreadPoolExecutor(max_workers=cfg.jobs, thread_name_prefix="judge") as pool:
                     self._loop(pool)
             left = sorted(a.path.name for a in arrivals.take(0))
@@ -485,16 +482,6 @@ class Station:
         if self._server is not None:
             self._server.stop()
             self._server = None
-
-
-def _yield_to_verdicts() -> None:
-    """Lower this thread's scheduling priority, so that overlays and records never delay the next verdict.
-
-    Linux schedules threads as tasks of their own (``setpriority`` on the thread id); elsewhere this
-    does nothing.
-    """
-    with contextlib.suppress(AttributeError, OSError):
-        os.setpriority(os.PRIO_PROCESS, threading.get_native_id(), RECORDING_NICE)
 
 
 def _stat_or_none(path: Path):
