@@ -49,7 +49,7 @@ __all__ = ["DEFAULT_SETTLE_S", "WatchConfig", "JudgedPart", "StationStatus", "Wa
 #: Settle time of a file that was neither renamed in nor closed after writing, s.
 DEFAULT_SETTLE_S = 1.0
 _TICK_S = 0.1
-#: Parts judged but not yet recorded, at most (each holds its pixels until its overlay is drawn).
+#: Parts waiting for their record, at most (each holds its pixels until its overlay is drawn).
 RECORD_BACKLOG = 4
 
 
@@ -298,16 +298,16 @@ class Station:
                         "is not judged again"
                     )
                 else:
-                    self._inflight[key] = pool.submit(self._judge_stage, arrival)
+                    self._inflight[key] = pool.submit(self._guarded, self._judge, arrival)
 
     # ------------------------------------------------------ one part
 
-    def _guarded(self, work: Callable, arrival: Arrival, *args):
-        """Run one stage of a part, returning what it returns; a fault that must stop the station stops it."""
+    def _guarded(self, work: Callable, arrival: Arrival, *args) -> None:
+        """Run one stage of a part; a fault that must stop the station stops it (no part is lost silently)."""
         if self._fatal is not None:
-            return None  # stopping: the part stays in the folder for the next run
+            return  # stopping: the part stays in the folder for the next run
         try:
-            return work(arrival, *args)
+            work(arrival, *args)
         except ImageChanged:
             self._arrivals.note(arrival.path, "changed")  # rewritten in place while judged: again once settled
         except OSError as exc:
@@ -321,16 +321,6 @@ class Station:
                 f"{arrival.path.name}: internal error while judging ({type(exc).__name__}: {exc}); the station stopped"
             )
 
-    def _judge_stage(self, arrival: Arrival) -> None:
-        """Judge one part once the recorder has room (its backlog holds pixels: memory stays bounded)."""
-        self._backlog.acquire()
-        handed = False
-        try:
-            handed = bool(self._guarded(self._judge, arrival))
-        finally:
-            if not handed:
-                self._backlog.release()
-
     def _record_stage(self, work: Callable, arrival: Arrival, *args) -> None:
         try:
             self._guarded(work, arrival, *args)
@@ -342,20 +332,21 @@ class Station:
             self._fatal = message
         self._stop.set()
 
-    def _judge(self, arrival: Arrival) -> bool:
-        """Judge and publish one part; True when it was handed to the recorder."""
+    def _judge(self, arrival: Arrival) -> None:
+        """Judge one part, publish its verdict and hand it to the recorder."""
         path, key = arrival.path, arrival.path.name
         before = _stat_or_none(path)
         try:
             staged = self._spool.stage(path)
         except FileNotFoundError:
             self.on_warning(f"{key}: the file vanished before it was judged; skipped")
-            return False
+            return
         try:
             loaded, result = judge_path(path, self._recipe, Path(key).stem)
         except InputError as exc:
             reason = part_error_text(exc, path).replace(str(path), key)
-            return self._not_judged(arrival, staged, before, reason)
+            self._not_judged(arrival, staged, before, reason)
+            return
         except BaseException:
             self._spool.unstage(staged)
             raise
@@ -365,10 +356,24 @@ class Station:
             for r in result.regions
         )
         latency = _ms_since(arrival.completed_at)
-        with self._publish_lock:  # recorded in the order published
-            self._publish(JudgedPart(key, result.image.sha256, verdict, verdict_code(verdict), regions, latency))
-            self._recording.submit(self._record_stage, self._record, arrival, staged, result, loaded.pixels)
-        return True
+        part = JudgedPart(key, result.image.sha256, verdict, verdict_code(verdict), regions, latency)
+        self._publish_and_hand_over(part, self._record, arrival, staged, result, loaded.pixels)
+
+    def _publish_and_hand_over(self, part: JudgedPart, work: Callable, arrival: Arrival, *args) -> None:
+        """Publish the verdict, then queue the part's record once the recorder has room.
+
+        The verdict never waits for the recorder; when the recorder is behind by
+        ``RECORD_BACKLOG`` parts (each holding its pixels), the next verdicts wait.
+        Records are queued in the order the verdicts were published.
+        """
+        with self._publish_lock:
+            self._publish(part)
+            self._backlog.acquire()
+            try:
+                self._recording.submit(self._record_stage, work, arrival, *args)
+            except BaseException:
+                self._backlog.release()
+                raise
 
     def _record(self, arrival: Arrival, staged: Path, result, pixels) -> None:
         result_json, overlay_png = _result_files(pixels, result)
@@ -384,7 +389,7 @@ class Station:
         finally:
             self._spool.unstage(staged)
 
-    def _not_judged(self, arrival: Arrival, staged: Path, before, reason: str) -> bool:
+    def _not_judged(self, arrival: Arrival, staged: Path, before, reason: str) -> None:
         """A file that could not be read: judged again once it settles, recorded as not inspected if it stays so."""
         path, key = arrival.path, arrival.path.name
         now = _stat_or_none(path)
@@ -395,16 +400,14 @@ class Station:
             else:  # still being written, or caught at a bad moment: once more when it stays unchanged
                 self._retried.add(key)
                 self._arrivals.note(path, "changed")
-            return False
+            return
         try:
             sha = sha256_file(staged)
         except OSError as exc:
             sha, reason = None, f"{key}: cannot read the file ({exc.strerror or exc})"
         error = archive_mod.ERROR_VERDICT
-        with self._publish_lock:
-            self._publish(JudgedPart(key, sha, error, verdict_code(error), (), _ms_since(arrival.completed_at), reason))
-            self._recording.submit(self._record_stage, self._record_not_inspected, arrival, staged, sha, reason)
-        return True
+        part = JudgedPart(key, sha, error, verdict_code(error), (), _ms_since(arrival.completed_at), reason)
+        self._publish_and_hand_over(part, self._record_not_inspected, arrival, staged, sha, reason)
 
     def _record_not_inspected(self, arrival: Arrival, staged: Path, sha: str | None, reason: str) -> None:
         try:
