@@ -211,7 +211,7 @@ def test_line_run_publishes_every_part_once_in_order_and_archives_it_as_batch_wo
     folder, archive = tmp_path / "camera", tmp_path / "archive"
     folder.mkdir()
     port = _free_port()
-    plan = _parts_plan(10)
+    plan = _parts_plan(8)
     station = station_processes(
         [RECIPE, folder, "--archive", archive, "--batch-id", "LINE-1", "--opcua", f"tcp://127.0.0.1:{port}"]
     )
