@@ -18,7 +18,22 @@ from ..results import EXIT_INPUT_ERROR
 from .console import Console
 
 #: Sub-commands in the order ``--help`` lists them.
-COMMANDS = ("inspect", "check", "demo", "batch", "keygen", "sign", "verify", "show", "target", "bias", "gauge")
+COMMANDS = (
+    "inspect",
+    "check",
+    "demo",
+    "batch",
+    "keygen",
+    "owner",
+    "signers",
+    "sign",
+    "disposition",
+    "verify",
+    "show",
+    "target",
+    "bias",
+    "gauge",
+)
 
 
 class _Parser(argparse.ArgumentParser):

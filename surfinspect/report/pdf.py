@@ -66,6 +66,7 @@ from ..measure.orientation import wrap_deviation
 from ..qualify.spc import Capability, IndividualsChart, capability, individuals_chart
 from ..results import (
     CAUTION,
+    SIGNOFF_MEANINGS,
     PartResult,
     PartVerdict,
     RegionResult,
@@ -1147,7 +1148,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
             c.setDash([])
             if label == "Meaning":
                 c.setFont("Helvetica", 6.5)
-                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
+                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, " / ".join(SIGNOFF_MEANINGS))
         else:
             size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
             c.setFont(font, size)
