@@ -31,6 +31,13 @@ class Context:
     events: list[EventRow] = field(default_factory=list)
     event_sha: dict[int, str] = field(default_factory=dict)
     register: Register | None = None
+    object_states: dict[str, str | None] = field(default_factory=dict)
+
+    def object_state(self, sha: str) -> str | None:
+        """What is wrong with a stored object (None when intact); each object is hashed once per check."""
+        if sha not in self.object_states:
+            self.object_states[sha] = self.archive.objects.state(sha)
+        return self.object_states[sha]
 
     def fail(self, text: str) -> None:
         self.problems.append(text)
@@ -372,13 +379,13 @@ def check_files(ctx: Context) -> None:
         for sha, what in _references(ctx, batch):
             if "files" in ctx.usable and sha not in catalogued:
                 ctx.fail(f"stored file {sha[:12]}… ({what}) is missing from the file catalogue")
-            state = objects.state(sha)
+            state = ctx.object_state(sha)
             if state is not None:
                 ctx.fail(f"stored file {objects.path(sha).relative_to(ctx.archive.root)} ({what}) {state}")
     if ctx.batch_id is not None or "files" not in ctx.usable:
         return
     for sha in sorted(catalogued):
-        state = objects.state(sha)
+        state = ctx.object_state(sha)
         if state is not None:
             ctx.fail(f"stored file {objects.path(sha).relative_to(ctx.archive.root)} (in the file catalogue) {state}")
     for sha in objects.stored():
@@ -393,7 +400,7 @@ def check_files(ctx: Context) -> None:
 
 
 def _read_json_object(ctx: Context, sha: str) -> dict | None:
-    if ctx.archive.objects.state(sha) is not None:
+    if ctx.object_state(sha) is not None:
         return None  # a missing or changed object is already named
     try:
         value = json.loads(ctx.archive.read_object(sha))

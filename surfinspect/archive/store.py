@@ -145,6 +145,12 @@ class Archive:
                 f"{self.index.location}: not a surfinspect archive index ({exc}); allowed: the index of an archive "
                 "made by `surfinspect batch`, or a new --archive folder"
             ) from None
+        if fmt == "surfinspect.archive/1":
+            raise InputError(
+                f"{self.index.location}: meta.format: an archive of the first format ({fmt!r}), made before the signer "
+                f"register and the row-by-row audit chain; this version reads {ARCHIVE_FORMAT!r} only (keep the "
+                "release that made it to verify it, or start a new archive folder)"
+            )
         if fmt != ARCHIVE_FORMAT:
             raise InputError(
                 f"{self.index.location}: meta.format: unknown archive format (got {fmt!r}, allowed {ARCHIVE_FORMAT!r})"
