@@ -13,7 +13,7 @@ from typing import Any, Callable
 
 from . import chain, signing
 from .chain import GENESIS_SHA256, EventKind
-from .register import OWNER_ROLE, Register
+from .register import Register
 from .schema import CHAINED_TABLES, TABLES, BatchRow, EventRow, RegisterRow
 from .signatures import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 from .store import ERROR_SCHEMA, ERROR_VERDICT, Archive, index_rows_of
@@ -32,6 +32,16 @@ class Context:
     event_sha: dict[int, str] = field(default_factory=dict)
     register: Register | None = None
     object_states: dict[str, str | None] = field(default_factory=dict)
+    #: key fingerprint -> (audit event that enrolled it, audit event that revoked it or None)
+    key_windows: dict[str, tuple[int, int | None]] = field(default_factory=dict)
+
+    def key_valid_at(self, fingerprint: str, seq: int | None) -> bool:
+        """Whether the key was enrolled (or made owner) before audit event ``seq`` and not revoked by then."""
+        window = self.key_windows.get(fingerprint)
+        if window is None or seq is None:
+            return False
+        start, end = window
+        return start < seq and (end is None or seq < end)
 
     def object_state(self, sha: str) -> str | None:
         """What is wrong with a stored object (None when intact); each object is hashed once per check."""
@@ -146,10 +156,20 @@ def check_chain(ctx: Context) -> None:
         )
     elif ctx.events and head != prev_sha:
         ctx.fail("audit trail: the last event's hash does not match the chain head recorded in the index (meta)")
+    _check_meta(ctx)
+
+
+def _check_meta(ctx: Context) -> None:
+    """The first event records the archive's creation; meta holds exactly that besides the chain head."""
     first = ctx.events[0] if ctx.events else None
     created = _details(first) if first is not None and first.kind == EventKind.ARCHIVE_CREATED.value else {}
-    if created.get("archive_id") != ctx.archive.archive_id or not created:
+    if not created or created.get("archive_id") != ctx.archive.archive_id:
         ctx.fail("audit trail: it does not begin with the creation of this archive (archive id differs or is missing)")
+        return
+    meta = {r["key"]: r["value"] for r in ctx.archive.index.select("meta")}
+    for key in sorted(set(meta) - {"chain_length", "chain_head_sha256"} | set(created)):
+        if meta.get(key) != created.get(key):
+            ctx.fail(f"index: meta {key} is {meta.get(key)!r}, audit event 1 recorded {created.get(key)!r}")
 
 
 def _details(e: EventRow) -> dict:
@@ -247,6 +267,22 @@ def _check_register_entry(ctx: Context, row: RegisterRow, owner: RegisterRow | N
             ctx.fail(f"{who}: the enrolled public key cannot be read")
 
 
+def _key_windows(ctx: Context, rows: list[RegisterRow]) -> None:
+    """Where in the trail each key became valid and stopped being valid (its register entries' events)."""
+    by_entry = {r.entry_no: r for r in rows}
+    for e in ctx.events:
+        if e.kind != EventKind.REGISTER_ENTRY.value:
+            continue
+        row = by_entry.get(_details(e).get("entry_no"))
+        if row is None:
+            continue
+        start, end = ctx.key_windows.get(row.key_fingerprint, (None, None))
+        if row.action in ("owner", "enrol") and start is None:
+            ctx.key_windows[row.key_fingerprint] = (e.seq, None)
+        elif row.action == "revoke" and start is not None and end is None:
+            ctx.key_windows[row.key_fingerprint] = (start, e.seq)
+
+
 def check_register(ctx: Context) -> None:
     """One self-signed owner entry first; every other entry signed by the owner; records match their rows."""
     if "register" not in ctx.usable:
@@ -264,6 +300,7 @@ def check_register(ctx: Context) -> None:
     owner = owners[0] if owners else None
     if owner is not None and owner.by_fingerprint != owner.key_fingerprint:
         ctx.fail("register: the owner entry is not signed by the owner's own key")
+    _key_windows(ctx, rows)
     for position, row in enumerate(rows, start=1):
         if row.action not in ("owner", "enrol", "revoke"):
             ctx.fail(f"register entry {row.entry_no}: unknown action {row.action!r}")
@@ -274,16 +311,14 @@ def check_register(ctx: Context) -> None:
 # ------------------------------------------------------------ signed heads
 
 
-def _head_signer(ctx: Context, record: dict):
+def _head_signer(ctx: Context, record: dict, seq: int):
+    """The owner or signer whose key was valid at this point of the trail, or None."""
     reg = ctx.register
-    if reg is None:
+    fingerprint = str(record.get("key_fingerprint"))
+    holder = reg.key_holder(fingerprint) if reg is not None else None
+    if holder is None or not ctx.key_valid_at(fingerprint, seq):
         return None
-    holder = reg.key_holder(str(record.get("key_fingerprint")))
-    if holder is None:
-        return None
-    if holder.role == OWNER_ROLE or holder.active_at(str(record.get("signed_at_utc"))):
-        return holder
-    return None
+    return holder
 
 
 def check_signed_heads(ctx: Context) -> None:
@@ -298,13 +333,19 @@ def check_signed_heads(ctx: Context) -> None:
         if not isinstance(record, dict):
             ctx.fail(f"{where}: its record cannot be read")
             continue
-        signer = _head_signer(ctx, record)
+        signer = _head_signer(ctx, record, e.seq)
         if signer is None:
             ctx.fail(
-                f"{where}: key {str(record.get('key_fingerprint'))[:16]}… is not the owner's and was not enrolled "
-                f"and unrevoked at {record.get('signed_at_utc')} (a key from outside the register)"
+                f"{where}: key {str(record.get('key_fingerprint'))[:16]}… was not the owner's or an enrolled, "
+                "unrevoked signer's at that point of the trail (a key from outside the register, or revoked)"
             )
             continue
+        signed_at = parse_utc(record.get("signed_at_utc"))
+        recorded = parse_utc(e.recorded_at)
+        if signed_at is None or recorded is None or abs((signed_at - recorded).total_seconds()) > CLOCK_ALLOWANCE_S:
+            ctx.fail(
+                f"{where}: it is dated {record.get('signed_at_utc')!r}, not when it was recorded ({e.recorded_at})"
+            )
         try:
             holds = signing.verify_record(bytes.fromhex(signer.public_key_hex), record, bytes.fromhex(signature))
         except (ValueError, TypeError):
@@ -465,14 +506,23 @@ def check_results(ctx: Context) -> None:
 # ------------------------------------------------ sign-offs and dispositions
 
 
-def _person_key(ctx: Context, who: str, fingerprint: str, name: str, at_utc: str) -> bytes | None:
-    """The enrolled public key a person's record must verify under, or None (named as a finding)."""
+def _person_key(ctx: Context, who: str, fingerprint: str, name: str, seq: int | None) -> bytes | None:
+    """The enrolled public key a person's record must verify under, or None (named as a finding).
+
+    ``seq`` is the audit event that recorded the act: the key must have been
+    enrolled before it and not revoked by then (the trail's order, not a time
+    the signer could choose).
+    """
     signer = ctx.register.signers.get(fingerprint) if ctx.register is not None else None
     if signer is None:
         ctx.fail(f"{who}: key {fingerprint[:16]}… is not in the archive's signer register")
         return None
-    if not signer.active_at(at_utc):
-        ctx.fail(f"{who}: the key of {signer.printed_name} was not enrolled, or was revoked, at {at_utc}")
+    if seq is None:
+        ctx.fail(f"{who}: the audit trail holds no event recording it")
+    elif not ctx.key_valid_at(fingerprint, seq):
+        ctx.fail(
+            f"{who}: the key of {signer.printed_name} was not enrolled, or was already revoked, at audit event {seq}"
+        )
     if signer.is_station:
         ctx.fail(f"{who}: it is signed with a station key; a sign-off or disposition needs a person's key")
     if name != signer.printed_name:
@@ -506,10 +556,15 @@ def _check_record(ctx: Context, who: str, row: Any, public: bytes | None, shown:
     return record
 
 
-def _event_time(ctx: Context, kind: EventKind, batch_id: str, key: str, number: int) -> str | None:
+def _act_event(ctx: Context, kind: EventKind, batch_id: str, key: str, number: int, part_key: str | None = None):
     for e in ctx.events:
-        if e.kind == kind.value and e.batch_id == batch_id and _details(e).get(key) == number:
-            return e.recorded_at
+        if (
+            e.kind == kind.value
+            and e.batch_id == batch_id
+            and e.part_key == part_key
+            and _details(e).get(key) == number
+        ):
+            return e
     return None
 
 
@@ -521,12 +576,13 @@ def check_signoffs(ctx: Context) -> None:
         bid = batch.batch_id
         for s in ctx.archive.signoffs(bid):
             who = f"sign-off #{s.signoff_no} of batch {bid!r} by {s.signer_name} ({s.meaning}, {s.signed_at_utc})"
-            public = _person_key(ctx, who, s.key_fingerprint, s.signer_name, s.signed_at_utc)
+            act = _act_event(ctx, EventKind.SIGNED, bid, "signoff_no", s.signoff_no)
+            public = _person_key(ctx, who, s.key_fingerprint, s.signer_name, act.seq if act else None)
             shown = ("signer_name", "key_fingerprint", "meaning", "signed_at_utc", "comment", "batch_id", "signoff_no")
             record = _check_record(ctx, who, s, public, shown)
             if record is None:
                 continue
-            recorded_at = _event_time(ctx, EventKind.SIGNED, bid, "signoff_no", s.signoff_no)
+            recorded_at = act.recorded_at if act else None
             problem = time_problem(s.signed_at_utc, not_before=batch.finished_at, not_after=recorded_at)
             if problem:
                 ctx.fail(f"{who}: signed_at_utc {problem}")
@@ -552,7 +608,8 @@ def check_dispositions(ctx: Context) -> None:
         parts = {p.part_key: p for p in ctx.archive.parts(batch.batch_id)} if "parts" in ctx.usable else {}
         for d in ctx.archive.dispositions(batch.batch_id):
             who = f"disposition #{d.disposition_no} of part {d.part_key!r} in batch {batch.batch_id!r} ({d.decision} by {d.signer_name})"
-            public = _person_key(ctx, who, d.key_fingerprint, d.signer_name, d.decided_at_utc)
+            act = _act_event(ctx, EventKind.DISPOSITION, batch.batch_id, "disposition_no", d.disposition_no, d.part_key)
+            public = _person_key(ctx, who, d.key_fingerprint, d.signer_name, act.seq if act else None)
             shown = (
                 "batch_id",
                 "part_key",
@@ -569,7 +626,7 @@ def check_dispositions(ctx: Context) -> None:
             part = parts.get(d.part_key)
             if part is None or record.get("result_sha256") != part.result_sha256:
                 ctx.fail(f"{who}: the part's result in the index is not the one the disposition was made for")
-            problem = time_problem(d.decided_at_utc, not_before=None)
+            problem = time_problem(d.decided_at_utc, not_before=None, not_after=act.recorded_at if act else None)
             if problem:
                 ctx.fail(f"{who}: decided_at_utc {problem}")
 

@@ -122,18 +122,11 @@ class Archive:
             with self.index.write():
                 if self._meta("format") is not None:
                     return  # another process made it meanwhile
-                archive_id = str(uuid.uuid4())
-                for key, value in (
-                    ("format", ARCHIVE_FORMAT),
-                    ("archive_id", archive_id),
-                    ("created_at", utc_now()),
-                    ("chain_length", "0"),
-                    ("chain_head_sha256", GENESIS_SHA256),
-                ):
+                # what meta holds besides the chain's own head is recorded in the first event
+                created = {"format": ARCHIVE_FORMAT, "archive_id": str(uuid.uuid4()), "created_at": utc_now()}
+                for key, value in (*created.items(), ("chain_length", "0"), ("chain_head_sha256", GENESIS_SHA256)):
                     self.index.insert("meta", {"key": key, "value": value})
-                self._append_event(
-                    EventKind.ARCHIVE_CREATED, None, None, {"archive_id": archive_id, "format": ARCHIVE_FORMAT}
-                )
+                self._append_event(EventKind.ARCHIVE_CREATED, None, None, created)
         except (IndexDamaged, IndexBusy) as exc:
             raise InputError(f"{self.index.location}: cannot write the archive index ({exc})") from None
 
@@ -542,6 +535,7 @@ class Archive:
             raise ValueError("the signed report edition is not the one named in the sign-off row")
         with self._write():
             self._require_head(expected_head)
+            self.register().require_signer(key.fingerprint, utc_now(), "--key", station_allowed=False)
             rows = self._catalogue(edition_sha, len(signed_report_pdf), "application/pdf")
             self.index.insert("signatures", row.__dict__)
             rows.append(("signatures", row.__dict__))
@@ -552,6 +546,7 @@ class Archive:
     def add_disposition(self, row: DispositionRow, *, key: signing.SigningKey, expected_head: tuple[int, str]) -> None:
         with self._write():
             self._require_head(expected_head)
+            self.register().require_signer(key.fingerprint, utc_now(), "--key", station_allowed=False)
             self.index.insert("dispositions", row.__dict__)
             self._append_event(
                 EventKind.DISPOSITION,

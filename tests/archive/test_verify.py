@@ -106,6 +106,18 @@ def test_every_field_edited_is_named(archive, table, column):
     assert main(["-q", "verify", "--archive", str(archive)]) == 1
 
 
+@pytest.mark.parametrize("key", ["format", "archive_id", "created_at", "chain_length", "chain_head_sha256", "extra"])
+def test_every_meta_entry_edited_or_added_is_named(archive, key):
+    if key == "extra":
+        sql(archive, "INSERT INTO meta VALUES ('extra', 'x')")
+    else:
+        sql(archive, "UPDATE meta SET value = value || '0' WHERE key = ?", (key,))
+    report = _verify(archive)
+    assert report.problems, key
+    if key in ("created_at", "extra"):
+        assert any(p.startswith(f"index: meta {key} is ") for p in report.problems), report.problems
+
+
 def test_every_chained_table_is_covered_by_the_parametrisation():
     tables = {t for t, _ in _schema_columns()}
     assert {t.name for t in CHAINED_TABLES} | {"meta", "events"} == tables
@@ -422,3 +434,23 @@ def test_signing_after_the_render_is_bound_by_the_next_head(world):
         and record["events"] == signed.seq
         and record["key_fingerprint"] == keys.person.fingerprint
     )
+
+
+def test_a_revoked_key_signing_with_a_backdated_time_is_named(world, monkeypatch):
+    """A client that ignores the register (simulated) signs after the revocation, dating it before."""
+    root, keys = world
+    from surfinspect.archive.register import Register
+
+    with arc.Archive(root) as a:
+        signatures.revoke_signer(a, keys.owner, keys.person.fingerprint, "key lost")
+        enrolled_at = a.register().signers[keys.person.fingerprint].enrolled_at_utc
+        monkeypatch.setattr(Register, "require_signer", lambda self, fp, *a, **k: self.signers[fp])
+        monkeypatch.setattr(signatures, "time_problem", lambda *a, **k: None)
+        monkeypatch.setattr(signatures, "_require_intact", lambda *a: None)
+        signatures.sign_batch(
+            a, BATCH, keys.person, meaning="released", render_edition=render, signed_at_utc=enrolled_at
+        )
+    problems = _verify(root).problems
+    assert any("sign-off #2" in p and "was not enrolled, or was already revoked, at audit event" in p for p in problems)
+    assert any(p.startswith("signed head at audit event") and "or revoked)" in p for p in problems)
+    assert any("sign-off #2" in p and "signed_at_utc" in p and "is before" in p for p in problems)
