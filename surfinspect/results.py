@@ -395,3 +395,4 @@ class SignOff:
     comment: str = ""
     record_sha256: str = ""  # hash of the canonical signed record
     report_sha256: str = ""  # hash of the unsigned batch report the signature covers
+    chain_head: str = ""  # "N <sha256>": the archive's audit chain head the signature covers (an anchor on paper)

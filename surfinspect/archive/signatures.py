@@ -290,6 +290,7 @@ def sign_batch(
         comment=record["comment"],
         record_sha256=chain.canonical_sha256(record),
         report_sha256=batch.report_sha256,
+        chain_head=f"{events} {head}",
     )
     edition = render_edition(signoff)
     row = SignoffRow(

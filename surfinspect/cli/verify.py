@@ -41,11 +41,12 @@ def run(args: argparse.Namespace, console: Console) -> int:
         check_output_file("--export-anchor", args.export_anchor)
     report = verifier.verify_archive(args.archive, args.batch_id, anchor=anchor)
     problems = report.problems + (report.warnings if args.strict else [])
-    events = head = None
+    events = head = owner = None
     try:
         with archive.Archive(args.archive) as arc:
             arc.record_verification(args.batch_id, problems)
             events, head = arc.chain_head()
+            owner = arc.register().owner
             if args.export_anchor and not problems:
                 verifier.export_anchor(arc, args.export_anchor)
     except IndexBusy as exc:  # a read-only copy of an archive can still be checked
@@ -63,6 +64,10 @@ def run(args: argparse.Namespace, console: Console) -> int:
             console.info(f"no anchor written to {args.export_anchor}: the archive does not verify")
         return 1
     console.info(f"archive {args.archive}: intact ({scope}; audit trail of {events} events, head {head})")
+    if owner is not None:  # a rewritten archive would have to name another owner key: compare it with yours
+        console.info(f"owner: {owner.printed_name}, key {owner.key_fingerprint}")
+    else:
+        console.info("owner: none yet (nothing in this archive is signed; see `surfinspect owner init`)")
     if args.export_anchor:
         console.info(f"anchor written to {args.export_anchor}: keep it outside the archive; check with --anchor")
     return 0

@@ -473,6 +473,8 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
     text = " ".join(pypdf.PdfReader(copies / "report.signed-1.pdf").pages[0].extract_text().split())
     assert "???? 2 panels off grain" in text and "characters outside Latin-1 shown as ?" in text
     assert f"Covers report SHA-256 {report_sha}" in text
+    record = json.loads(s.record_json)  # the signed record's chain head, printed: an anchor on paper
+    assert f"Audit chain head event {record['audit_events']} {record['audit_head_sha256']}" in text
     assert main(["show", "--archive", str(root), "--out", str(copies)]) == 2
     assert "--out: needs --batch-id" in _one_error_line(capsys)
     assert main(["-q", "verify", "--archive", str(root)]) == 0
