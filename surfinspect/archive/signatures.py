@@ -120,17 +120,9 @@ def _register_entry(archive, owner_key, *, action, subject_fp, subject_pub, name
         audit_head_sha256=head,
     )
     signature = owner_key.sign(chain.canonical_bytes(record))
+    columns = {f: record[f] for f in RegisterRow.__dataclass_fields__ if f in record}
     row = RegisterRow(
-        entry_no=record["entry_no"],
-        action=action,
-        key_fingerprint=subject_fp,
-        public_key_hex=subject_pub,
-        printed_name=name,
-        role=role,
-        recorded_at_utc=at,
-        by_fingerprint=owner_key.fingerprint,
-        record_json=chain.canonical_bytes(record).decode("utf-8"),
-        signature_hex=signature.hex(),
+        **columns, record_json=chain.canonical_bytes(record).decode("utf-8"), signature_hex=signature.hex()
     )
     archive.add_register_entry(row, owner_key, (events, head))
     return row

@@ -181,42 +181,9 @@ def test_register_commands_and_sign_refusals(tmp_path, monkeypatch, capsys):
     monkeypatch.setenv("PASS", "lay runs up")
     owner = _keygen(tmp_path, "owner", "--passphrase-env", "PASS")
     person = _keygen(tmp_path, "person", "--passphrase-env", "PASS", "--name", "FORGED NAME")
-    assert (
-        main(
-            [
-                "-q",
-                "owner",
-                "init",
-                "--archive",
-                str(root),
-                "--name",
-                "M. QUALITY",
-                "--key",
-                str(owner),
-                "--passphrase-env",
-                "PASS",
-            ]
-        )
-        == 0
-    )
-    assert (
-        main(
-            [
-                "-q",
-                "owner",
-                "init",
-                "--archive",
-                str(root),
-                "--name",
-                "X",
-                "--key",
-                str(person),
-                "--passphrase-env",
-                "PASS",
-            ]
-        )
-        == 2
-    )
+    init = ["-q", "owner", "init", "--archive", str(root), "--passphrase-env", "PASS"]
+    assert main([*init, "--name", "M. QUALITY", "--key", str(owner)]) == 0
+    assert main([*init, "--name", "X", "--key", str(person)]) == 2  # the owner is set once
     fill_batch(root, BATCH, write_images(tmp_path / "in", PARTS), recipe)
     sign = [
         "sign",
