@@ -25,6 +25,7 @@ __all__ = ["Context", "CHECKS"]
 class Context:
     archive: Archive
     batch_id: str | None
+    shared_only: bool = False  # chain, rows, register and heads only: no batch's files, results or signatures
     problems: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     usable: set[str] = field(default_factory=set)  # tables present with every column
@@ -56,7 +57,7 @@ class Context:
         self.warnings.append(text)
 
     def batches(self) -> list[BatchRow]:
-        if "batches" not in self.usable:
+        if "batches" not in self.usable or self.shared_only:
             return []
         rows = self.archive.batches()
         return [b for b in rows if self.batch_id is None or b.batch_id == self.batch_id]
@@ -423,7 +424,7 @@ def check_files(ctx: Context) -> None:
             state = ctx.object_state(sha)
             if state is not None:
                 ctx.fail(f"stored file {objects.path(sha).relative_to(ctx.archive.root)} ({what}) {state}")
-    if ctx.batch_id is not None or "files" not in ctx.usable:
+    if ctx.batch_id is not None or ctx.shared_only or "files" not in ctx.usable:
         return
     for sha in sorted(catalogued):
         state = ctx.object_state(sha)

@@ -86,10 +86,12 @@ def time_problem(at_utc: object, *, not_before: str | None, not_after: str | Non
     return None
 
 
-def _require_intact(archive: Archive, what: str) -> None:
+def _require_intact(archive: Archive, what: str, batch_id: str | None = None) -> None:
+    """Refuse to sign over a problem: the chain, every index row, the register and the signed heads are
+    checked whole, and the files, results and signatures of ``batch_id`` (none when it is None)."""
     from .verify import verify_archive  # the verifier checks signed acts: imported when used
 
-    report = verify_archive(archive)
+    report = verify_archive(archive, batch_id, shared_only=batch_id is None)
     if report.problems:
         more = f" (and {len(report.problems) - 1} more)" if len(report.problems) > 1 else ""
         raise InputError(
@@ -252,7 +254,7 @@ def sign_batch(
     problem = time_problem(at, not_before=batch.finished_at)
     if problem:
         raise InputError(f"signed_at_utc: {problem}")
-    _require_intact(archive, "signing")
+    _require_intact(archive, "signing", batch_id)
     events, head = archive.chain_head()
     number = 1 + len(archive.signoffs(batch_id))
     record = {
@@ -323,7 +325,7 @@ def record_disposition(
         )
     at = utc_now()
     signer = archive.register().require_signer(key.fingerprint, at, "--key", station_allowed=False)
-    _require_intact(archive, "the disposition")
+    _require_intact(archive, "the disposition", batch_id)
     events, head = archive.chain_head()
     number = 1 + len([d for d in archive.dispositions(batch_id) if d.part_key == part_key])
     record = {

@@ -81,9 +81,16 @@ def _check_anchor(ctx: Context, anchor: dict[str, Any]) -> None:
 
 
 def verify_archive(
-    archive: Archive | str | os.PathLike, batch_id: str | None = None, *, anchor: dict[str, Any] | None = None
+    archive: Archive | str | os.PathLike,
+    batch_id: str | None = None,
+    *,
+    anchor: dict[str, Any] | None = None,
+    shared_only: bool = False,
 ) -> VerifyReport:
     """Check the archive (or one batch and everything shared: chain, rows, register, heads).
+
+    ``shared_only`` checks what is shared and no batch's files, results or
+    signatures (what a register entry depends on; no stored file is hashed).
 
     Raises
     ------
@@ -101,7 +108,7 @@ def verify_archive(
                 return VerifyReport([f"index: it cannot be read as an archive index ({exc})"])
             raise
         try:
-            return verify_archive(arc, batch_id, anchor=anchor)
+            return verify_archive(arc, batch_id, anchor=anchor, shared_only=shared_only)
         finally:
             arc.close()
     if batch_id is not None:
@@ -109,7 +116,7 @@ def verify_archive(
             archive.batch(batch_id)
         except (IndexDamaged, IndexBusy):
             pass  # named by the checks
-    ctx = Context(archive, batch_id)
+    ctx = Context(archive, batch_id, shared_only=shared_only)
     _run_checks(ctx)
     if anchor is not None:
         _check_anchor(ctx, anchor)

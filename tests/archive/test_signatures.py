@@ -94,6 +94,17 @@ def test_sign_refuses_a_tampered_index(unsigned):
         assert a.signoffs(BATCH) == []
 
 
+def test_sign_refuses_a_changed_report_file_of_the_batch(unsigned):
+    root, keys = unsigned
+    with arc.Archive(root) as a:
+        path = a.object_path(a.batch(BATCH).report_sha256)
+    os.chmod(path, 0o644)
+    path.write_bytes(b"%PDF another report")
+    with arc.Archive(root) as a:
+        with pytest.raises(InputError, match=r"signing refused: .*stored file objects/.* \(batch report of batch"):
+            signatures.sign_batch(a, BATCH, keys.person, meaning="released", render_edition=render)
+
+
 def test_old_meanings_are_refused_and_new_ones_share_no_verdict_word(unsigned):
     root, keys = unsigned
     verdict_words = {"accept", "reject", "review", "pass", "fail", "no-texture", "no", "texture"}
