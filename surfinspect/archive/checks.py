@@ -66,6 +66,11 @@ class Context:
         return isinstance(n, int) and (n == 0 and head == GENESIS_SHA256 or self.event_sha.get(n) == head)
 
 
+def _short(value: object, limit: int = 80) -> str:
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
 def _key_text(table: str, key: tuple) -> str:
     names = next(t for t in TABLES if t.name == table).primary_key
     return f"{table} row ({', '.join(f'{n}={v!r}' for n, v in zip(names, key))})"
@@ -211,8 +216,8 @@ def check_rows_against_trail(ctx: Context) -> None:
             for column in table.column_names:
                 if actual[key][column] != replayed.row[column]:
                     ctx.fail(
-                        f"{what}: {column} is {actual[key][column]!r} in the index, audit event {replayed.seq} "
-                        f"recorded {replayed.row[column]!r}"
+                        f"{what}: {column} is {_short(actual[key][column])} in the index, audit event {replayed.seq} "
+                        f"recorded {_short(replayed.row[column])}"
                     )
 
 

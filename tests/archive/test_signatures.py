@@ -185,6 +185,23 @@ def test_keygen_asks_twice_on_a_terminal(tmp_path, monkeypatch):
     assert signing.load_signing_key(tmp_path / "k.key", passphrase=b"same").fingerprint
 
 
+def test_a_protected_key_is_opened_with_a_no_echo_prompt_on_a_terminal(tmp_path, monkeypatch):
+    import getpass
+
+    from surfinspect.cli import _keys
+
+    path = tmp_path / "k.key"
+    key = signing.write_key_pair(path, "", passphrase=b"grain")
+    prompts = []
+    monkeypatch.setattr(getpass, "getpass", lambda prompt="": prompts.append(prompt) or "grain")
+    monkeypatch.setattr(_keys, "_terminal", lambda: False)
+    with pytest.raises(InputError, match="passphrase-protected and no terminal is attached; give --passphrase-env"):
+        _keys.open_key(str(path), None, "--key")
+    monkeypatch.setattr(_keys, "_terminal", lambda: True)
+    assert _keys.open_key(str(path), None, "--key").fingerprint == key.fingerprint
+    assert prompts == [f"passphrase for {path}: "]
+
+
 def test_register_commands_and_sign_refusals(tmp_path, monkeypatch, capsys):
     recipe = tmp_path / "r.yaml"
     recipe.write_text(RECIPE_TEXT)

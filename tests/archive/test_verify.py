@@ -364,6 +364,27 @@ def test_dropped_table_is_a_finding(archive, capsys):
     assert "Traceback" not in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("command", ["show", "sign", "disposition"])
+def test_other_commands_on_a_dropped_table_exit_2_in_one_line(archive, tmp_path, capsys, command):
+    sql(archive, "DROP TABLE parts")
+    key = tmp_path / "k.key"
+    signing.write_key_pair(key, "", passphrase=None)
+    argv = {
+        "show": ["show", "--archive", str(archive), "--batch-id", BATCH],
+        "sign": ["sign", "--archive", str(archive), "--batch-id", BATCH, "--key", str(key), "--meaning", "released"],
+        "disposition": [
+            *("disposition", "--archive", str(archive), "--batch-id", BATCH, "--part", PARTS[1]),
+            *("--decision", "scrap", "--key", str(key)),
+        ],
+    }[command]
+    capsys.readouterr()
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("surfinspect: error: ") and err.count("\n") == 1, err
+    if command == "show":
+        assert "no such table: parts" in err
+
+
 def test_dropped_meta_table_is_a_finding(archive):
     sql(archive, "DROP TABLE meta")
     problems = _verify(archive).problems
