@@ -5,8 +5,8 @@ no report, no station).
 Modules, one concern each: ``schema`` (tables and row types), ``backend`` (the index interface),
 ``sqlite_backend`` (SQLite behind it), ``objects`` (files by content hash), ``chain`` (canonical
 serialisation, event hashes, row replay), ``register`` (who may sign), ``records`` (plain records and ids), ``store`` (the Archive),
-``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``checks`` and
-``verify`` (the verifier and anchors).
+``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``checks``, ``signed_checks``
+and ``verify`` (the verifier and anchors).
 """
 
 from .._lazy import attach
@@ -24,7 +24,6 @@ __getattr__, __dir__, __all__ = attach(
             "load_public_key",
             "public_key_path_for",
             "passphrase_from_env",
-            "canonical_record_bytes",
             "sign_record",
             "verify_record",
         ),

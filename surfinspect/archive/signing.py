@@ -66,7 +66,6 @@ __all__ = [
     "load_public_key",
     "public_key_path_for",
     "passphrase_from_env",
-    "canonical_record_bytes",
     "sign_record",
     "verify_record",
 ]
@@ -75,9 +74,6 @@ PRIVATE_KEY_FORMAT = "surfinspect.signing-key/1"
 PUBLIC_KEY_FORMAT = "surfinspect.public-key/1"
 
 _RAW = serialization.Encoding.Raw, serialization.PublicFormat.Raw
-
-#: The one byte string a record is signed as (see :func:`.chain.canonical_bytes`).
-canonical_record_bytes = canonical_bytes
 
 Passphrase = bytes | Callable[[], bytes] | None
 

@@ -26,18 +26,32 @@ import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
+from . import checks, signed_checks
 from .backend import IndexBusy, IndexDamaged
-from .checks import CHECKS, Context
+from .checks import Context
 from .sqlite_backend import INDEX_NAME
 from .store import Archive, utc_now
 
-__all__ = ["ANCHOR_FORMAT", "VerifyReport", "verify", "verify_archive", "export_anchor", "read_anchor"]
+__all__ = ["ANCHOR_FORMAT", "CHECKS", "VerifyReport", "verify", "verify_archive", "export_anchor", "read_anchor"]
 
 ANCHOR_FORMAT = "surfinspect.anchor/1"
+
+#: The checks in the order they run (and their findings are listed).
+CHECKS: tuple[tuple[str, Callable[[Context], None]], ...] = (
+    ("index structure", checks.check_index_structure),
+    ("audit chain", checks.check_chain),
+    ("index rows against the audit trail", checks.check_rows_against_trail),
+    ("signer register", signed_checks.check_register),
+    ("signed chain heads", signed_checks.check_signed_heads),
+    ("stored files", checks.check_files),
+    ("results against the index", checks.check_results),
+    ("sign-offs", signed_checks.check_signoffs),
+    ("dispositions", signed_checks.check_dispositions),
+)
 
 
 @dataclass

@@ -2,7 +2,7 @@
 
 Exit code: 1 when any part is rejected, else 3 when any part needs review, has
 an unreadable image or was not recorded (the batch stopped), else 0; 2 for an
-input error that stops the whole batch (see :mod:`surfinspect.batch`).
+input error that stops the whole batch (see :mod:`surfinspect.station.batch`).
 Stopped by a signal (Ctrl-C, SIGTERM, SIGHUP), the batch ends its worker
 processes and exits with 128 + the signal number, as a shell reports a
 process killed by that signal: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP.

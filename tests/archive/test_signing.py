@@ -9,6 +9,7 @@ import stat
 import pytest
 
 from surfinspect.archive import signing
+from surfinspect.archive.chain import canonical_bytes
 from surfinspect.errors import InputError
 
 # RFC 8032, section 7.1, "TEST 1" (https://doi.org/10.17487/RFC8032): an empty message.
@@ -57,16 +58,16 @@ def _record(key: signing.SigningKey, **changes) -> dict:
 def test_canonical_bytes_are_sorted_compact_utf8_and_order_independent():
     key = signing.SigningKey.generate()
     record = _record(key)
-    data = signing.canonical_record_bytes(record)
+    data = canonical_bytes(record)
     reordered = dict(reversed(list(record.items())))
-    assert signing.canonical_record_bytes(reordered) == data
+    assert canonical_bytes(reordered) == data
     # compared with the standard library's own compact, sorted form
     assert data == json.dumps(record, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode("utf-8")
     # worked by hand: keys sorted at every level, no blanks between tokens, non-ASCII as UTF-8
     nested = {"b": 1, "a": "\u00e9", "c": {"y": [1, 2], "x": "z"}}
-    assert signing.canonical_record_bytes(nested) == b'{"a":"\xc3\xa9","b":1,"c":{"x":"z","y":[1,2]}}'
+    assert canonical_bytes(nested) == b'{"a":"\xc3\xa9","b":1,"c":{"x":"z","y":[1,2]}}'
     with pytest.raises(ValueError, match="only strings, integers"):
-        signing.canonical_record_bytes({**record, "x": 0.1})
+        canonical_bytes({**record, "x": 0.1})
 
 
 def test_record_signature_binds_every_field():
