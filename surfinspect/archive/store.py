@@ -519,7 +519,7 @@ class Archive:
     ) -> None:
         """Store a register entry the owner signed, and the owner's signature over the new chain head."""
         with self._write():
-            self._require_head(expected_head)
+            self._require_head(expected_head, exact=True)
             self.index.insert("register", row.__dict__)
             self._append_event(
                 EventKind.REGISTER_ENTRY, None, None, {"entry_no": row.entry_no}, [("register", row.__dict__)]
@@ -535,6 +535,7 @@ class Archive:
             raise ValueError("the signed report edition is not the one named in the sign-off row")
         with self._write():
             self._require_head(expected_head)
+            self._require_number("signatures", {"batch_id": row.batch_id}, "signoff_no", row.signoff_no)
             self.register().require_signer(key.fingerprint, utc_now(), "--key", station_allowed=False)
             rows = self._catalogue(edition_sha, len(signed_report_pdf), "application/pdf")
             self.index.insert("signatures", row.__dict__)
@@ -546,6 +547,8 @@ class Archive:
     def add_disposition(self, row: DispositionRow, *, key: signing.SigningKey, expected_head: tuple[int, str]) -> None:
         with self._write():
             self._require_head(expected_head)
+            where = {"batch_id": row.batch_id, "part_key": row.part_key}
+            self._require_number("dispositions", where, "disposition_no", row.disposition_no)
             self.register().require_signer(key.fingerprint, utc_now(), "--key", station_allowed=False)
             self.index.insert("dispositions", row.__dict__)
             self._append_event(
@@ -557,10 +560,29 @@ class Archive:
             )
             self._sign_head(key)
 
-    def _require_head(self, expected: tuple[int, str]) -> None:
-        if self.chain_head() != tuple(expected):
+    def _require_head(self, expected: tuple[int, str], *, exact: bool = False) -> None:
+        """The head a record names must still be in the trail (``exact``: must still be the head).
+
+        A sign-off binds the head at the moment it was signed; parts recorded by a running batch
+        meanwhile do not change what it covers, a rewritten history does.
+        """
+        n, sha = expected
+        found = self.chain_head() if exact else (n, self._event_sha(n))
+        if found != (n, sha):
             raise InputError(
                 f"{self.root}: the archive changed while the record was being signed; run the command again"
+            )
+
+    def _event_sha(self, seq: int) -> str | None:
+        if seq == 0:
+            return GENESIS_SHA256
+        rows = self.index.select("events", {"seq": seq}, columns=("sha256",))
+        return rows[0]["sha256"] if rows else None
+
+    def _require_number(self, table: str, where: Mapping[str, Any], column: str, number: int) -> None:
+        if (self.index.max_value(table, column, where) or 0) + 1 != number:
+            raise InputError(
+                f"{self.root}: another {column.replace('_', ' ')} was stored meanwhile; run the command again"
             )
 
     def record_verification(self, batch_id: str | None, problems: Sequence[str]) -> int:

@@ -291,3 +291,30 @@ def test_batch_with_a_station_key_signs_its_close(tmp_path, monkeypatch):
     fill_batch(root, "B1", write_images(tmp_path / "in", PARTS), recipe, station_key=keys.station)
     report = verify_archive(root)
     assert report.problems == [] and not any("without a station key" in w for w in report.warnings)
+
+
+def test_a_signoff_survives_parts_recorded_meanwhile_but_not_a_rewritten_history(unsigned, tmp_path):
+    """Signing takes seconds (verify, the PDF); a running batch records parts meanwhile into the same archive."""
+    root, keys = unsigned
+    recipe = tmp_path / "r2.yaml"
+    recipe.write_text(RECIPE_TEXT)
+    images = write_images(tmp_path / "in2", ["Q1.png", "Q2.png", "Q3.png"], seed=3)
+
+    def render_while_a_batch_runs(signoff):
+        fill_batch(root, "B2", images, recipe, finish=False)
+        return render(signoff)
+
+    with arc.Archive(root) as a:
+        row = signatures.sign_batch(a, BATCH, keys.person, meaning="released", render_edition=render_while_a_batch_runs)
+    assert row.signoff_no == 1 and verify_archive(root).problems == []
+
+    def render_while_history_is_rewritten(signoff):
+        sql(root, "UPDATE events SET sha256 = '0' || substr(sha256, 2) WHERE seq = ?", (signoff.chain_head.split()[0],))
+        return render(signoff)
+
+    with arc.Archive(root) as a:
+        with pytest.raises(InputError, match="the archive changed while the record was being signed"):
+            signatures.sign_batch(
+                a, BATCH, keys.person, meaning="released", render_edition=render_while_history_is_rewritten
+            )
+        assert len(a.signoffs(BATCH)) == 1
