@@ -105,6 +105,10 @@ def check_index_structure(ctx: Context) -> None:
             ctx.fail(f"index: table {table.name!r} has column(s) no archive writes: {', '.join(extra)}")
         if not missing:
             ctx.usable.add(table.name)
+    known = {t.name for t in TABLES}
+    for name in sorted(set(found) - known):
+        if not name.startswith("sqlite_"):  # the database's own bookkeeping tables
+            ctx.fail(f"index: table {name!r} is not one an archive writes (added, or a table renamed)")
 
 
 def _original_position(e: EventRow, window: int = 64) -> int | None:

@@ -385,6 +385,22 @@ def test_other_commands_on_a_dropped_table_exit_2_in_one_line(archive, tmp_path,
         assert "no such table: parts" in err
 
 
+@pytest.mark.parametrize(
+    "statement, says",
+    [
+        ("ALTER TABLE regions DROP COLUMN coherence", "index: table 'regions' lacks column(s) coherence"),
+        (
+            "ALTER TABLE signatures RENAME TO signatures_old",
+            "index: table 'signatures_old' is not one an archive writes",
+        ),
+        ("ALTER TABLE files ADD COLUMN note TEXT", "index: table 'files' has column(s) no archive writes: note"),
+    ],
+)
+def test_changed_table_structure_is_a_finding(archive, statement, says):
+    sql(archive, statement)
+    assert any(p.startswith(says) for p in _verify(archive).problems)
+
+
 def test_dropped_meta_table_is_a_finding(archive):
     sql(archive, "DROP TABLE meta")
     problems = _verify(archive).problems
