@@ -33,7 +33,7 @@ from ..fsutil import write_text_atomic
 from . import checks, signed_checks
 from .backend import IndexBusy, IndexDamaged
 from .checks import Context
-from .sqlite_backend import INDEX_NAME
+from .sqlite_backend import INDEX_NAME, SQLiteBackend
 from .store import Archive, utc_now
 
 __all__ = ["ANCHOR_FORMAT", "CHECKS", "VerifyReport", "verify", "verify_archive", "export_anchor", "read_anchor"]
@@ -94,6 +94,21 @@ def _check_anchor(ctx: Context, anchor: dict[str, Any]) -> None:
         ctx.fail(f"anchor: audit event {n} is not the one anchored: the history up to it was rewritten or re-chained")
 
 
+def _unreadable_reason(root: Path, exc: InputError) -> str:
+    """Why the index cannot be opened, in the database's own words where it has some."""
+    try:
+        backend = SQLiteBackend(root)
+    except IndexDamaged as damaged:
+        return f"{INDEX_NAME} cannot be opened ({damaged})"
+    try:
+        problems = backend.integrity_problems()
+    finally:
+        backend.close()
+    if problems:
+        return f"{INDEX_NAME} is damaged ({problems[0]})"
+    return str(exc)
+
+
 def verify_archive(
     archive: Archive | str | os.PathLike,
     batch_id: str | None = None,
@@ -119,7 +134,7 @@ def verify_archive(
         except InputError as exc:
             index = root / INDEX_NAME
             if index.is_file() and index.stat().st_size > 0:
-                return VerifyReport([f"index: it cannot be read as an archive index ({exc})"])
+                return VerifyReport([f"index: {_unreadable_reason(root, exc)}; nothing recorded in it can be checked"])
             raise
         try:
             return verify_archive(arc, batch_id, anchor=anchor, shared_only=shared_only)
