@@ -31,6 +31,20 @@ def test_rfc8032_test_vector_1_through_project_functions():
     assert not signing.verify_signature(bytes.fromhex(RFC8032_PUBLIC_KEY), b"\x00", bytes.fromhex(RFC8032_SIGNATURE))
 
 
+def test_rfc8032_test_vector_2_one_byte_message():
+    # RFC 8032, section 7.1, "TEST 2" (https://doi.org/10.17487/RFC8032): the message is the one byte 0x72
+    key = signing.SigningKey.from_secret_bytes(
+        bytes.fromhex("4ccd089b28ff96da9db6c346ec114e0f5b8a319f35aba624da8cf6ed4fb8a6fb")
+    )
+    assert key.public_key_raw.hex() == "3d4017c3e843895a92b70aa74d1b7ebc9c982ccf2ec4968cc0cd55f12af4660c"
+    expected = (
+        "92a009a9f0d4cab8720e820b5f642540a2b27b5416503f8fb3762223ebdb69da"
+        "085ac1e43e15996e458f3613d0f11d8c387b2eaeb4302aeeb00d291612bb0c00"
+    )
+    assert key.sign(b"\x72").hex() == expected
+    assert signing.verify_signature(key.public_key_raw, b"\x72", bytes.fromhex(expected))
+
+
 def test_fingerprint_is_sha256_of_raw_public_key():
     import hashlib  # reference: the plain SHA-256 of the 32 key bytes
 
