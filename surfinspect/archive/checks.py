@@ -22,6 +22,7 @@ __all__ = [
     "Context",
     "details_of",
     "short",
+    "check_event",
     "check_index_structure",
     "check_chain",
     "check_rows_against_trail",
@@ -123,7 +124,7 @@ def _original_position(e: EventRow, window: int = 64) -> int | None:
     return None
 
 
-def _check_event(ctx: Context, e: EventRow, expected_seq: int, prev_sha: str, prev_seq: int) -> None:
+def check_event(ctx: Context, e: EventRow, expected_seq: int, prev_sha: str, prev_seq: int) -> None:
     if e.seq != expected_seq:
         where = f"jumps from event {expected_seq - 1} to" if expected_seq > 1 else "starts at"
         ctx.fail(f"audit trail: event(s) {expected_seq}–{e.seq - 1} are missing (the trail {where} event {e.seq})")
@@ -153,7 +154,7 @@ def check_chain(ctx: Context) -> None:
     ctx.events = ctx.archive.events()
     expected_seq, prev_sha, prev_seq, prev_time = 1, GENESIS_SHA256, 0, None
     for e in ctx.events:
-        _check_event(ctx, e, expected_seq, prev_sha, prev_seq)
+        check_event(ctx, e, expected_seq, prev_sha, prev_seq)
         when = parse_utc(e.recorded_at)
         if when is None:
             ctx.fail(f"audit trail: event {e.seq} ({e.kind}) has no real UTC time ({e.recorded_at!r})")

@@ -30,7 +30,7 @@ from typing import Any, Callable
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
-from . import checks, signed_checks
+from . import checks, legacy_v1, signed_checks
 from .backend import IndexBusy, IndexDamaged
 from .checks import Context
 from .sqlite_backend import INDEX_NAME, SQLiteBackend
@@ -129,6 +129,10 @@ def verify_archive(
     """
     if not isinstance(archive, Archive):
         root = Path(archive)
+        if legacy_v1.format_of(root) == legacy_v1.FORMAT_1:
+            if anchor is not None:
+                raise InputError("--anchor: anchors are kept for archives of the current format only")
+            return VerifyReport(*legacy_v1.verify_format_1(root, batch_id))
         try:
             arc = Archive(root)
         except InputError as exc:

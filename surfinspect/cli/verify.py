@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 
+from ..archive import legacy_v1
 from ..archive import store as archive
 from ..archive import verify as verifier
 from ..archive.backend import IndexBusy, IndexDamaged
@@ -37,22 +38,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     anchor = verifier.read_anchor(args.anchor) if args.anchor else None
+    first_format = legacy_v1.format_of(args.archive) == legacy_v1.FORMAT_1
     if args.export_anchor:
+        if first_format:
+            raise InputError("--export-anchor: anchors are kept for archives of the current format only")
         check_output_file("--export-anchor", args.export_anchor)
     report = verifier.verify_archive(args.archive, args.batch_id, anchor=anchor)
     problems = report.problems + (report.warnings if args.strict else [])
-    events = head = owner = None
-    try:
-        with archive.Archive(args.archive) as arc:
-            arc.record_verification(args.batch_id, problems)
-            events, head = arc.chain_head()
-            owner = arc.register().owner
-            if args.export_anchor and not problems:
-                verifier.export_anchor(arc, args.export_anchor)
-    except IndexBusy as exc:  # a read-only copy of an archive can still be checked
-        console.warn(f"{args.archive}: the check was not recorded in the audit trail ({exc})")
-    except (IndexDamaged, InputError) as exc:
-        console.warn(f"{args.archive}: the check was not recorded in the audit trail ({exc})")
+    # an archive of the first format is only read: nothing is written into it
+    trail = "first format, read only" if first_format else _record(args, problems, console)
     for text in report.warnings:
         console.warn(text)
     scope = f"batch {args.batch_id!r}" if args.batch_id else "every batch"
@@ -63,11 +57,24 @@ def run(args: argparse.Namespace, console: Console) -> int:
         if args.export_anchor:
             console.info(f"no anchor written to {args.export_anchor}: the archive does not verify")
         return 1
-    console.info(f"archive {args.archive}: intact ({scope}; audit trail of {events} events, head {head})")
-    if owner is not None:  # a rewritten archive would have to name another owner key: compare it with yours
-        console.info(f"owner: {owner.printed_name}, key {owner.key_fingerprint}")
-    else:
-        console.info("owner: none yet (nothing in this archive is signed; see `surfinspect owner init`)")
+    console.info(f"archive {args.archive}: intact ({scope}; {trail})")
     if args.export_anchor:
         console.info(f"anchor written to {args.export_anchor}: keep it outside the archive; check with --anchor")
     return 0
+
+
+def _record(args: argparse.Namespace, problems: list[str], console: Console) -> str:
+    """Record the check in the audit trail, write the anchor when asked, and say who owns the archive."""
+    try:
+        with archive.Archive(args.archive) as arc:
+            arc.record_verification(args.batch_id, problems)
+            events, head = arc.chain_head()
+            owner = arc.register().owner
+            if args.export_anchor and not problems:
+                verifier.export_anchor(arc, args.export_anchor)
+    except (IndexBusy, IndexDamaged, InputError) as exc:  # a read-only copy of an archive can still be checked
+        console.warn(f"{args.archive}: the check was not recorded in the audit trail ({exc})")
+        return "the check was not recorded"
+    # a rewritten archive would have to name another owner key: compare it with the one you know
+    who = f"owner {owner.printed_name}, key {owner.key_fingerprint}" if owner else "no owner yet, nothing signed"
+    return f"audit trail of {events} events, head {head}; {who}"
