@@ -91,6 +91,7 @@ class SigningKey:
 
     private_key: Ed25519PrivateKey
     label: str = ""
+    protected: bool = False  # read from a passphrase-protected key file
 
     @classmethod
     def generate(cls, label: str = "") -> "SigningKey":
@@ -255,7 +256,7 @@ def load_signing_key(key_path: str | os.PathLike, *, passphrase: Passphrase = No
         raise InputError(f"{path}: private_key_pem: cannot be read (wrong passphrase or damaged file: {exc})") from None
     if not isinstance(private, Ed25519PrivateKey):
         raise InputError(f"{path}: private_key_pem: not an Ed25519 key (got {type(private).__name__})")
-    key = SigningKey(private, _fold(doc.get("signer_name", "")))
+    key = SigningKey(private, _fold(doc.get("signer_name", "")), bool(doc.get("passphrase_protected")))
     if doc.get("key_fingerprint") != key.fingerprint:
         raise InputError(f"{path}: key_fingerprint: does not match the key in the file (the file was altered)")
     return key

@@ -25,6 +25,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
     with archive.Archive(args.archive) as arc:
         arc.part(args.batch_id, args.part)  # an unknown batch or part is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
+        if not key.protected:
+            console.warn(f"{args.key}: a person's key without a passphrase; anyone who copies the file can sign")
         row = signatures.record_disposition(
             arc, args.batch_id, args.part, key, decision=args.decision, comment=args.comment
         )

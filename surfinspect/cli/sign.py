@@ -45,6 +45,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
     with archive.Archive(args.archive) as arc:
         arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
+        if not key.protected:
+            console.warn(f"{args.key}: a person's key without a passphrase; anyone who copies the file can sign")
         row = signatures.sign_batch(
             arc,
             args.batch_id,
