@@ -51,7 +51,7 @@ def format_of(root: str | Path) -> str | None:
             row = db.execute("SELECT value FROM meta WHERE key = 'format'").fetchone()
         finally:
             db.close()
-    except sqlite3.DatabaseError:
+    except (sqlite3.DatabaseError, UnicodeDecodeError):
         return None
     return row[0] if row else None
 
@@ -228,7 +228,7 @@ def verify_format_1(root: str | Path, batch_id: str | None = None) -> tuple[list
             _check_trail(ctx, events, batch, parts, signoffs)
             _check_results(ctx, reader, batch, parts)
             _check_signoffs(ctx, batch, parts, signoffs)
-    except (sqlite3.DatabaseError, KeyError, ValueError, TypeError) as exc:
+    except (sqlite3.DatabaseError, KeyError, ValueError, TypeError) as exc:  # UnicodeDecodeError is a ValueError
         ctx.fail(f"index: the first-format archive cannot be read through ({type(exc).__name__}: {exc})")
     finally:
         reader.db.close()

@@ -68,6 +68,8 @@ def _translated() -> Iterator[None]:
         raise IndexDamaged(text) from None
     except sqlite3.DatabaseError as exc:  # malformed image, not a database, constraint broken by hand
         raise IndexDamaged(str(exc)) from None
+    except UnicodeDecodeError as exc:  # a text value whose bytes were damaged
+        raise IndexDamaged(f"a text value is not UTF-8 ({exc.reason} at byte {exc.start})") from None
 
 
 class SQLiteBackend(IndexBackend):
@@ -158,10 +160,9 @@ class SQLiteBackend(IndexBackend):
     def integrity_problems(self) -> list[str]:
         try:
             rows = self._db.execute("PRAGMA integrity_check").fetchall()
-        except sqlite3.DatabaseError as exc:
+        except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
             return [str(exc)]
-        problems = [r[0] for r in rows if r[0] != "ok"]
-        return problems
+        return [r[0] for r in rows if r[0] != "ok"]
 
     def close(self) -> None:
         self._db.close()
