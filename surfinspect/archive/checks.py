@@ -13,9 +13,9 @@ from dataclasses import dataclass, field
 
 from . import chain
 from .chain import GENESIS_SHA256, EventKind
+from .records import CLOCK_ALLOWANCE_S, parse_utc
 from .register import Register
 from .schema import CHAINED_TABLES, TABLES, BatchRow, EventRow
-from .signatures import CLOCK_ALLOWANCE_S, parse_utc
 from .store import ERROR_SCHEMA, ERROR_VERDICT, Archive, index_rows_of
 
 __all__ = [

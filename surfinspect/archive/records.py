@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import json
-from datetime import datetime, timezone
+from datetime import datetime, timedelta, timezone
 from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
@@ -21,6 +21,9 @@ __all__ = [
     "check_batch_id",
     "verdict_counts",
     "index_rows_of",
+    "CLOCK_ALLOWANCE_S",
+    "parse_utc",
+    "time_problem",
 ]
 
 #: Schema of the record stored for a part whose image could not be inspected.
@@ -91,3 +94,36 @@ def index_rows_of(result: Mapping[str, Any]) -> tuple[str, str | None, list[dict
         for r in result["regions"]
     ]
     return result["verdict"], None, regions
+
+
+#: How far a recorded time may lie ahead of the clock that checks it (clocks of two machines differ).
+CLOCK_ALLOWANCE_S = 300.0
+
+
+def parse_utc(text: object) -> datetime | None:
+    """A time written as ISO 8601 UTC with a ``Z`` (``2031-04-02T10:30:00.123Z``); None when it is not one."""
+    if not isinstance(text, str) or not text.endswith("Z") or len(text) < 20 or text[10] != "T":
+        return None
+    try:
+        value = datetime.fromisoformat(text[:-1] + "+00:00")
+    except ValueError:
+        return None
+    return value if value.utcoffset() == timedelta(0) else None
+
+
+def time_problem(at_utc: object, *, not_before: str | None, not_after: str | None = None) -> str | None:
+    """What is wrong with a signed time, in words (None when it holds).
+
+    It must be a real UTC time, not before ``not_before`` (the batch's close)
+    and not later than ``not_after`` (or now) by more than the clock allowance.
+    """
+    when = parse_utc(at_utc)
+    if when is None:
+        return f"{at_utc!r} is not a UTC time (allowed: ISO 8601 ending in Z)"
+    earliest = parse_utc(not_before) if not_before else None
+    if earliest is not None and when < earliest:
+        return f"{at_utc} is before {not_before}, when the batch was finished"
+    latest = parse_utc(not_after) if not_after else datetime.now(timezone.utc)
+    if latest is not None and when > latest + timedelta(seconds=CLOCK_ALLOWANCE_S):
+        return f"{at_utc} lies in the future (more than {CLOCK_ALLOWANCE_S:.0f} s after {not_after or 'now'})"
+    return None

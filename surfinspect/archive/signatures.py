@@ -24,12 +24,13 @@ release decision). Dispositions of a doubtful part: ``use-as-is``,
 
 from __future__ import annotations
 
-from datetime import datetime, timedelta, timezone
 from typing import Callable
 
 from ..errors import InputError
+from ..fsutil import sha256_bytes
 from ..results import SIGNOFF_MEANINGS, SignOff
 from . import chain, signing
+from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 from .register import OWNER_ROLE, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
 from .store import ERROR_VERDICT, Archive, utc_now
@@ -53,37 +54,6 @@ MEANINGS = SIGNOFF_MEANINGS
 DECISIONS = ("use-as-is", "rework", "scrap", "re-inspect")
 SIGNOFF_FORMAT = "surfinspect.signoff-record/2"
 DISPOSITION_FORMAT = "surfinspect.disposition-record/1"
-#: How far a recorded time may lie ahead of the clock that checks it (clocks of two machines differ).
-CLOCK_ALLOWANCE_S = 300.0
-
-
-def parse_utc(text: object) -> datetime | None:
-    """A time written as ISO 8601 UTC with a ``Z`` (``2031-04-02T10:30:00.123Z``); None when it is not one."""
-    if not isinstance(text, str) or not text.endswith("Z") or len(text) < 20 or text[10] != "T":
-        return None
-    try:
-        value = datetime.fromisoformat(text[:-1] + "+00:00")
-    except ValueError:
-        return None
-    return value if value.utcoffset() == timedelta(0) else None
-
-
-def time_problem(at_utc: object, *, not_before: str | None, not_after: str | None = None) -> str | None:
-    """What is wrong with a signed time, in words (None when it holds).
-
-    It must be a real UTC time, not before ``not_before`` (the batch's close)
-    and not later than ``not_after`` (or now) by more than the clock allowance.
-    """
-    when = parse_utc(at_utc)
-    if when is None:
-        return f"{at_utc!r} is not a UTC time (allowed: ISO 8601 ending in Z)"
-    earliest = parse_utc(not_before) if not_before else None
-    if earliest is not None and when < earliest:
-        return f"{at_utc} is before {not_before}, when the batch was finished"
-    latest = parse_utc(not_after) if not_after else datetime.now(timezone.utc)
-    if latest is not None and when > latest + timedelta(seconds=CLOCK_ALLOWANCE_S):
-        return f"{at_utc} lies in the future (more than {CLOCK_ALLOWANCE_S:.0f} s after {not_after or 'now'})"
-    return None
 
 
 def _require_intact(archive: Archive, what: str, batch_id: str | None = None) -> None:
@@ -298,7 +268,7 @@ def sign_batch(
         record_json=record_bytes.decode("utf-8"),
         record_sha256=signoff.record_sha256,
         signature_hex=signature.hex(),
-        signed_report_sha256=chain.sha256_bytes(edition),
+        signed_report_sha256=sha256_bytes(edition),
     )
     return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
 

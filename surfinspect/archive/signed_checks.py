@@ -13,8 +13,8 @@ from typing import Any
 from . import chain, signing
 from .chain import EventKind
 from .checks import Context, details_of
+from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 from .schema import RegisterRow
-from .signatures import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 
 __all__ = ["check_register", "check_signed_heads", "check_signoffs", "check_dispositions"]
 
