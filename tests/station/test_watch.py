@@ -25,6 +25,7 @@ from pathlib import Path
 import pytest
 
 from surfinspect.archive import store as arc
+from surfinspect.archive.verify import verify
 from surfinspect.cli import main
 from surfinspect.errors import InputError
 from surfinspect.station import batch, spool, watch
@@ -294,7 +295,7 @@ def test_killed_station_restarts_without_losing_or_repeating_a_part(tmp_path, st
     again = [line["part"] for line in second.lines]
     assert len(again) == len(set(again)) and set(again) == set(keys) - recorded_before
     assert {line["part"] for line in first.lines} >= recorded_before
-    assert arc.verify(archive) == []
+    assert verify(archive) == []
 
 
 def _in_process(tmp_path, **changes) -> tuple[watch.Station, list, list]:
@@ -379,7 +380,7 @@ def test_full_disk_stops_the_station_with_exit_2_and_keeps_every_recorded_part(t
     assert main(["watch", *args, "--stop-after", "4"]) == 1
     with arc.Archive(tmp_path / "archive") as a:
         assert sorted(p.part_key for p in a.parts("LINE-4")) == sorted(n for n, _ in _parts_plan(4))
-    assert arc.verify(tmp_path / "archive") == []
+    assert verify(tmp_path / "archive") == []
 
 
 def _recipe_sha() -> str:
@@ -425,7 +426,7 @@ def test_close_cut_short_is_finished_by_the_next_run(tmp_path, monkeypatch):
     outcome = _run_bounded(again)
     assert outcome.closed and "interrupted" in outcome.why_closed and judged_again == []
     assert sorted(p.part_key for p in outcome.parts) == sorted(n for n, _ in _parts_plan(2))
-    assert arc.verify(tmp_path / "archive") == []
+    assert verify(tmp_path / "archive") == []
 
 
 def test_endpoint_in_use_is_an_input_error_and_leaves_no_server(tmp_path):
