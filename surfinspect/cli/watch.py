@@ -16,6 +16,7 @@ import shlex
 import signal
 
 from ..station import watch
+from ._keys import add_key_arguments, open_key
 from .batch import batch_fields, on_stop_signals
 from .console import Console
 
@@ -47,6 +48,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         f"(default {watch.DEFAULT_SETTLE_S:g} s)",
     )
     parser.add_argument("--poll", action="store_true", help="poll the folder instead of inotify (network shares)")
+    add_key_arguments(
+        parser,
+        "--station-key",
+        "the station's private key (enrolled with role station): signs the chain head when the batch closes",
+        required=False,
+    )
 
 
 def _status_text(batch_id: str, status: watch.StationStatus) -> str:
@@ -67,6 +74,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         idle_timeout_s=args.idle_timeout,
         settle_s=args.settle,
         poll=args.poll,
+        station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
 
     def judged(part: watch.JudgedPart, status: watch.StationStatus) -> None:

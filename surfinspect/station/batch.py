@@ -57,6 +57,7 @@ __all__ = [
     "discover_images",
     "run_batch",
     "open_batch",
+    "check_station_key",
     "archive_inspected",
     "batch_exit_code",
     "regions_csv",
@@ -262,10 +263,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
-        if config.station_key is not None:  # refused before any work, not at the close
-            arc.register().require_signer(
-                config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
-            )
+        check_station_key(arc, config.station_key)
         hashed = {key: _hash_file(path) for key, path in images}
         plan = open_batch(arc, config.batch_id, recipe, [(key, hashed[key][0]) for key, _ in images], config.operator)
         recorder = _Recorder(arc, config.batch_id, dict(images), {k: h for k, (h, _) in hashed.items()}, plan, on_part)
@@ -296,6 +294,14 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     )
 
 
+def check_station_key(arc: archive_mod.Archive, station_key: SigningKey | None) -> None:
+    """Refuse, before any work, a station key the archive's register does not let sign a batch close."""
+    if station_key is not None:
+        arc.register().require_signer(
+            station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
+        )
+
+
 def open_batch(
     arc: archive_mod.Archive,
     batch_id: str,
@@ -323,6 +329,7 @@ def archive_inspected(
     outputs: Iterable[dict],
     *,
     operator: str | None = None,
+    station_key: SigningKey | None = None,
 ) -> archive_mod.BatchRow:
     """Record parts inspected elsewhere (by ``watch``) exactly as ``batch`` records its own, then close the batch.
 
@@ -330,8 +337,8 @@ def archive_inspected(
     order; ``outputs`` yields one worker output per part as
     :func:`_inspect_one` returns it (``result_json`` and ``overlay_png``, or
     ``error``). Parts already recorded by an earlier, interrupted close are
-    skipped; the batch report and CSV are written as at the end of
-    :func:`run_batch`.
+    skipped; the batch report and CSV are written (and the close signed with
+    ``station_key``) as at the end of :func:`run_batch`.
     """
     plan = open_batch(arc, batch_id, recipe, [(key, sha) for key, _, sha in parts], operator)
     recorder = _Recorder(arc, batch_id, {k: p for k, p, _ in parts}, {k: sha for k, _, sha in parts}, plan, None)
@@ -340,7 +347,7 @@ def archive_inspected(
         if out["part_key"] in pending:
             recorder.worker_output(out)
     batch = arc.batch(batch_id)
-    return batch if batch.is_finished else _finish(arc, batch_id)
+    return batch if batch.is_finished else _finish(arc, batch_id, station_key)
 
 
 class _Recorder:

@@ -34,6 +34,7 @@ from typing import Callable
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import sha256_file
 from ..recipe import Recipe, load_recipe
@@ -66,6 +67,7 @@ class WatchConfig:
     idle_timeout_s: float | None = None  # close after this long without a new part
     settle_s: float = DEFAULT_SETTLE_S
     poll: bool = False  # watchdog's polling observer instead of inotify
+    station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
 
 
 @dataclass(frozen=True)
@@ -205,6 +207,7 @@ class Station:
         if not cfg.folder.is_dir():
             raise InputError(f"{cfg.folder}: not a folder (the folder the camera writes into)")
         with archive_mod.Archive(cfg.archive_dir, create=True) as arc:
+            batch.check_station_key(arc, cfg.station_key)
             existing = arc.find_batch(cfg.batch_id)
             if existing is not None and existing.is_finished:
                 raise InputError(
@@ -467,6 +470,7 @@ class Station:
                 [(p.part_key, spool.image_path(p), p.image_sha256) for p in parts],
                 spool.outputs(),
                 operator=cfg.operator,
+                station_key=cfg.station_key,
             )
             rows = tuple(arc.parts(cfg.batch_id))
         finally:

@@ -25,7 +25,7 @@ from pathlib import Path
 import pytest
 
 from surfinspect.archive import store as arc
-from surfinspect.archive.verify import verify
+from surfinspect.archive.verify import verify, verify_archive
 from surfinspect.cli import main
 from surfinspect.errors import InputError
 from surfinspect.station import batch, spool, watch
@@ -480,3 +480,30 @@ def test_parts_waiting_for_their_record_are_bounded(tmp_path, monkeypatch):
     outcome = _run_bounded(station)
     assert len(outcome.parts) == 10 and len(judged) == 10
     assert max(ahead) <= watch.RECORD_BACKLOG + 1  # the queued records and the verdict just published
+
+
+def test_batch_close_is_signed_with_the_station_key_as_batch_does(tmp_path, capsys):
+    root, folder = tmp_path / "archive", tmp_path / "camera"
+    folder.mkdir()
+    keys = {}
+    for name in ("owner", "station", "stranger"):
+        keys[name] = tmp_path / f"{name}.key"
+        assert main(["-q", "keygen", "--out", str(keys[name]), "--no-passphrase"]) == 0
+    assert (
+        main(["-q", "owner", "init", "--archive", str(root), "--name", "M. QUALITY", "--key", str(keys["owner"])]) == 0
+    )
+    enrol = ["signers", "add", "--archive", str(root), "--pub", f"{keys['station']}.pub", "--name", "LINE 2"]
+    assert main(["-q", *enrol, "--role", "station", "--by", str(keys["owner"])]) == 0
+    shutil.copy(DEMO[0], folder / "one.png")
+    run = ["-q", "watch", str(RECIPE), str(folder), "--archive", str(root), "--stop-after", "1"]
+    capsys.readouterr()
+    assert main([*run, "--batch-id", "W0", "--station-key", str(keys["stranger"])]) == 2
+    assert "--station-key: this key" in capsys.readouterr().err
+    assert not spool.spool_dir(root, "W0").exists()  # refused before anything was judged
+    assert main([*run, "--batch-id", "W1", "--station-key", str(keys["station"])]) == 0
+    with arc.Archive(root) as a:
+        events = a.events()
+    closed = next(e for e in events if e.kind == "report written")
+    assert next(e for e in events if e.seq == closed.seq + 1).kind == "head signed"
+    report = verify_archive(root)
+    assert report.problems == [] and report.warnings == []
