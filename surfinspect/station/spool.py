@@ -145,6 +145,12 @@ class Spool:
                     "overlay_png": (folder / "overlay.png").read_bytes(),
                 }
 
+    def discard(self) -> None:
+        """Remove the journal and its files, once the archive holds the closed batch (they would only double it)."""
+        shutil.rmtree(self.root, ignore_errors=True)
+        with contextlib.suppress(OSError):
+            self.root.parent.rmdir()  # the watch/ folder, when no other batch is open
+
     # -- recording
 
     def stage(self, image: Path) -> Path:

@@ -472,6 +472,7 @@ class Station:
                 operator=cfg.operator,
                 station_key=cfg.station_key,
             )
+            spool.discard()
             rows = tuple(arc.parts(cfg.batch_id))
         finally:
             self._stop_server()

@@ -231,6 +231,7 @@ def test_line_run_publishes_every_part_once_in_order_and_archives_it_as_batch_wo
     assert client.error is None
     assert client.states[0] == "watching" and client.states[-1] == "closing"
     assert rc == 1, err  # the batch holds rejects: the exit code of `batch`
+    assert not (archive / "watch").exists()  # the journal went once the archive held the batch
     lines = station.lines
     # every image judged exactly once, never while incomplete: the hash is the finished file's
     assert sorted(line["part"] for line in lines) == sorted(name for name, _ in plan)
@@ -413,7 +414,7 @@ def test_close_cut_short_is_finished_by_the_next_run(tmp_path, monkeypatch):
         shutil.copy(source, tmp_path / "camera" / name)
     real_finish = batch._finish
 
-    def power_cut(arc_, batch_id):
+    def power_cut(arc_, batch_id, station_key=None):
         raise KeyboardInterrupt  # stands for a kill after the parts went into the archive, before the report
 
     monkeypatch.setattr(batch, "_finish", power_cut)
