@@ -333,12 +333,9 @@ def archive_inspected(
 ) -> archive_mod.BatchRow:
     """Record parts inspected elsewhere (by ``watch``) exactly as ``batch`` records its own, then close the batch.
 
-    ``parts`` are (part key, image file, image SHA-256 or None) in batch
-    order; ``outputs`` yields one worker output per part as
-    :func:`_inspect_one` returns it (``result_json`` and ``overlay_png``, or
-    ``error``). Parts already recorded by an earlier, interrupted close are
-    skipped; the batch report and CSV are written (and the close signed with
-    ``station_key``) as at the end of :func:`run_batch`.
+    ``parts``: (part key, image file, image SHA-256 or None) in batch order; ``outputs``: one output per
+    part as :func:`_inspect_one` returns it. Parts recorded by an interrupted close are skipped; the
+    report and CSV are written (the close signed with ``station_key``) as at the end of :func:`run_batch`.
     """
     plan = open_batch(arc, batch_id, recipe, [(key, sha) for key, _, sha in parts], operator)
     recorder = _Recorder(arc, batch_id, {k: p for k, p, _ in parts}, {k: sha for k, _, sha in parts}, plan, None)
