@@ -118,7 +118,9 @@ def test_a_name_longer_than_a_common_name_may_be_is_kept_whole(pki):
     )
     assert certs.certificate_name(cert) == name
     (cn,) = cert.subject.get_attributes_for_oid(x509.oid.NameOID.COMMON_NAME)
-    assert len(cn.value.encode()) <= 64 and cn.value.endswith("…") and name.startswith(cn.value[:-1])  # RFC 5280 ub-common-name
+    assert (
+        len(cn.value.encode()) <= 64 and cn.value.endswith("…") and name.startswith(cn.value[:-1])
+    )  # RFC 5280 ub-common-name
 
 
 def test_pyhanko_validates_a_signed_edition_intact_chained_to_the_owner_with_name_and_reason(pki):
