@@ -6,9 +6,7 @@ from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
 from ..pdfa.fonts import MONO, SANS, SANS_BOLD, SANS_OBLIQUE
-from ..results import (
-    SignOff,
-)
+from ..results import SIGNOFF_MEANINGS, SignOff
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
 
 _SIGNOFF_LINE = 14.5
@@ -33,6 +31,8 @@ def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
         ("Record SHA-256", signoff.record_sha256 or "—", MONO),
         ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", MONO),
     ]
+    if signoff.chain_head:
+        rows.append(("Audit chain head", f"event {signoff.chain_head}", MONO))
     if comment:
         for k, line in enumerate(simpleSplit(comment, SANS, _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
             rows.append(("Comment" if k == 0 else "", line, SANS))
@@ -72,7 +72,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
             c.setDash([])
             if label == "Meaning":
                 c.setFont(SANS, 6.5)
-                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
+                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, " / ".join(SIGNOFF_MEANINGS))
         else:
             size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
             c.setFont(font, size)
