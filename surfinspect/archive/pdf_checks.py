@@ -154,3 +154,73 @@ def edition_findings(
         problems += p
         warnings += w
     return problems, warnings
+
+
+def check_pdf_signatures(ctx) -> None:
+    """``verify``'s check: the PDF signatures of every signed edition, and the certificates of the register.
+
+    ``ctx`` is the verifier's :class:`.checks.Context`.
+    """
+    from . import pki
+
+    if "signatures" not in ctx.usable or "register" not in ctx.usable:
+        return
+    register = ctx.archive.register()
+    owner_cert = pki.owner_certificate_of(ctx.archive, register)
+    batches = ctx.batches()
+    if owner_cert is None:
+        if any(ctx.archive.signoffs(b.batch_id) for b in batches):
+            ctx.warn(
+                "PDF signatures: the archive's owner has no certificate, so its signed editions carry no PDF "
+                "signature to check (they were signed before PDF signatures were made)"
+            )
+        return
+    _check_certificates(ctx, register, owner_cert)
+    revoked = {
+        fp: Revocation(s.printed_name, s.revoked_at_utc, s.revoked_entry_no)
+        for fp, s in register.signers.items()
+        if s.revoked_at_utc is not None
+    }
+    for batch in batches:
+        editions = []
+        for s in ctx.archive.signoffs(batch.batch_id):
+            try:  # a changed file is read too (``stored files`` names the change): which signature breaks is named here
+                data = ctx.archive.read_object(s.signed_report_sha256)
+            except OSError:
+                data = None
+            editions.append(
+                SignedEdition(
+                    s.signoff_no,
+                    s.signer_name,
+                    s.key_fingerprint,
+                    s.meaning,
+                    s.comment,
+                    s.signed_at_utc,
+                    s.signed_report_sha256,
+                    data,
+                )
+            )
+        problems, warnings = edition_findings(batch.batch_id, editions, owner_cert, revoked)
+        for p in problems:
+            ctx.fail(p)
+        for w in warnings:
+            ctx.warn(w)
+
+
+def _check_certificates(ctx, register, owner_cert) -> None:
+    """Each enrolled person's certificate: issued by the owner, for the register's key, name and archive."""
+    from . import pki
+    from .certificates import certificate_problems
+
+    for fp, signer in register.signers.items():
+        cert = pki.certificate_of(ctx.archive, fp, register)
+        if cert is None:
+            continue  # enrolled before certificates: its sign-offs say so when it signs
+        for p in certificate_problems(
+            cert,
+            owner_cert,
+            public_key_raw=bytes.fromhex(signer.public_key_hex),
+            printed_name=signer.printed_name,
+            archive_id=ctx.archive.archive_id,
+        ):
+            ctx.fail(f"certificate of {signer.printed_name} ({fp[:16]}…): {p}")

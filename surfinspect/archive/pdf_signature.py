@@ -97,7 +97,10 @@ class _ArchivalIncrementalWriter(IncrementalPdfFileWriter):
         if meta is not None:
             xmp = meta.get_object().data.decode("utf-8")
             stamp = self.signed_at.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S+00:00")
-            xmp = re.sub(r"<xmp:ModifyDate>[^<]*</xmp:ModifyDate>", f"<xmp:ModifyDate>{stamp}</xmp:ModifyDate>", xmp)
+            element = f"<xmp:ModifyDate>{stamp}</xmp:ModifyDate>"
+            xmp, found = re.subn(r"<xmp:ModifyDate>[^<]*</xmp:ModifyDate>", element, xmp)
+            if not found:  # an undated document gets its modification date in both places
+                xmp = xmp.replace("</rdf:Description>", f"  {element}\n  </rdf:Description>", 1)
             stream = generic.StreamObject(
                 {generic.pdf_name("/Type"): generic.pdf_name("/Metadata"), "/Subtype": generic.pdf_name("/XML")},
                 stream_data=xmp.encode("utf-8"),

@@ -118,3 +118,32 @@ def test_verapdf_verdict_where_a_validator_is_installed():
             "module Debian could offer checks PDF/A-1b only; the structural checks of tests/pdfa_checks.py stand in"
         )
     assert verdict is True
+
+
+#: The 14 standard fonts of PDF (ISO 32000-1, 9.6.2.2): never embedded by reportlab, so never PDF/A.
+_BASE_FONTS = {
+    f"{family}{style}"
+    for family, styles in (
+        ("Helvetica", ("", "-Bold", "-Oblique", "-BoldOblique")),
+        ("Courier", ("", "-Bold", "-Oblique", "-BoldOblique")),
+        ("Times", ("-Roman", "-Bold", "-Italic", "-BoldItalic")),
+    )
+    for style in styles
+} | {"Symbol", "ZapfDingbats"}
+
+
+def test_no_module_names_a_standard_pdf_font():
+    """A base-font name written into new code (or brought in by a merge) would make that text non-archival."""
+    import ast
+    import re
+    from pathlib import Path
+
+    package = Path(__file__).resolve().parents[2] / "surfinspect"
+    found = []
+    for path in sorted(package.rglob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Constant) and isinstance(node.value, str):
+                named = _BASE_FONTS & ({node.value} | set(re.findall(r"name=['\"]?([\w-]+)", node.value)))
+                if named:
+                    found.append(f"{path.relative_to(package.parent)}:{node.lineno}: {sorted(named)}")
+    assert not found, "use surfinspect.pdfa.fonts.SANS, SANS_BOLD, SANS_OBLIQUE or MONO:\n" + "\n".join(found)
