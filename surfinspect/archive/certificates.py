@@ -73,6 +73,21 @@ def _subject(printed_name: str, archive_id: str, role: str) -> x509.Name:
     )
 
 
+def _key_usage(*, authority: bool) -> x509.KeyUsage:
+    """An authority certifies keys and signs revocation lists; a signer signs and commits to content."""
+    return x509.KeyUsage(
+        digital_signature=True,
+        content_commitment=not authority,
+        key_encipherment=False,
+        data_encipherment=False,
+        key_agreement=False,
+        key_cert_sign=authority,
+        crl_sign=authority,
+        encipher_only=False,
+        decipher_only=False,
+    )
+
+
 def _serial(archive_id: str, entry_no: int) -> int:
     """A positive serial of at most 20 octets (RFC 5280, 4.1.2.2), unique per archive entry."""
     digest = hashlib.sha256(f"{archive_id}/{entry_no}".encode()).digest()
@@ -98,20 +113,7 @@ def owner_certificate(
         .not_valid_before(_utc(issued_at))
         .not_valid_after(NO_EXPIRY)
         .add_extension(x509.BasicConstraints(ca=True, path_length=0), critical=True)
-        .add_extension(
-            x509.KeyUsage(
-                digital_signature=True,
-                content_commitment=False,
-                key_encipherment=False,
-                data_encipherment=False,
-                key_agreement=False,
-                key_cert_sign=True,
-                crl_sign=True,
-                encipher_only=False,
-                decipher_only=False,
-            ),
-            critical=True,
-        )
+        .add_extension(_key_usage(authority=True), critical=True)
         .add_extension(x509.SubjectKeyIdentifier.from_public_key(public), critical=False)
         .sign(owner_key, None)  # Ed25519 takes no separate hash (RFC 8410, 6)
     )
@@ -139,20 +141,7 @@ def signer_certificate(
         .not_valid_before(_utc(issued_at))
         .not_valid_after(NO_EXPIRY)
         .add_extension(x509.BasicConstraints(ca=False, path_length=None), critical=True)
-        .add_extension(
-            x509.KeyUsage(
-                digital_signature=True,
-                content_commitment=True,
-                key_encipherment=False,
-                data_encipherment=False,
-                key_agreement=False,
-                key_cert_sign=False,
-                crl_sign=False,
-                encipher_only=False,
-                decipher_only=False,
-            ),
-            critical=True,
-        )
+        .add_extension(_key_usage(authority=False), critical=True)
         .add_extension(x509.SubjectKeyIdentifier.from_public_key(public), critical=False)
         .add_extension(
             x509.AuthorityKeyIdentifier.from_issuer_public_key(owner_cert.public_key()),  # type: ignore[arg-type]

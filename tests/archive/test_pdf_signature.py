@@ -125,15 +125,12 @@ def test_a_name_longer_than_a_common_name_may_be_is_kept_whole(pki):
 
 def test_pyhanko_validates_a_signed_edition_intact_chained_to_the_owner_with_name_and_reason(pki):
     owner_key, owner, signer_key, signer = pki
-    signed = sign_pdf(
-        _report(),
-        signer_key,
-        signer,
-        owner,
-        field_name="signoff-1",
-        reason=signature_reason("released", "checked against drawing 2"),
-        signed_at=SIGNED,
-    )
+
+    def sign_once() -> bytes:
+        reason = signature_reason("released", "checked against drawing 2")
+        return sign_pdf(_report(), signer_key, signer, owner, field_name="signoff-1", reason=reason, signed_at=SIGNED)
+
+    signed = sign_once()
     (check,) = pdf_signatures(signed, owner)
     assert check.ok, check
     assert (check.intact, check.valid, check.trusted) == (True, True, True)
@@ -142,16 +139,7 @@ def test_pyhanko_validates_a_signed_edition_intact_chained_to_the_owner_with_nam
     assert_pdfa_2b(signed)  # the signature field is printable, metadata still agree (ModDate = signing time)
     meta = PdfReader(io.BytesIO(signed)).metadata
     assert meta["/ModDate"] == "D:20250302103000+00'00'"
-    # the same edition, key and time: the same bytes
-    assert signed == sign_pdf(
-        _report(),
-        signer_key,
-        signer,
-        owner,
-        field_name="signoff-1",
-        reason=signature_reason("released", "checked against drawing 2"),
-        signed_at=SIGNED,
-    )
+    assert signed == sign_once()  # the same edition, key and time: the same bytes
 
 
 def test_a_second_signoff_is_an_incremental_update_and_both_signatures_validate(pki):
