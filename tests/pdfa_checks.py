@@ -70,7 +70,14 @@ def _shown_strings(page: pikepdf.Page):
 def _check_fonts(pdf: pikepdf.Pdf) -> list[str]:
     problems = []
     for n, page in enumerate(pdf.pages, 1):
-        for f in _fonts_of(page.obj.get("/Resources"), set()):
+        seen: set = set()
+        fonts = _fonts_of(page.obj.get("/Resources"), seen)
+        for annot in page.obj.get("/Annots") or []:  # appearance streams draw text too (a visible signature)
+            for appearance in (annot.get("/AP") or {}).values():
+                streams = [appearance] if isinstance(appearance, pikepdf.Stream) else list(appearance.values())
+                for stream in streams:
+                    fonts += _fonts_of(stream.get("/Resources"), seen)
+        for f in fonts:
             descendants = f.get("/DescendantFonts") or [f]
             for d in descendants:
                 fd = d.get("/FontDescriptor")

@@ -147,3 +147,22 @@ def test_no_module_names_a_standard_pdf_font():
                 if named:
                     found.append(f"{path.relative_to(package.parent)}:{node.lineno}: {sorted(named)}")
     assert not found, "use surfinspect.pdfa.fonts.SANS, SANS_BOLD, SANS_OBLIQUE or MONO:\n" + "\n".join(found)
+
+
+def test_the_checks_see_a_base_font_in_an_annotations_appearance():
+    """A visible signature draws its text in an appearance stream: its fonts must be embedded as well."""
+    with pikepdf.open(io.BytesIO(_document())) as pdf:
+        font = pdf.make_indirect(
+            pikepdf.Dictionary(Type=pikepdf.Name.Font, Subtype=pikepdf.Name.Type1, BaseFont=pikepdf.Name.Helvetica)
+        )
+        resources = pikepdf.Dictionary(Font=pikepdf.Dictionary(F9=font))
+        look = pdf.make_stream(
+            b"BT /F9 8 Tf (x) Tj ET", Resources=resources, Subtype=pikepdf.Name.Form, BBox=[0, 0, 9, 9]
+        )
+        annot = pikepdf.Dictionary(
+            Type=pikepdf.Name.Annot, Subtype=pikepdf.Name.Square, Rect=[0, 0, 9, 9], F=4, AP=pikepdf.Dictionary(N=look)
+        )
+        pdf.pages[0].obj.Annots = pikepdf.Array([pdf.make_indirect(annot)])
+        out = io.BytesIO()
+        pdf.save(out)
+    assert pdfa_problems(out.getvalue()) == ["6.2.11.4: page 1: font /Helvetica is not embedded"]
