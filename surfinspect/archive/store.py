@@ -51,8 +51,8 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 
 from ..errors import InputError
 from ..fsutil import atomic_path, ensure_output_dir, sha256_bytes, sha256_file
+from ..results import NOT_INSPECTED, PartVerdict, SignOff
 from ..results import SCHEMA as RESULT_SCHEMA
-from ..results import PartVerdict, SignOff
 from . import signing
 
 __all__ = [
@@ -78,7 +78,7 @@ INDEX_NAME = "index.sqlite"
 OBJECTS_DIR = "objects"
 GENESIS_SHA256 = "0" * 64
 BUSY_TIMEOUT_S = 60.0
-ERROR_VERDICT = "error"
+ERROR_VERDICT = NOT_INSPECTED  # stored as the part's verdict: one word everywhere
 _OBJECT_MODE = 0o444  # stored files are never written again; read-only guards against slips
 
 
@@ -807,7 +807,7 @@ def _require_finished(batch: BatchRow) -> None:
 
 
 def verdict_counts(parts: Sequence[PartRow]) -> dict[str, int]:
-    """Number of parts per verdict (accept, reject, review, error, pending)."""
+    """Number of parts per verdict (accept, reject, review, not-inspected, pending)."""
     counts = {v.value: 0 for v in PartVerdict} | {ERROR_VERDICT: 0, "pending": 0}
     for p in parts:
         counts[p.verdict or "pending"] += 1

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Iterable
 
 from ..formatting import format_angle, format_fixed, format_signed_angle
-from ..results import part_to_dict
+from ..results import NOT_INSPECTED, part_to_dict
 from ..station.runner import PartOutcome
 from .console import Console
 
@@ -19,7 +19,7 @@ def print_results(console: Console, outcomes: Iterable[PartOutcome]) -> None:
     outcomes = list(outcomes)
     for o in outcomes:
         if o.result is None:
-            rows.append([o.stem, "—", "—", "—", "—", "error"])
+            rows.append([o.stem, "—", "—", "—", "—", NOT_INSPECTED])
             continue
         d = part_to_dict(o.result)
         if not d["regions"]:

@@ -133,10 +133,12 @@ def run(args: argparse.Namespace, console: Console) -> int:
         console.info(f"batch {outcome.batch_id} was already finished: nothing inspected")
     elif outcome.resumed:
         console.info(f"batch {outcome.batch_id} resumed: {outcome.inspected_now} part(s) inspected now")
-    summary = ", ".join(f"{counts[v]} {v}" for v in ("accept", "reject", "review", "error", "pending") if counts[v])
+    summary = ", ".join(
+        f"{counts[v]} {v}" for v in ("accept", "reject", "review", archive.ERROR_VERDICT, "pending") if counts[v]
+    )
     console.info(f"batch {outcome.batch_id}: {len(outcome.parts)} parts: {summary}")
     for key, message in outcome.errors:
-        console.warn(f"{key}: not inspected: {message}")
+        console.warn(f"{key}: {archive.ERROR_VERDICT}: {message}")
     if outcome.interruption:
         console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
     elif args.out:

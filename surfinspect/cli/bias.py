@@ -18,9 +18,8 @@ from ..measure.engine import inspect_image
 from ..measure.imaging import read_image
 from ..measure.orientation import wrap_deviation
 from ..qualify import bias, gauge_forms
-from ..recipe import load_recipe
 from ..results import EXIT_CODES, PartVerdict
-from ._checks import check_number, check_output_file
+from ._checks import check_number, check_output_file, load_recipe
 from .console import Console
 
 HELP = "measure known-angle target images: bias and repeatability per nominal angle, linearity line"
@@ -49,7 +48,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.json:
         inputs = [("the recipe", args.recipe), *(("an input image", image) for image in args.images)]
         check_output_file("--json", args.json, not_same_as=inputs)
-    recipe = load_recipe(args.recipe)
+    recipe = load_recipe(args.recipe, console)
     names = [r.name for r in recipe.regions]
     wanted = args.region or names
     unknown = [n for n in wanted if n not in names]

@@ -7,8 +7,8 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..fsutil import check_output_dir
-from ..recipe import load_recipe
 from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
+from ._checks import load_recipe
 from ._results_table import print_results
 from .console import Console
 
@@ -46,7 +46,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     for p in DEMO_PARTS:
         by_recipe.setdefault(p.recipe, []).append(p)
     for recipe_file, parts in by_recipe.items():
-        recipe = load_recipe(project / "recipes" / recipe_file)
+        recipe = load_recipe(project / "recipes" / recipe_file, console)
         sub = out / recipe.name
         paths = [parts_dir / p.file for p in parts]
         outcomes, pixels = [], []
@@ -66,7 +66,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     counts = verdict_counts(o.result for o in all_outcomes if o.result is not None)
     code = run_exit_code(all_outcomes)
     console.info(
-        f"\ndemo: {counts['accept']} accepted, {counts['reject']} rejected, {counts['review']} need review; "
+        f"\ndemo: {counts['accept']} accept, {counts['reject']} reject, {counts['review']} review; "
         f"results in {out}/ (exit code {code}: the demo batch holds rejects and a blank on purpose)"
     )
     return code

@@ -6,8 +6,9 @@ import argparse
 from pathlib import Path
 
 from ..fsutil import check_output_dir
-from ..recipe import load_recipe
+from ..results import NOT_INSPECTED
 from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
+from ._checks import load_recipe
 from ._results_table import print_results
 from .console import Console
 
@@ -23,7 +24,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    recipe = load_recipe(args.recipe)
+    recipe = load_recipe(args.recipe, console)
     check_output_dir(args.out, "--out")
     outcomes, pixels = [], []
     for path, stem in zip(args.images, output_stems(args.images)):
@@ -41,8 +42,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
     counts = verdict_counts(r for r, _ in done)
     errors = sum(o.result is None for o in outcomes)
     console.info(
-        f"{counts['accept']} accepted, {counts['reject']} rejected, {counts['review']} need review"
-        + (f", {errors} not inspected (input error)" if errors else "")
+        f"{counts['accept']} accept, {counts['reject']} reject, {counts['review']} review"
+        + (f", {errors} {NOT_INSPECTED} (input error)" if errors else "")
         + f"; results in {args.out}"
     )
     return run_exit_code(outcomes)

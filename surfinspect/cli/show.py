@@ -65,7 +65,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
                 counts["accept"],
                 counts["reject"],
                 counts["review"],
-                counts["error"],
+                counts[archive.ERROR_VERDICT],
                 "finished" if b.is_finished else f"unfinished ({counts['pending']} to do)",
                 _signoff_state(arc.signoffs(b.batch_id)),
             ]
@@ -74,7 +74,19 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
         console.info(f"archive {arc.root}: no batches yet")
         return
     console.table(
-        ["batch", "recipe", "started (UTC)", "parts", "accept", "reject", "review", "error", "state", "sign-off"], rows
+        [
+            "batch",
+            "recipe",
+            "started (UTC)",
+            "parts",
+            "accept",
+            "reject",
+            "review",
+            archive.ERROR_VERDICT,
+            "state",
+            "sign-off",
+        ],
+        rows,
     )
     events, head = arc.chain_head()
     console.info(f"audit trail: {events} events, head {head}")

@@ -61,7 +61,7 @@ class _RegionStats:
         if self.judged:
             for i in self.present:
                 if self.deviations[i] is None:
-                    out.setdefault(i, []).append("not measured (no texture): a gap in the charts")
+                    out.setdefault(i, []).append("not measured (no-texture): a gap in the charts")
         return dict(sorted(out.items()))
 
 

@@ -76,7 +76,7 @@ def _tolerance_text(region: RegionResult, d: Mapping) -> str:
 def _measured_text(region: RegionResult, d: Mapping) -> str:
     """The measured lay as the region's pattern has it; "no texture" only when there is none."""
     if region.verdict is RegionVerdict.NO_TEXTURE:
-        return "no texture"
+        return "no-texture"
     pattern = region.lay_pattern
     if pattern in _CENTRED:
         return "per cell (picture)"
@@ -89,7 +89,8 @@ def _measured_text(region: RegionResult, d: Mapping) -> str:
         return "—"
     text = format_angle(d["lay_deg"], axial=True)
     if d["uncertainty_deg"] is not None:
-        text += f" ± {format_angle(d['uncertainty_deg'])}"
+        # expanded uncertainty as the GUM writes it (JCGM 100:2008, 7.2.4): U = k u_c, here k = 2
+        text += f", U = {format_angle(d['uncertainty_deg'])}"
     return text
 
 
@@ -170,10 +171,10 @@ def _region_table(fig: _PartFigures) -> Table:
         "Region",
         "Expected lay",
         "Tolerance",
-        "Measured lay ± u",
+        "Measured lay, U (k = 2)",
         "Deviation",
         "Coherence",
-        "Defect area",
+        "Deviating area",
         "Verdict",
     ]
     rows = [header]
@@ -198,7 +199,7 @@ def _region_table(fig: _PartFigures) -> Table:
                     _deviation_note(region) if d["deviation_deg"] is not None else "",
                 ),
                 _cell_with_note(format_fixed(coherence, 3), coherence_note),
-                _percent(d["defect_area_fraction"]),
+                _percent(d["deviating_area_fraction"]),
                 look.word,
             ]
         )
@@ -258,5 +259,5 @@ def _verdict_sentence(part: PartResult) -> str:
         if why:
             return "; ".join(why)
         return "The region is within its limits." if n == 1 else f"All {n} regions are within their limits."
-    lead = "Rejected" if part.verdict is PartVerdict.REJECT else "Needs review"
+    lead = "Reject" if part.verdict is PartVerdict.REJECT else "Review"
     return f"{lead}: " + "; ".join(why)

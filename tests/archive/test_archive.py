@@ -29,7 +29,7 @@ def _region(name: str, verdict: results.RegionVerdict, lay: float | None) -> res
         deviation_deg=None if lay is None else lay - 90.0,
         uncertainty_deg=None if lay is None else 0.2,
         coherence=0.61 if lay is not None else 0.01,
-        defect_area_fraction=0.0,
+        deviating_area_fraction=0.0,
         patches=(),
         histogram=results.Histogram((0.0, 90.0, 180.0), (0.25, 0.75)),
         verdict=verdict,
@@ -143,7 +143,7 @@ def test_untouched_archive_verifies(signed_archive):
     assert arc.verify(signed_archive, "LW220-0506") == []
     with arc.Archive(signed_archive) as a:
         counts = arc.verdict_counts(a.parts("LW220-0506"))
-        assert counts == {"accept": 1, "reject": 1, "review": 0, "error": 1, "pending": 0}
+        assert counts == {"accept": 1, "reject": 1, "review": 0, "not-inspected": 1, "pending": 0}
         kinds = [row[0] for row in a._db.execute("SELECT kind FROM events ORDER BY seq")]
         assert kinds == [
             "batch started",

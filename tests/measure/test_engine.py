@@ -53,7 +53,7 @@ def test_patch_across_the_grain_is_found_with_its_box():
     assert abs((x + w) - (px + pw)) <= 32 and abs((y + h) - (py + ph)) <= 32
     assert region.patches[0].lay_deg == pytest.approx(0.0, abs=3.0) or region.patches[0].lay_deg > 177
     true_share = pw * ph / (RECT[2] * RECT[3])
-    assert region.defect_area_fraction == pytest.approx(true_share, rel=0.4)
+    assert region.deviating_area_fraction == pytest.approx(true_share, rel=0.4)
     # the whole-region lay is not pulled off by the crossed patch (doubled angles cancel)
     assert abs(region.deviation_deg) < 0.5
 
@@ -124,6 +124,7 @@ def test_result_json_round_trip_and_fixed_keys():
         "uncertainty_deg",
         "coherence",
         "defect_area_fraction",
+        "deviating_area_fraction",
         "patches",
         "histogram",
         "verdict",
@@ -184,7 +185,7 @@ def test_single_lay_under_crossed_recipe_fails_with_reason():
     r = _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay: X\n    lay_deg: [30, 120]\n")
     region = inspect_image(img, r).regions[0]
     assert region.verdict is RegionVerdict.FAIL
-    assert any("no grain found near 120.0°" in t for t in region.reasons)
+    assert any("no lay found near 120.0°" in t for t in region.reasons)
 
 
 def test_isotropic_texture_passes_multidirectional_and_fails_directional():
@@ -240,7 +241,7 @@ def test_concentric_rings_pass_circular_about_their_centre():
     far = body.replace(f"centre: [{centre[0] + 0.5}, {centre[1] + 0.5}]", "centre: [2000, -1500]")
     region = inspect_image(img, _pattern_recipe(far)).regions[0]
     assert region.verdict is RegionVerdict.FAIL
-    assert region.defect_area_fraction > 0.5
+    assert region.deviating_area_fraction > 0.5
 
 
 def test_spokes_pass_radial():

@@ -87,9 +87,9 @@ def test_text_holds_recipe_parts_regions_values_verdicts_and_hashes(three):
             if region["lay_deg"] is not None:
                 assert format_angle(region["lay_deg"], axial=True) in page
                 assert format_signed_angle(region["deviation_deg"]) in page
-            word = {"pass": "PASS", "fail": "FAIL", "no-texture": "NO TEXTURE"}[region["verdict"]]
+            word = {"pass": "PASS", "fail": "FAIL", "no-texture": "NO-TEXTURE"}[region["verdict"]]
             assert f"{region['name']}: {word}" in page  # the picture's label
-        assert {"accept": "ACCEPTED", "reject": "REJECTED", "review": "REVIEW"}[as_json["verdict"]] in page
+        assert {"accept": "ACCEPT", "reject": "REJECT", "review": "REVIEW"}[as_json["verdict"]] in page
     assert "90.12°" in everything and "+0.12°" in everything  # 90.123 printed with 2 decimals
     assert "J. Weber" in summary and socket.gethostname() in summary
 
@@ -419,7 +419,7 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     # a long comment wraps inside the block: every word is there, and the block ends before the parts table
     summary = signed[0]
     assert " ".join(comment.split()) in " ".join(summary.split())
-    assert summary.index("sheet 2") < summary.index("Parts (rejected first")
+    assert summary.index("sheet 2") < summary.index("Parts (reject first")
 
 
 def _text_lines_with_baselines(page) -> list[tuple[str, float]]:
@@ -494,11 +494,11 @@ def test_not_inspected_parts_are_counted_listed_and_paged():
     pdf = render_report(parts, [make_pixels()] * 3, report_id="N", generated_at=WHEN, not_inspected=[lost])
     texts = page_texts(PdfReader(io.BytesIO(pdf)))
     summary = " ".join(texts[0].split())
-    assert "NOT INSPECTED" in summary and "1 not inspected" in summary
+    assert "NOT-INSPECTED" in summary and "1 not-inspected" in summary
     assert "LW-220-0009.png" in summary and "not a readable image" in summary
     # listed after the reject and before the part that needs review (a hold, like the rejects)
     assert summary.index("LW-220-0002") < summary.index("LW-220-0009.png") < summary.index("LW-220-0003")
-    k = next(i for i, t in enumerate(texts) if t.lstrip().startswith("Parts not inspected: 1 of 4"))
+    k = next(i for i, t in enumerate(texts) if t.lstrip().startswith("Parts not-inspected: 1 of 4"))
     assert "e" * 64 in texts[k].replace("\n", "")
     row = summary[summary.index("LW-220-0009.png") :].split("truncated)")[1].split()[0]
     assert row == str(k + 1)  # the summary's page column points at the list
@@ -525,7 +525,7 @@ def test_verdict_sentence_wraps_instead_of_cutting_off():
     part = make_part(regions=(face, blank))
     texts = page_texts(PdfReader(io.BytesIO(render_report([part], [None], report_id="W", generated_at=WHEN))))
     header = " ".join(texts[1].split("Image file")[0].split())
-    assert f"Needs review: pad: {long_reason}" in header and "…" not in header
+    assert f"Review: pad: {long_reason}" in header and "…" not in header
     one = make_part(regions=(face,))
     texts = page_texts(PdfReader(io.BytesIO(render_report([one], [None], report_id="W", generated_at=WHEN))))
     assert "The region is within its limits." in texts[1]
