@@ -337,7 +337,7 @@ def find_part_frame(
 
     skew_deg = _skew_deg(lines, residuals)
     if abs(skew_deg) > max_skew_deg:
-        raise DatumError(f"part is skewed {skew_deg:.2f} deg, more than max_skew_deg {max_skew_deg:.2f} deg")
+        raise DatumError(f"part is rotated {skew_deg:.2f} deg, more than max_skew_deg {max_skew_deg:.2f} deg")
     return _frame_from_corners(corners, skew_deg, x_axis, quality)
 
 

@@ -146,6 +146,48 @@ def test_camera_rotation_correction_turns_the_lay():
     assert region.deviation_deg == pytest.approx(0.0, abs=0.25)
 
 
+@pytest.mark.parametrize("pixel_size_mm", [None, 0.1])
+def test_camera_rotation_pivots_about_the_image_centre(pixel_size_mm):
+    # Horizontal grain in the image, a camera turned +3.5 and -3.5 deg: in the part frame the lay is
+    # 0 - 3.5 = -3.5 (176.5) and +3.5, a deviation of equal size and opposite sign (lay_part =
+    # lay_image - rotation, DESIGN.md's angle convention). A full-frame region works both ways: the
+    # pivot is the image centre, and the corners the rotation turns off the image are cut at its border.
+    img = synth.brushed_panel((240, 320), 0.0, seed=8)
+    unit = pixel_size_mm or 1.0
+    rect = f"[0, 0, {320 * (pixel_size_mm or 1.0):g}, {240 * (pixel_size_mm or 1.0):g}]"
+    mm = f"pixel_size_mm: {pixel_size_mm}\n" if pixel_size_mm else ""
+    got = {}
+    for turn in (0.0, 3.5, -3.5):
+        r = parse_recipe(
+            f"recipe: t\nrevision: 1\n{mm}camera_rotation_deg: {turn}\nregions:\n"
+            f"  - name: face\n    rect: {rect}\n    lay_deg: 0\n    tolerance_deg: 10\n"
+        )
+        result = inspect_image(img, r)
+        got[turn] = result.regions[0]
+        # the frame's centre is the image centre whatever the turn
+        assert result.datum is not None
+        frame = Frame(result.datum.origin_px, turn, 1.0 / unit if pixel_size_mm else 1.0)
+        np.testing.assert_allclose(frame.to_image([[160 * unit, 120 * unit]])[0], [160.0, 120.0], atol=1e-9)
+    # relative to the texture's own lay (0.1 deg off horizontal: synthetic scratches), equal and opposite
+    own = got[0.0].deviation_deg
+    assert abs(own) < 0.3
+    assert got[3.5].deviation_deg - own == pytest.approx(-3.5, abs=0.05)
+    assert got[-3.5].deviation_deg - own == pytest.approx(3.5, abs=0.05)
+    # and the region's outline turns about the image centre: its centroid stays there
+    for region in got.values():
+        np.testing.assert_allclose(np.mean(region.outline_px[0], axis=0), [160.0, 120.0], atol=1e-6)
+
+
+def test_a_region_off_the_image_is_still_refused_with_a_camera_rotation():
+    img = synth.brushed_panel((240, 320), 0.0, seed=8)
+    r = parse_recipe(
+        "recipe: t\nrevision: 1\ncamera_rotation_deg: 2\nregions:\n"
+        "  - name: face\n    rect: [100, 100, 400, 100]\n    lay_deg: 0\n"
+    )
+    with pytest.raises(InputError, match=r"regions\(face\): region lies outside the image"):
+        inspect_image(img, r)
+
+
 def test_frame_round_trip():
     f = Frame(origin_px=(12.5, 40.25), rotation_deg=-7.3, px_per_unit=4.0)
     pts = np.array([[0, 0], [10.0, 3.0], [-2.5, 7.0]])
