@@ -10,7 +10,7 @@ from ..fsutil import check_output_file  # output files are checked in fsutil, be
 from ..recipe import Recipe
 from ..recipe import load_recipe as _load_recipe
 
-__all__ = ["check_output_file", "check_number", "load_recipe"]
+__all__ = ["check_output_file", "check_number", "load_recipe", "batch_owner"]
 
 
 def load_recipe(path: str | Path, console) -> Recipe:
@@ -39,3 +39,8 @@ def check_number(
     else:
         allowed = f"{lo:g} {'<' if lo_open else '<='} value {'<' if hi_open else '<='} {hi:g}"
     raise InputError(f"{flag}: must be {allowed} (got {value:g})")
+
+
+def batch_owner(archive: str | Path, batch_id: str) -> str:
+    """Whose files an output folder holds when a batch's files are copied there (batch --out, show --out)."""
+    return f"batch {batch_id} of the archive {Path(archive).resolve()}"

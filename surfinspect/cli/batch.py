@@ -19,7 +19,9 @@ from pathlib import Path
 from typing import Iterator
 
 from ..archive import store as archive
+from ..fsutil import OutputFolder
 from ..station import batch
+from ._checks import batch_owner, load_recipe
 from .console import Console
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
@@ -39,7 +41,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
-        "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+        "--out",
+        metavar="DIR",
+        help="also write each part's JSON and overlay, report.pdf and regions.csv here "
+        "(a new or empty folder, or one holding this batch's earlier copy)",
+    )
+    parser.add_argument(
+        "--overwrite",
+        action="store_true",
+        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
     )
 
 
@@ -113,8 +123,16 @@ def run(args: argparse.Namespace, console: Console) -> int:
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
     )
+    load_recipe(args.recipe, console)  # its notices; a bad recipe stops here, before the output folder is touched
+    folder = None
+    if args.out:
+        folder = OutputFolder(
+            args.out, "--out", overwrite=args.overwrite, owner=batch_owner(args.archive, args.batch_id)
+        )
     progress = _Progress(console)
     try:
+        if folder is not None:
+            folder.claim()
         with _stop_signals_raise():
             outcome = batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
@@ -128,6 +146,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         return 128 + stop.signum
     finally:
         progress.close()
+        written = folder.finish() if folder is not None else []
     counts = outcome.counts
     if outcome.was_finished:
         console.info(f"batch {outcome.batch_id} was already finished: nothing inspected")
@@ -141,8 +160,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
         console.warn(f"{key}: {archive.ERROR_VERDICT}: {message}")
     if outcome.interruption:
         console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
-    elif args.out:
-        console.info(f"report, CSV, results and overlays written to {args.out}")
+    elif written:
+        console.info(f"report, CSV, results and overlays: wrote {len(written)} file(s) to {args.out}")
     else:
         _say_where_the_report_is(args, console)
     return outcome.exit_code

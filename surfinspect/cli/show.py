@@ -12,8 +12,9 @@ import argparse
 
 from ..archive import store as archive
 from ..errors import InputError
-from ..fsutil import ensure_output_dir
+from ..fsutil import OutputFolder
 from ..station import batch
+from ._checks import batch_owner
 from .console import Console
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
@@ -25,7 +26,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--out",
         metavar="DIR",
-        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named",
+        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named "
+        "(a new or empty folder, or one holding this batch's earlier copy)",
+    )
+    parser.add_argument(
+        "--overwrite",
+        action="store_true",
+        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
     )
 
 
@@ -46,8 +53,14 @@ def run(args: argparse.Namespace, console: Console) -> int:
             return 0
         _show_batch(arc, args.batch_id, console)
         if args.out:
-            out = ensure_output_dir(args.out, "--out")
-            written = batch.export_batch(arc, args.batch_id, out)
+            folder = OutputFolder(
+                args.out, "--out", overwrite=args.overwrite, owner=batch_owner(args.archive, args.batch_id)
+            ).claim()
+            try:
+                batch.export_batch(arc, args.batch_id, folder.path)
+            finally:
+                written = folder.finish()
+            out = folder.path
             console.info(f"{len(written)} file(s) of batch {args.batch_id} copied to {out}")
     return 0
 

@@ -332,9 +332,12 @@ def test_recursive_rerun_takes_no_output_or_archive_file_as_a_part(tmp_path, cap
         "LW-220-001.overlay.png",
         "LW-220-002.overlay.png",
     ]
+    # the output folder now holds a file the batch did not write: refused without --overwrite (README)
+    assert main(["-q", *args, "--batch-id", "R1"]) == 2
     # the same id again: the same three images (more would be refused as "holds other images", exit 2)
-    assert main(["-q", *args, "--batch-id", "R1"]) == 0
-    assert main(["-q", *args, "--batch-id", "R2"]) == 0
+    assert main(["-q", *args, "--batch-id", "R1", "--overwrite"]) == 0
+    assert main(["-q", *args, "--batch-id", "R2", "--overwrite"]) == 0
+    assert (out / "copy.png").exists()  # --overwrite removes only what surfinspect wrote
     with arc.Archive(archive) as a:
         assert [p.part_key for p in a.parts("R2")] == ["LW-220-000.png", "LW-220-001.png", "line-2/LW-220-002.png"]
     assert arc.verify(archive) == []
