@@ -268,6 +268,7 @@ def _rename_old_keys(r: _Reader, m: _Map, path: str) -> None:
         line = m.line_of(old)
         if new in m:
             r.p.add(line, _join(path, old), f"old name of {new}, which is given too (allowed: {new} only)")
+            del m[old]  # named once, not again as an unknown key
             continue
         m[new] = m.pop(old)
         m.lines[new] = line
