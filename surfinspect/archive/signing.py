@@ -49,6 +49,7 @@ from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey,
 
 from ..errors import InputError
 from ..fsutil import atomic_path
+from ..results import SIGNOFF_MEANINGS
 
 __all__ = [
     "MEANINGS",
@@ -69,7 +70,7 @@ __all__ = [
 ]
 
 #: Allowed meanings of a sign-off.
-MEANINGS = ("approved", "rejected", "reviewed")
+MEANINGS = SIGNOFF_MEANINGS
 RECORD_FORMAT = "surfinspect.signoff-record/1"
 PRIVATE_KEY_FORMAT = "surfinspect.signing-key/1"
 PUBLIC_KEY_FORMAT = "surfinspect.public-key/1"

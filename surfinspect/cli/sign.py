@@ -17,7 +17,7 @@ from ..station import batch
 from ._checks import check_output_file
 from .console import Console
 
-HELP = "sign a finished batch off (approved, rejected or reviewed) and store the signed report"
+HELP = "sign a finished batch off (released, withheld or examined) and store the signed report"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -6,6 +6,7 @@ from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
 from ..results import (
+    SIGNOFF_MEANINGS,
     SignOff,
 )
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
@@ -72,7 +73,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
             c.setDash([])
             if label == "Meaning":
                 c.setFont("Helvetica", 6.5)
-                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
+                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, " / ".join(SIGNOFF_MEANINGS))
         else:
             size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
             c.setFont(font, size)

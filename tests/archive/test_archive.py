@@ -124,7 +124,7 @@ def signed_archive(tmp_path):
         return f"%PDF signed by {signoff.signer_name} {signoff.meaning}".encode()
 
     with arc.Archive(root) as a:
-        arc.sign_batch(a, "LW220-0506", key, meaning="approved", comment="released", render_edition=render)
+        arc.sign_batch(a, "LW220-0506", key, meaning="released", comment="released", render_edition=render)
         # the sign-off block names the unsigned report the signature covers: the bytes stored for the batch report
         assert seen and seen[0].key_fingerprint == key.fingerprint
         assert seen[0].report_sha256 == hashlib.sha256(b"%PDF report LW220-0506").hexdigest()
@@ -154,8 +154,8 @@ def test_untouched_archive_verifies(signed_archive):
             "signed",
         ]
         (signoff,) = a.signoffs("LW220-0506")
-        assert signoff.meaning == "approved" and signoff.signer_name == "R. OSTERMANN"
-        assert a.read_object(signoff.signed_report_sha256).startswith(b"%PDF signed by R. OSTERMANN approved")
+        assert signoff.meaning == "released" and signoff.signer_name == "R. OSTERMANN"
+        assert a.read_object(signoff.signed_report_sha256).startswith(b"%PDF signed by R. OSTERMANN released")
         # the unsigned report stays as it was, beside the signed edition
         assert a.read_object(a.batch("LW220-0506").report_sha256) == b"%PDF report LW220-0506"
         record = json.loads(signoff.record_json)
@@ -236,7 +236,7 @@ def test_deleted_signoff_row_is_named(signed_archive):
     _sql(signed_archive, "DELETE FROM signatures")
     failures = arc.verify(signed_archive)
     assert any(
-        "sign-off #1 of batch 'LW220-0506' by R. OSTERMANN (approved), recorded in audit event 6, "
+        "sign-off #1 of batch 'LW220-0506' by R. OSTERMANN (released), recorded in audit event 6, "
         "is missing from the index (its sign-off row was deleted)" == f
         for f in failures
     ), failures
@@ -244,9 +244,9 @@ def test_deleted_signoff_row_is_named(signed_archive):
 
 
 def test_edited_signoff_meaning_is_named(signed_archive):
-    _sql(signed_archive, "UPDATE signatures SET meaning = 'rejected'")
+    _sql(signed_archive, "UPDATE signatures SET meaning = 'withheld'")
     failures = arc.verify(signed_archive)
-    assert any("the index shows meaning 'rejected', the signed record says 'approved'" in f for f in failures), failures
+    assert any("the index shows meaning 'withheld', the signed record says 'released'" in f for f in failures), failures
 
 
 def test_forged_record_fails_the_signature(signed_archive):
@@ -254,9 +254,9 @@ def test_forged_record_fails_the_signature(signed_archive):
     (text,) = db.execute("SELECT record_json FROM signatures").fetchone()
     db.close()
     record = json.loads(text)
-    record["meaning"] = "rejected"
+    record["meaning"] = "withheld"
     forged = signing.canonical_record_bytes(record).decode()
-    _sql(signed_archive, "UPDATE signatures SET record_json = ?, meaning = 'rejected'", (forged,))
+    _sql(signed_archive, "UPDATE signatures SET record_json = ?, meaning = 'withheld'", (forged,))
     failures = arc.verify(signed_archive)
     assert any("the signature does not hold over its record" in f for f in failures), failures
 
@@ -340,9 +340,9 @@ def test_signing_unknown_or_unfinished_batch_is_an_input_error(tmp_path):
     key = signing.SigningKey.generate("R. OSTERMANN")
     with arc.Archive(tmp_path / "ar") as a:
         with pytest.raises(InputError, match=r"--batch-id: no batch 'NOPE' in this archive \(latest: B1\)"):
-            arc.sign_batch(a, "NOPE", key, meaning="approved", render_edition=lambda s: b"")
+            arc.sign_batch(a, "NOPE", key, meaning="released", render_edition=lambda s: b"")
         with pytest.raises(InputError, match="batch 'B1' is not finished"):
-            arc.sign_batch(a, "B1", key, meaning="approved", render_edition=lambda s: b"")
+            arc.sign_batch(a, "B1", key, meaning="released", render_edition=lambda s: b"")
     with pytest.raises(InputError, match="not a surfinspect archive"):
         arc.Archive(tmp_path / "elsewhere")
 

@@ -44,7 +44,7 @@ def _record(key: signing.SigningKey, **changes) -> dict:
         signer_name=key.signer_name,
         key_fingerprint=key.fingerprint,
         signed_at_utc="2024-05-06T07:08:09Z",
-        meaning="approved",
+        meaning="released",
         comment="Lot 17 released — ok",
         batch_id="LW220-0506",
         report_sha256="a" * 64,
@@ -75,7 +75,7 @@ def test_record_signature_binds_every_field():
     signature = signing.sign_record(key, record)
     assert signing.verify_record(key.public_key_raw, record, signature)
     for field, value in [
-        ("meaning", "rejected"),
+        ("meaning", "withheld"),
         ("signed_at_utc", "2024-05-06T07:08:10Z"),
         ("batch_id", "LW220-0507"),
         ("report_sha256", "d" * 64),
@@ -90,7 +90,7 @@ def test_record_signature_binds_every_field():
 def test_record_meaning_is_checked():
     key = signing.SigningKey.generate("R. OSTERMANN")
     with pytest.raises(
-        InputError, match=r"--meaning: unknown meaning \(got 'ok', allowed approved, rejected, reviewed\)"
+        InputError, match=r"--meaning: unknown meaning \(got 'ok', allowed released, withheld, examined\)"
     ):
         _record(key, meaning="ok")
 

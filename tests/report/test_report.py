@@ -259,13 +259,13 @@ def test_signoff_block_empty_then_filled():
     unsigned = PdfReader(io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN)))
     text = unsigned.pages[0].extract_text()
     assert "SIGN-OFF" in text and "NOT SIGNED" in text
-    sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, record_sha256="cd" * 32)
+    sign = SignOff("Anna Berg", "released", "2031-04-02T10:30:00Z", "ab" * 32, record_sha256="cd" * 32)
     signed = PdfReader(
         io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN, signoff=sign))
     )
     text = signed.pages[0].extract_text()
     assert "NOT SIGNED" not in text
-    for value in ("Anna Berg", "APPROVED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
+    for value in ("Anna Berg", "RELEASED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
         assert value in text
 
 
@@ -409,13 +409,13 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     unsigned = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN))))
     assert all("NOT SIGNED" in t for t in unsigned)
     comment = "Released after re-brushing of panel 0002; " + "checked against drawing LW-220 sheet 2 " * 4
-    sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
+    sign = SignOff("Anna Berg", "released", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
     signed = page_texts(
         PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign)))
     )
     # reference: the SignOff fields of results.py, printed verbatim on every page
     assert all(signoff_state(sign) in t and "NOT SIGNED" not in t for t in signed)
-    assert signoff_state(sign) == "Signed: APPROVED by Anna Berg, 2031-04-02T10:30:00Z"
+    assert signoff_state(sign) == "Signed: RELEASED by Anna Berg, 2031-04-02T10:30:00Z"
     # a long comment wraps inside the block: every word is there, and the block ends before the parts table
     summary = signed[0]
     assert " ".join(comment.split()) in " ".join(summary.split())
@@ -450,7 +450,7 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
     comment = "検査済み: panel 0002 re-brushed, é and € kept; " + "checked against drawing LW-220 sheet 2 " * 6
     sign = SignOff(
         "Anna Berg",
-        "approved",
+        "released",
         "2031-04-02T10:30:00Z",
         "ab" * 32,
         comment=comment,

@@ -218,7 +218,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     key = tmp_path / "lindqvist.key"
     monkeypatch.setenv("SIGN_PASS", "grain runs up")
     assert main(["-q", "keygen", "--name", "Kari Lindqvist", "--out", str(key), "--passphrase-env", "SIGN_PASS"]) == 0
-    assert main(["sign", "--archive", str(root), "--batch-id", "NOPE", "--key", str(key), "--meaning", "approved"]) == 2
+    assert main(["sign", "--archive", str(root), "--batch-id", "NOPE", "--key", str(key), "--meaning", "released"]) == 2
     assert "no batch 'NOPE' in this archive" in capsys.readouterr().err
     signed_pdf = tmp_path / "signed.pdf"
     assert (
@@ -233,7 +233,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
                 "--key",
                 str(key),
                 "--meaning",
-                "rejected",
+                "withheld",
                 "--comment",
                 "two panels off grain",
                 "--passphrase-env",
@@ -252,7 +252,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     fingerprint = signing.load_signing_key(key, passphrase=b"grain runs up").fingerprint
     pypdf = pytest.importorskip("pypdf")
     signed_text = pypdf.PdfReader(signed_pdf).pages[0].extract_text()
-    for shown in ("Kari Lindqvist", "REJECTED", fingerprint, s.signed_at_utc):
+    for shown in ("Kari Lindqvist", "WITHHELD", fingerprint, s.signed_at_utc):
         assert shown in signed_text
     assert "NOT SIGNED" in pypdf.PdfReader(io.BytesIO(unsigned)).pages[0].extract_text()
 
@@ -261,7 +261,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     assert "intact" in capsys.readouterr().out
     assert main(["show", "--archive", str(root)]) == 0
     listing = capsys.readouterr().out
-    assert "B1" in listing and "rejected by Kari Lindqvist" in listing
+    assert "B1" in listing and "withheld by Kari Lindqvist" in listing
     assert main(["show", "--archive", str(root), "--batch-id", "B1"]) == 0
     assert "LW-220-broken.png  not-inspected" in capsys.readouterr().out
 
@@ -397,7 +397,7 @@ def _signed_setup(panels, tmp_path, monkeypatch):
 def test_sign_checks_out_before_signing(panels, tmp_path, capsys, monkeypatch):
     root, key = _signed_setup(panels, tmp_path, monkeypatch)
     (tmp_path / "adir").mkdir()
-    sign = ["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "approved"]
+    sign = ["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "released"]
     with arc.Archive(root) as a:
         events_before = a.chain_head()
     for out, says in [
@@ -437,7 +437,7 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
                 "--key",
                 str(key),
                 "--meaning",
-                "rejected",
+                "withheld",
                 "--comment",
                 comment,
             ]
