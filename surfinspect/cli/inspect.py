@@ -50,7 +50,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     errors = sum(o.result is None for o in outcomes)
     console.info(
         f"{counts['accept']} accept, {counts['reject']} reject, {counts['review']} review"
-        + (f", {errors} {NOT_INSPECTED} (input error)" if errors else "")
+        + (f", {errors} {NOT_INSPECTED} (see the errors above)" if errors else "")
     )
     _say_what_was_written(console, folder.path, written)
     return run_exit_code(outcomes)

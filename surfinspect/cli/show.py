@@ -128,7 +128,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
             note = ", ".join(f"{r['name']}: {r['verdict']}" for r in result["regions"] if r["verdict"] != "pass")
             note = note or "; ".join(result.get("reasons", []))
         rows.append([p.part_key, p.verdict or "pending", note])
-    console.table(["part", "verdict", "regions not passed / error"], rows)
+    console.table(["part", "verdict", "regions not passed, or the reason"], rows)
     signoffs = arc.signoffs(batch_id)
     if signoffs:
         console.table(
