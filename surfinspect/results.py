@@ -15,6 +15,8 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import errors
+
 SCHEMA = "surfinspect.part-result/1"
 
 #: Printed on every report, study page and target sheet.
@@ -46,7 +48,7 @@ NOT_INSPECTED = "not-inspected"
 
 #: Exit code of a command that judged parts, by the worst part verdict (fixed).
 EXIT_CODES = {PartVerdict.ACCEPT: 0, PartVerdict.REJECT: 1, PartVerdict.REVIEW: 3}
-EXIT_INPUT_ERROR = 2
+EXIT_INPUT_ERROR = errors.EXIT_INPUT_ERROR
 
 
 def part_verdict(region_verdicts: Sequence[RegionVerdict]) -> PartVerdict:

@@ -4,17 +4,21 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from ..errors import InputError
 from ..fsutil import check_output_file  # output files are checked in fsutil, beside the writes
-from ..recipe import Recipe
-from ..recipe import load_recipe as _load_recipe
+
+if TYPE_CHECKING:
+    from ..recipe import Recipe
 
 __all__ = ["check_output_file", "check_number", "load_recipe", "batch_owner"]
 
 
 def load_recipe(path: str | Path, console) -> Recipe:
     """Load a recipe and print its notices (old key names read under their new names), one line each."""
+    from ..recipe import load_recipe as _load_recipe
+
     recipe = _load_recipe(path)
     for line in recipe.notices:
         console.notice(line)

@@ -18,11 +18,13 @@ import threading
 from pathlib import Path
 from typing import Iterator
 
-from ..archive import store as archive
+from .._lazy import module
 from ..fsutil import OutputFolder
-from ..station import batch
 from ._checks import batch_owner, load_recipe
 from .console import Console
+
+archive = module("surfinspect.archive.store")
+batch = module("surfinspect.station.batch")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
 
@@ -113,6 +115,7 @@ def _stop_signals_raise() -> Iterator[None]:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+
     config = batch.BatchConfig(
         recipe_path=Path(args.recipe),
         folder=Path(args.folder),
@@ -168,6 +171,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
+
     with archive.Archive(args.archive) as arc:
         report = arc.batch(args.batch_id).report_sha256
         if report is None:

@@ -7,9 +7,7 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..fsutil import OutputFolder
-from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
 from ._checks import load_recipe
-from ._results_table import print_results
 from .console import Console
 
 HELP = "run the demo scenario (LW-220 wall panels, CP-14 cover plates) and write its results and reports"
@@ -40,6 +38,7 @@ def _project_dir(given: str | None) -> Path:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     from ..station.demo import DEMO_PARTS, make_demo_parts
+    from ..station.runner import run_exit_code, verdict_counts
 
     project = _project_dir(args.project)
     parts_dir = project / "demo_parts"
@@ -62,6 +61,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
 def _run_scenario(project: Path, parts_dir: Path, out: Path, console: Console) -> list:
     from ..station.demo import DEMO_PARTS
+    from ..station.runner import inspect_path, output_stems, write_part_report
+    from ._results_table import print_results
 
     all_outcomes = []
     by_recipe: dict[str, list] = {}

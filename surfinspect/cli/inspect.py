@@ -6,10 +6,7 @@ import argparse
 from pathlib import Path
 
 from ..fsutil import OutputFolder
-from ..results import NOT_INSPECTED
-from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
 from ._checks import load_recipe
-from ._results_table import print_results
 from .console import Console
 
 HELP = "measure and judge the lay of one or more part images against a recipe"
@@ -29,6 +26,10 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..results import NOT_INSPECTED
+    from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
+    from ._results_table import print_results
+
     recipe = load_recipe(args.recipe, console)
     folder = OutputFolder(args.out, "--out", overwrite=args.overwrite).claim()
     outcomes, pixels = [], []

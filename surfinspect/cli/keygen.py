@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signing
 from ._checks import check_output_file
 from .console import Console
 
@@ -26,6 +25,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..archive import signing
+
     check_output_file("--out", args.out)
     key = signing.write_key_pair(args.out, args.name, passphrase=signing.passphrase_from_env(args.passphrase_env))
     protection = "passphrase-protected" if args.passphrase_env else "not passphrase-protected"

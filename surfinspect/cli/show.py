@@ -10,12 +10,14 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import store as archive
+from .._lazy import module
 from ..errors import InputError
 from ..fsutil import OutputFolder
-from ..station import batch
 from ._checks import batch_owner
 from .console import Console
+
+archive = module("surfinspect.archive.store")
+batch = module("surfinspect.station.batch")
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
 

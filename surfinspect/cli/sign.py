@@ -10,10 +10,7 @@ import argparse
 import shlex
 from pathlib import Path
 
-from ..archive import signing
-from ..archive import store as archive
 from ..fsutil import write_bytes_atomic
-from ..station import batch
 from ._checks import check_output_file
 from .console import Console
 
@@ -21,16 +18,22 @@ HELP = "sign a finished batch off (released, withheld or examined) and store the
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from ..results import SIGNOFF_MEANINGS
+
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
     parser.add_argument("--key", required=True, metavar="KEYFILE", help="the signer's private key file (from keygen)")
-    parser.add_argument("--meaning", required=True, choices=signing.MEANINGS, help="what the signature means")
+    parser.add_argument("--meaning", required=True, choices=SIGNOFF_MEANINGS, help="what the signature means")
     parser.add_argument("--comment", default="", metavar="TEXT", help="a comment kept in the signed record")
     parser.add_argument("--passphrase-env", metavar="VAR", help="environment variable holding the key's passphrase")
     parser.add_argument("--out", metavar="PDF", help="also write the signed report to this .pdf file")
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..archive import signing
+    from ..archive import store as archive
+    from ..station import batch
+
     out = None
     if args.out:
         check_output_file("--out", args.out, suffixes=(".pdf",), not_same_as=[("the --key file", args.key)])

@@ -3,9 +3,7 @@
 from __future__ import annotations
 
 import argparse
-import sqlite3
 
-from ..archive import store as archive
 from .console import Console
 
 HELP = "check every stored file, result, signature and the audit trail of an archive (exit 0 intact, 1 not)"
@@ -19,6 +17,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    import sqlite3
+
+    from ..archive import store as archive
+
     with archive.Archive(args.archive) as arc:
         failures = archive.verify(arc, args.batch_id)
         try:
