@@ -389,6 +389,12 @@ def loads(text: str) -> PartResult:
     return part_from_dict(json.loads(text))
 
 
+#: What a sign-off means; no word is shared with a part verdict (accept/reject/review) or a region
+#: verdict (pass/fail/no-texture): released = may go on as judged, withheld = held back,
+#: examined = read and checked without a release decision.
+SIGNOFF_MEANINGS = ("released", "withheld", "examined")
+
+
 @dataclass(frozen=True)
 class SignOff:
     """What a signed report shows in its sign-off block (filled by the archive)."""
@@ -400,9 +406,4 @@ class SignOff:
     comment: str = ""
     record_sha256: str = ""  # hash of the canonical signed record
     report_sha256: str = ""  # hash of the unsigned batch report the signature covers
-
-
-#: What a sign-off means; no word is shared with a part verdict (accept/reject/review) or a region
-#: verdict (pass/fail/no-texture): released = may go on as judged, withheld = held back,
-#: examined = read and checked without a release decision.
-SIGNOFF_MEANINGS = ("released", "withheld", "examined")
+    chain_head: str = ""  # "N <sha256>": the archive's audit chain head the signature covers (an anchor on paper)

@@ -21,6 +21,7 @@ from typing import Iterator
 from .._lazy import module
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
+from ._keys import open_key
 from .console import Console
 
 archive = module("surfinspect.archive.store")
@@ -52,6 +53,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--overwrite",
         action="store_true",
         help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
+    )
+    parser.add_argument(
+        "--station-key",
+        metavar="KEYFILE",
+        help="the station's private key (enrolled with role station): signs the chain head when the batch closes",
+    )
+    parser.add_argument(
+        "--passphrase-env", metavar="VAR", help="environment variable holding the station key's passphrase"
     )
 
 
@@ -125,6 +134,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         operator=args.operator,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
+        station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
     load_recipe(args.recipe, console)  # its notices; a bad recipe stops here, before the output folder is touched
     folder = None

@@ -5,10 +5,7 @@ from __future__ import annotations
 from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
-from ..results import (
-    SIGNOFF_MEANINGS,
-    SignOff,
-)
+from ..results import SIGNOFF_MEANINGS, SignOff
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
 
 _SIGNOFF_LINE = 14.5
@@ -34,6 +31,8 @@ def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
         ("Record SHA-256", signoff.record_sha256 or "—", "Courier"),
         ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", "Courier"),
     ]
+    if signoff.chain_head:
+        rows.append(("Audit chain head", f"event {signoff.chain_head}", "Courier"))
     if comment:
         for k, line in enumerate(simpleSplit(comment, "Helvetica", _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
             rows.append(("Comment" if k == 0 else "", line, "Helvetica"))
