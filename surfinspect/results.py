@@ -107,6 +107,9 @@ class Patch:
     area_px: int
     bbox_mm: tuple[float, float] | None = None  # (width, height) in mm, when the recipe gives pixel_size_mm
     area_mm2: float | None = None
+    # (x, y, w, h) in mm in the part frame (from the datum origin, y down), when the recipe gives pixel_size_mm:
+    # the box of the patch's cells as a drawing would dimension it (for a rotated frame, the box around them)
+    position_mm: tuple[float, float, float, float] | None = None
 
 
 @dataclass(frozen=True)
@@ -261,6 +264,7 @@ def region_to_dict(r: RegionResult) -> dict:
                 "area_px": p.area_px,
                 **({"bbox_mm": [_num(v, 3) for v in p.bbox_mm]} if p.bbox_mm is not None else {}),
                 **({"area_mm2": _num(p.area_mm2, 3)} if p.area_mm2 is not None else {}),
+                **({"position_mm": [_num(v, 3) for v in p.position_mm]} if p.position_mm is not None else {}),
             }
             for p in r.patches
         ],
@@ -339,6 +343,7 @@ def region_from_dict(d: Mapping[str, Any]) -> RegionResult:
                 area_px=int(p["area_px"]),
                 bbox_mm=tuple(p["bbox_mm"]) if "bbox_mm" in p else None,
                 area_mm2=p.get("area_mm2"),
+                position_mm=tuple(p["position_mm"]) if "position_mm" in p else None,
             )
             for p in d["patches"]
         ),

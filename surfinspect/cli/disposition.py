@@ -11,7 +11,7 @@ from .console import Console
 signatures = module("surfinspect.archive.signatures")
 archive = module("surfinspect.archive.store")
 
-HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a rejected or doubtful part"
+HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a part judged reject or review, or not-inspected"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

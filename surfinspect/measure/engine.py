@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import PurePath
 
 import cv2
@@ -182,6 +182,19 @@ def region_masks(region: Region, frame: Frame, image_shape: tuple[int, int], rec
     return (xmin, ymin, w, h), mask.astype(bool), tuple(as_tuple(r) for r in outer), tuple(as_tuple(r) for r in holes)
 
 
+def _patches_in_part_frame(result, frame: Frame, pixel_size_mm: float | None):
+    """Give each patch its box in the part frame, in mm (x, y from the datum origin, y down), as a drawing would."""
+    if not pixel_size_mm or not result.patches:
+        return result
+    placed = []
+    for p in result.patches:
+        x, y, w, h = p.bbox_px
+        corners = frame.to_frame([[x, y], [x + w, y], [x + w, y + h], [x, y + h]])  # recipe units: mm here
+        (x0, y0), (x1, y1) = corners.min(axis=0), corners.max(axis=0)
+        placed.append(replace(p, position_mm=(float(x0), float(y0), float(x1 - x0), float(y1 - y0))))
+    return replace(result, patches=tuple(placed))
+
+
 def _in_view(region: Region, frame: Frame) -> bool:
     """True when the region lies on the frame's image-sized rectangle (datum ``image``)."""
     if frame.view_px is None:
@@ -280,6 +293,7 @@ def inspect_image(
             pixel_size_mm=recipe.pixel_size_mm,
         )
         results.append(judge_region(region, m))
+    results = [_patches_in_part_frame(r, frame, recipe.pixel_size_mm) for r in results]
     verdict = part_verdict([r.verdict for r in results])
     return PartResult(
         name=name,

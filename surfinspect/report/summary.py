@@ -28,7 +28,7 @@ from .layout import (
     _verdict_icon,
 )
 from .legend import _LEGEND_H, _legend
-from .regions import _JUDGED_ANGLE, _PartFigures
+from .regions import _JUDGED_ANGLE, _PartFigures, worst_deviation
 from .scene import PALETTE, PART_LOOKS, REGION_LOOKS, RGB
 from .signoff import _signoff_block, _signoff_height
 
@@ -221,7 +221,8 @@ def _part_row(index: int, fig: _PartFigures) -> tuple[str, str, str, RGB, str, s
         if region.verdict is RegionVerdict.NO_TEXTURE:
             deviation = "no-texture"
         elif region.lay_pattern in _JUDGED_ANGLE:
-            deviation = format_signed_angle(d["deviation_deg"])
+            value, which = worst_deviation(d)
+            deviation = f"{format_signed_angle(value)} ({which})"
         else:
             deviation = "not judged"
     reasons = [r for reg in fig.part.regions if reg.verdict is not RegionVerdict.PASS for r in reg.reasons]

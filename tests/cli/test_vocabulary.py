@@ -81,16 +81,32 @@ def test_every_output_uses_the_chosen_words(outputs, capsys, monkeypatch):
     key = root / "signer.key"
     monkeypatch.setenv("VOCAB_PASS", "a passphrase")
     assert _run(capsys, ["keygen", "--name", "A. Signer", "--out", str(key), "--passphrase-env", "VOCAB_PASS"])[0] == 0
+    owner = root / "owner.key"
+    assert _run(capsys, ["keygen", "--out", str(owner), "--no-passphrase"])[0] == 0
+    code, texts["owner"] = _run(
+        capsys, ["owner", "init", "--archive", archive, "--name", "M. QUALITY", "--key", str(owner)]
+    )
+    assert code == 0
+    add = ["signers", "add", "--archive", archive, "--pub", f"{key}.pub", "--name", "A. SIGNER", "--role", "inspector"]
+    code, texts["signers add"] = _run(capsys, [*add, "--by", str(owner)])
+    assert code == 0
     for meaning in SIGNOFF_MEANINGS:
         sign = ["sign", "--archive", archive, "--batch-id", "B1", "--key", str(key), "--meaning", meaning]
         code, texts[f"sign {meaning}"] = _run(capsys, [*sign, "--passphrase-env", "VOCAB_PASS"])
         assert code == 0
+    disposition = ["disposition", "--archive", archive, "--batch-id", "B1", "--part", "w-4.png"]
+    code, texts["disposition"] = _run(
+        capsys, [*disposition, "--decision", "re-inspect", "--key", str(key), "--passphrase-env", "VOCAB_PASS"]
+    )
+    assert code == 0
     code, texts["show"] = _run(capsys, ["show", "--archive", archive])
     code, texts["show batch"] = _run(
         capsys, ["show", "--archive", archive, "--batch-id", "B1", "--out", str(root / "x")]
     )
     assert code == 0
-    for command in ("inspect", "batch", "sign", "show", "demo", "check"):
+    code, texts["verify"] = _run(capsys, ["verify", "--archive", archive])
+    assert code == 0
+    for command in ("inspect", "batch", "sign", "show", "demo", "check", "disposition", "verify"):
         with pytest.raises(SystemExit, match="0"):
             main([command, "--help"])
         texts[f"{command} --help"] = capsys.readouterr().out

@@ -365,6 +365,29 @@ def test_patch_sizes_in_mm_with_pixel_size():
     patch = inspect_image(img, r).regions[0].patches[0]
     assert patch.bbox_mm == (patch.bbox_px[2] * 0.5, patch.bbox_px[3] * 0.5)
     assert patch.area_mm2 == pytest.approx(patch.area_px * 0.25)
+    # datum image, no rotation: the part frame is the image's, so the position is the pixel box times 0.5 mm
+    assert patch.position_mm == pytest.approx(tuple(v * 0.5 for v in patch.bbox_px))
+    # the planted patch (256, 160) px from the corner is found where it is, to one 32 px cell
+    assert abs(patch.position_mm[0] - 128.0) <= 16 and abs(patch.position_mm[1] - 80.0) <= 16
+
+
+def test_patch_position_in_a_rotated_part_frame():
+    # a camera turned 10 deg: the part frame's box of the patch is the box around its cells' corners mapped
+    # into that frame; mapping the box's centre back gives the pixel box's centre (Frame.to_image)
+    img = synth.brushed_panel(SHAPE, 100.0, seed=8, patch_rect=(128, 96, 96, 64), patch_lay_deg=10.0)
+    r = parse_recipe(
+        "recipe: t\nrevision: 1\npixel_size_mm: 0.5\ncamera_rotation_deg: 10\nregions:\n  - name: face\n"
+        "    rect: [30, 30, 100, 60]\n    lay_deg: 90\n    cell_px: 32\n"
+    )
+    result = inspect_image(img, r)
+    patch = result.regions[0].patches[0]
+    x, y, w, h = patch.position_mm
+    frame = Frame(result.datum.origin_px, 10.0, 2.0)
+    bx, by, bw, bh = patch.bbox_px
+    np.testing.assert_allclose(frame.to_image([[x + w / 2, y + h / 2]])[0], [bx + bw / 2, by + bh / 2], atol=1e-6)
+    # the box around a turned rectangle is larger than it by |cos| + |sin| terms
+    c, s = np.cos(np.radians(10)), np.sin(np.radians(10))
+    assert w == pytest.approx((bw * c + bh * s) / 2, rel=1e-6) and h == pytest.approx((bw * s + bh * c) / 2, rel=1e-6)
 
 
 def test_part_not_found_is_review_in_words():
