@@ -19,16 +19,16 @@ def print_results(console: Console, outcomes: Iterable[PartOutcome]) -> None:
     outcomes = list(outcomes)
     for o in outcomes:
         if o.result is None:
-            rows.append([o.stem, "—", "—", "—", "—", NOT_INSPECTED, ""])
+            rows.append([o.name, "—", "—", "—", "—", NOT_INSPECTED, ""])
             continue
         d = part_to_dict(o.result)
         if not d["regions"]:
-            rows.append([o.stem, "—", "—", "—", "—", d["verdict"], ""])
+            rows.append([o.name, "—", "—", "—", "—", d["verdict"], ""])
         for r in d["regions"]:
             lay, shown = _what_is_shown(r)
             rows.append(
                 [
-                    o.stem,
+                    o.name,
                     r["name"],
                     lay,
                     format_signed_angle(r["deviation_deg"]),
@@ -42,9 +42,9 @@ def print_results(console: Console, outcomes: Iterable[PartOutcome]) -> None:
         if o.result is not None:
             for r in o.result.regions:
                 if r.verdict.value != "pass":
-                    console.info(f"  {o.stem} / {r.name}: {'; '.join(r.reasons)}")
+                    console.info(f"  {o.name} / {r.name}: {'; '.join(r.reasons)}")
             for reason in o.result.reasons:
-                console.info(f"  {o.stem}: {reason}")
+                console.info(f"  {o.name}: {reason}")
 
 
 def _what_is_shown(r: dict) -> tuple[str, str]:

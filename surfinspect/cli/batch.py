@@ -169,6 +169,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
         f"{counts[v]} {v}" for v in ("accept", "reject", "review", archive.ERROR_VERDICT, "pending") if counts[v]
     )
     console.info(f"batch {outcome.batch_id}: {len(outcome.parts)} parts: {summary}")
+    if not args.recursive:
+        _say_what_sub_folders_hold(args, console)
     for key, message in outcome.errors:
         console.warn(f"{key}: {archive.ERROR_VERDICT}: {message}")
     if outcome.interruption:
@@ -191,3 +193,20 @@ def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None
         "readable copies (report.pdf, regions.csv, each part's JSON and overlay): "
         f"surfinspect show --archive {shlex.quote(args.archive)} --batch-id {args.batch_id} --out DIR"
     )
+
+
+def _say_what_sub_folders_hold(args: argparse.Namespace, console: Console) -> None:
+    """Without --recursive, say how many images the folder's sub-folders hold that were not taken."""
+    from ..errors import InputError
+
+    own = [Path(args.archive)] + ([Path(args.out)] if args.out else [])
+    try:
+        below = [key for key, _ in batch.discover_images(Path(args.folder), recursive=True, exclude=own) if "/" in key]
+    except InputError:
+        return
+    if below:
+        folders = sorted({key.rsplit("/", 1)[0] for key in below})
+        console.notice(
+            f"{len(below)} image(s) in {len(folders)} sub-folder(s) of {args.folder} were not taken "
+            f"(first: {folders[0]}/); give --recursive to inspect them too"
+        )

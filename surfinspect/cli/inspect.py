@@ -27,15 +27,22 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     from ..results import NOT_INSPECTED
-    from ..station.runner import inspect_path, output_stems, run_exit_code, verdict_counts, write_part_report
+    from ..station.runner import (
+        inspect_path,
+        output_stems,
+        part_names,
+        run_exit_code,
+        verdict_counts,
+        write_part_report,
+    )
     from ._results_table import print_results
 
     recipe = load_recipe(args.recipe, console)
     folder = OutputFolder(args.out, "--out", overwrite=args.overwrite).claim()
     outcomes, pixels = [], []
     try:
-        for path, stem in zip(args.images, output_stems(args.images)):
-            outcome, px = inspect_path(path, recipe, args.out, stem, keep_pixels=not args.no_report)
+        for path, stem, name in zip(args.images, output_stems(args.images), part_names(args.images)):
+            outcome, px = inspect_path(path, recipe, args.out, stem, keep_pixels=not args.no_report, name=name)
             if outcome.error:
                 console.error(outcome.error)
             outcomes.append(outcome)

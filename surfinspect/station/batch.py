@@ -210,7 +210,7 @@ def _inspect_one(
         time.sleep(_TEST_HOLD_S)
     # the same read-inspect-write as ``inspect``, into a scratch folder whose files go back to the parent
     with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
-        outcome, _ = inspect_path(path, _worker_recipe, tmp, name)
+        outcome, _ = inspect_path(path, _worker_recipe, tmp, name, name=part_key)
         if outcome.error is not None:
             return {"part_key": part_key, "error": outcome.error}
         return {

@@ -291,7 +291,7 @@ def test_batch_statistics_page_matches_independent_capability():
     sigma = np.abs(np.diff(x)).mean() / 1.128
     cp = 6.0 / (6 * sigma)
     cpk = min(3.0 - x.mean(), x.mean() + 3.0) / (3 * sigma)
-    assert f"Cp {cp:.2f}" in stats and f"Cpk {cpk:.2f}" in stats
+    assert f"Cp {cp:.2f} (" in stats and f"Cpk {cpk:.2f} (" in stats
     # the 2.6 deg panel lies beyond mean + 2.66 mean(MR) (same reference): it is listed as #7 with
     # why, and the two moving ranges around it (|x7 - x6| and |x8 - x7|, hand-computed 2.55 and 2.48)
     # exceed 3.267 mean(MR): the later part of each pair, #7 and #8, is named
@@ -301,7 +301,14 @@ def test_batch_statistics_page_matches_independent_capability():
     assert "8 LW-220-0008" in stats and "deviation jump from #7 above the moving-range limit" in stats
     # the summary gives the same capability and points at the statistics page
     summary = " ".join(texts[0].split())
-    assert f"Cp {cp:.2f} · Cpk {cpk:.2f}" in summary and f"(page {k_stats + 1})" in summary
+    # with 95 % intervals: Cp by the chi-square quantiles (Montgomery ch. 8.3.5), Cpk by Bissell (1990)
+    from scipy.stats import chi2, norm
+
+    n = len(x)
+    cp_lo, cp_hi = cp * np.sqrt(chi2.ppf([0.025, 0.975], n - 1) / (n - 1))
+    half = norm.ppf(0.975) * np.sqrt(1 / (9 * n) + cpk**2 / (2 * (n - 1)))
+    shown = f"Cp {cp:.2f} ({cp_lo:.2f}-{cp_hi:.2f}) · Cpk {cpk:.2f} ({cpk - half:.2f}-{cpk + half:.2f})"
+    assert shown in summary and "fewer than 25 parts" in summary and f"(page {k_stats + 1})" in summary
 
 
 def test_batch_statistics_mark_parts_beyond_tolerance_inside_control_limits():
