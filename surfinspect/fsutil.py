@@ -215,8 +215,12 @@ class OutputFolder:
         if self.overwrite or same_owner:
             root = self.path.resolve()
             for rel in listed:
-                target = self.path / rel
-                # only names inside the folder, never through a link out of it
+                name = Path(rel)
+                if name.is_absolute() or ".." in name.parts:
+                    continue  # only names inside the folder
+                target = self.path / name
+                if not target.parent.resolve().is_relative_to(root):
+                    continue  # never through a linked folder out of it
                 if target.is_symlink() or (target.is_file() and target.resolve().is_relative_to(root)):
                     target.unlink()
             self._prune_empty_dirs()
@@ -226,7 +230,11 @@ class OutputFolder:
         return self
 
     def _prune_empty_dirs(self) -> None:
-        for d in sorted((p for p in self.path.rglob("*") if p.is_dir() and not p.is_symlink()), reverse=True):
+        root = self.path.resolve()
+        inside = (
+            p for p in self.path.rglob("*") if p.is_dir() and not p.is_symlink() and p.resolve().is_relative_to(root)
+        )
+        for d in sorted(inside, reverse=True):
             with contextlib.suppress(OSError):
                 d.rmdir()  # only empty folders go
 

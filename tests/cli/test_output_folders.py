@@ -57,9 +57,13 @@ def test_overwrite_never_follows_a_listed_name_out_of_the_folder(tmp_path):
     out, outside = tmp_path / "out", tmp_path / "keep.txt"
     out.mkdir()
     outside.write_text("not ours")
-    (out / WRITTEN_LIST).write_text("# list\n../keep.txt\n")
+    (tmp_path / "elsewhere").mkdir()
+    (tmp_path / "elsewhere" / "link").symlink_to(outside)
+    (out / "via").symlink_to(tmp_path / "elsewhere")
+    listed = ["../keep.txt", str(outside), str(tmp_path / "elsewhere" / "link"), "via/link"]
+    (out / WRITTEN_LIST).write_text("# list\n" + "\n".join(listed) + "\n")
     OutputFolder(out, "--out", overwrite=True).claim()
-    assert outside.read_text() == "not ours"
+    assert outside.read_text() == "not ours" and (tmp_path / "elsewhere" / "link").is_symlink()
 
 
 def test_a_refused_run_lists_nothing_as_its_own(tmp_path):
