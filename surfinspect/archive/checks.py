@@ -13,10 +13,10 @@ from dataclasses import dataclass, field
 
 from . import chain
 from .chain import GENESIS_SHA256, EventKind
-from .records import CLOCK_ALLOWANCE_S, parse_utc
+from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc
 from .register import Register
 from .schema import CHAINED_TABLES, TABLES, BatchRow, EventRow
-from .store import ERROR_SCHEMA, ERROR_VERDICT, OLD_ERROR_VERDICT, Archive, index_rows_of
+from .store import ERROR_SCHEMA, ERROR_VERDICT, Archive, index_rows_of
 
 __all__ = [
     "Context",

@@ -32,10 +32,10 @@ from ..results import SIGNOFF_MEANINGS, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, owner_certificate
 from .pdf_signature import sign_pdf, signature_reason
-from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
+from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
 from .register import OWNER_ROLE, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
-from .store import ERROR_VERDICT, OLD_ERROR_VERDICT, Archive, utc_now
+from .store import ERROR_VERDICT, Archive, utc_now
 
 __all__ = [
     "MEANINGS",

@@ -32,7 +32,6 @@ from .objects import ObjectStore
 from .records import (
     ERROR_SCHEMA,
     ERROR_VERDICT,
-    OLD_ERROR_VERDICT,
     check_batch_id,
     error_record_json,
     image_set_sha256,
@@ -57,7 +56,6 @@ __all__ = [
     "ARCHIVE_FORMAT",
     "ERROR_SCHEMA",
     "ERROR_VERDICT",
-    "OLD_ERROR_VERDICT",
     "INDEX_NAME",
     "Archive",
     "BatchPlan",
