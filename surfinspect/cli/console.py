@@ -54,6 +54,12 @@ class Console:
             self.err.write("\n")
             self._status_shown = False
 
+    def notice(self, text: str) -> None:
+        """Something to act on later that does not stop the run (an old recipe key name, ...)."""
+        if not self.quiet:
+            self._end_status()
+            print(f"surfinspect: notice: {text}", file=self.err, flush=True)
+
     def table(self, header: Sequence[str], rows: Sequence[Sequence[object]]) -> None:
         """Print a left-aligned text table; numbers right-aligned."""
         if self.quiet:

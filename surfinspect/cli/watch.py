@@ -15,10 +15,12 @@ import argparse
 import shlex
 import signal
 
-from ..station import watch
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .batch import batch_fields, on_stop_signals
 from .console import Console
+
+watch = module("surfinspect.station.watch")
 
 HELP = "judge each image as it arrives in a folder, publish verdicts (JSON lines, OPC UA), archive the batch"
 
@@ -42,10 +44,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--settle",
         type=float,
-        default=watch.DEFAULT_SETTLE_S,
         metavar="S",
-        help="a file neither renamed in nor closed after writing is complete once unchanged this long "
-        f"(default {watch.DEFAULT_SETTLE_S:g} s)",
+        help="a file neither renamed in nor closed after writing is complete once unchanged this long (default 1 s)",
     )
     parser.add_argument("--poll", action="store_true", help="poll the folder instead of inotify (network shares)")
     add_key_arguments(
@@ -72,7 +72,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         opcua=args.opcua,
         stop_after=args.stop_after,
         idle_timeout_s=args.idle_timeout,
-        settle_s=args.settle,
+        **({} if args.settle is None else {"settle_s": args.settle}),
         poll=args.poll,
         station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )

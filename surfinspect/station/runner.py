@@ -27,6 +27,7 @@ OVERLAY_MAX_SIDE = 2000
 __all__ = [
     "PartOutcome",
     "output_stems",
+    "part_names",
     "inspect_path",
     "judge_path",
     "part_error_text",
@@ -41,11 +42,12 @@ class PartOutcome:
     """One image's outcome: a result, or the input error that stopped it."""
 
     path: str
-    stem: str
+    stem: str  # the name of its output files (JSON, overlay)
     result: PartResult | None = None
     error: str | None = None
     json_path: str | None = None
     overlay_path: str | None = None
+    name: str = ""  # the part's name in every output (see part_names)
 
 
 def output_stems(paths: Sequence[str | Path]) -> list[str]:
@@ -60,10 +62,10 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
     return out
 
 
-def judge_path(path: str | Path, recipe: Recipe, stem: str) -> tuple[LoadedImage, PartResult]:
+def judge_path(path: str | Path, recipe: Recipe, name: str) -> tuple[LoadedImage, PartResult]:
     """Read one image and inspect it (no file is written); raises InputError as :func:`read_image` and the engine."""
     loaded = read_image(path)
-    return loaded, inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
+    return loaded, inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
 
 
 def part_error_text(exc: InputError, path: str | Path) -> str:
@@ -72,23 +74,50 @@ def part_error_text(exc: InputError, path: str | Path) -> str:
     return text if str(path) in text else f"{path}: {text}"
 
 
+def part_names(paths: Sequence[str | Path]) -> list[str]:
+    """A part's name in every output: its image's file name, with as many of its folders as tell it apart.
+
+    Two images that share a file name (from different folders) are named by their paths from the
+    first folder where they differ (``line-1/lw-220-0001.png``, ``line-2/lw-220-0001.png``), so that
+    nobody takes one panel for the other.
+    """
+    parts = [Path(p).parts for p in paths]
+    names = []
+    for mine in parts:
+        depth = 1
+        while depth < len(mine) and any(o != mine and o[-depth:] == mine[-depth:] for o in parts):
+            depth += 1
+        names.append("/".join(mine[-depth:]))
+    return names
+
+
 def inspect_path(
-    path: str | Path, recipe: Recipe, out_dir: str | Path, stem: str, *, keep_pixels: bool = False
+    path: str | Path,
+    recipe: Recipe,
+    out_dir: str | Path,
+    stem: str,
+    *,
+    keep_pixels: bool = False,
+    name: str | None = None,
 ) -> tuple[PartOutcome, np.ndarray | None]:
-    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically."""
+    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically.
+
+    ``name`` is the part's name in the result (default: the image's file name).
+    """
+    name = name or Path(path).name
     from ..report.overlay import write_overlay_png
 
     try:
-        loaded, result = judge_path(path, recipe, stem)
+        loaded, result = judge_path(path, recipe, name)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
     except InputError as exc:
-        return PartOutcome(path=str(path), stem=stem, error=part_error_text(exc, path)), None
+        return PartOutcome(path=str(path), stem=stem, error=part_error_text(exc, path), name=name), None
     outcome = PartOutcome(
-        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
+        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name
     )
     return outcome, (loaded.pixels if keep_pixels else None)
 

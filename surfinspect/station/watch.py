@@ -345,7 +345,7 @@ class Station:
             self.on_warning(f"{key}: the file vanished before it was judged; skipped")
             return
         try:
-            loaded, result = judge_path(path, self._recipe, Path(key).stem)
+            loaded, result = judge_path(path, self._recipe, key)
         except InputError as exc:
             reason = part_error_text(exc, path).replace(str(path), key)
             self._not_judged(arrival, staged, before, reason)

@@ -391,6 +391,7 @@ def _recipe_sha() -> str:
 
 
 def test_closed_batch_id_is_refused_and_bad_flags_exit_2(tmp_path, capsys):
+    assert watch.DEFAULT_SETTLE_S == 1.0  # `watch --help` states it without importing the station
     station, judged, _ = _in_process(tmp_path, stop_after=1)
     shutil.copy(DEMO[0], tmp_path / "camera" / "one.png")
     assert _run_bounded(station).exit_code == 0
