@@ -35,7 +35,14 @@ from .robust import robust_lay
 from .uncertainty import cell_uncertainty
 from .verdict import Cells, Verdict, fmt_angle, fmt_signed
 
-__all__ = ["TEXTURE_RATIO_MIN", "CELL_MIN_COVER", "RegionMeasurement", "judge_region"]
+__all__ = [
+    "TEXTURE_RATIO_MIN",
+    "TEXTURE_ALPHA",
+    "CELL_MIN_COVER",
+    "RegionMeasurement",
+    "direction_test",
+    "judge_region",
+]
 
 #: Texture is present when gradient energy exceeds this multiple of the noise's
 #: own (signal energy at least three times the noise energy). Common practice
@@ -45,6 +52,15 @@ TEXTURE_RATIO_MIN = 4.0
 #: Gradient energy of uniform quantisation noise of a 16-bit image (step 1/65535, variance
 #: step^2 / 12) through the default sigma = 1 px derivative: the least noise any image has.
 NOISE_ENERGY_FLOOR = noise_gradient_energy(1.0 / 65535.0 / math.sqrt(12.0), 1.0)
+
+#: False-alarm rate of the test for a direction in noise (per region): a region of pure noise, white
+#: or not, is called textured this often (measured in tests/measure/test_texture.py).
+TEXTURE_ALPHA = 1e-3
+
+#: ... and the direction found must carry at least this share of the gradient energy (coherence):
+#: a significant but negligible direction (JPEG quantisation tables are not symmetric: blank panels
+#: at q 95 show coherence 0.02 at p ~ 1e-4) is no lay. Chosen on synthetic cases, no source.
+TEXTURE_MIN_COHERENCE = 0.05
 
 #: A cell takes part in the local check when at least this share of a full cell is measured
 #: (a narrower sliver at the grid's edge is merged into its neighbour first, see ``_merge_slivers``).
@@ -213,7 +229,78 @@ def _content_across(region: Region, m: RegionMeasurement, c: Cells, cells: np.nd
     return cells & off & (largest >= RESIDUAL_SHARE * np.maximum(c.energy, 1e-300))
 
 
-def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, ratio: float, c: Cells):
+def direction_test(cells: CellSums, use: np.ndarray) -> tuple[float, int]:
+    """p-value of "no preferred direction" from the cells' doubled-angle tensor vectors.
+
+    Each cell gives ``v = (jxx - jyy, 2 jxy) / area``; without a preferred direction (noise of any
+    spectrum that is the same in every direction) their mean is zero. Hotelling's T^2 tests that
+    with the cells' own covariance, so no noise model is needed: ``(n - 2) / (2 (n - 1)) T^2``
+    follows F(2, n - 2) (cells are independent when they are larger than the noise's correlation
+    length, as for white noise, 1/f noise, whose gradients are white, and the sigma = 1 derivative).
+
+    Returns
+    -------
+    p_value, n_cells : float, int
+        p is 1.0 with fewer than 3 cells (no test possible).
+
+    References
+    ----------
+    .. [1] Hotelling, H. (1931). The generalization of Student's ratio. Annals of Mathematical
+       Statistics 2(3), 360-378. :doi:`10.1214/aoms/1177732979`
+    """
+    from scipy import stats
+
+    n = int(use.sum())
+    if n < 3:
+        return 1.0, n
+    area = cells.area[use]
+    v = np.stack([(cells.jxx[use] - cells.jyy[use]) / area, 2.0 * cells.jxy[use] / area], axis=1)
+    mean = v.mean(axis=0)
+    cov = np.cov(v, rowvar=False) + np.eye(2) * 1e-30
+    try:
+        t2 = n * float(mean @ np.linalg.solve(cov, mean))
+    except np.linalg.LinAlgError:
+        return (0.0 if np.any(mean != 0) else 1.0), n
+    if not np.isfinite(t2):
+        return 0.0, n
+    return float(stats.f.sf((n - 2) / (2.0 * (n - 1)) * t2, 2, n - 2)), n
+
+
+def _texture(region: Region, m: RegionMeasurement, c: Cells, ratio: float, coherence: float, extra: dict):
+    """Why the region has no measurable texture, or None when it has."""
+    grid = m.block_grid
+    if grid is not None and grid.present:
+        # a JPEG block grid: its steps are not grain. Gradient energy must stand out of what the
+        # compression's own steps give (as white noise of half their variance), and no direction test
+        # is trusted on the grid's horizontal and vertical steps alone
+        floor = noise_gradient_energy(math.sqrt(grid.step_variance / 2.0), region.sigma_px)
+        grid_ratio = ratio * m.noise_energy / max(floor, m.noise_energy, NOISE_ENERGY_FLOOR)
+        extra.update(block_grid_contrast=round(grid.contrast, 2), texture_to_compression=round(grid_ratio, 2))
+        if grid_ratio < TEXTURE_RATIO_MIN:
+            return (
+                f"no measurable texture: gradient energy is {grid_ratio:.1f}x what the JPEG compression's 8x8 blocks "
+                f"give (needs at least {TEXTURE_RATIO_MIN:g}x); the block grid is not grain"
+            )
+    if region.lay is LayPattern.DIRECTIONAL:
+        p, n = direction_test(m.cells, c.covered & (m.cells.area > 0))
+        extra.update(direction_p=float(f"{p:.3g}"), direction_cells=n)
+        if n >= 3:
+            if p < TEXTURE_ALPHA and coherence >= TEXTURE_MIN_COHERENCE:
+                return None
+            return (
+                f"no measurable texture: no lay stands out of the noise over {n} cells "
+                f"(p = {p:.2g}, needs < {TEXTURE_ALPHA:g}; coherence {coherence:.2f}, needs "
+                f"{TEXTURE_MIN_COHERENCE:g}); polished, blurred or blank surface"
+            )
+    if ratio < TEXTURE_RATIO_MIN:
+        return (
+            f"no measurable texture: gradient energy is {ratio:.1f}x the camera noise's "
+            f"(needs at least {TEXTURE_RATIO_MIN:g}x); polished, blurred or blank surface"
+        )
+    return None
+
+
+def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, why: str, c: Cells):
     nan = np.full(m.cells.area.shape, np.nan)
     return RegionResult(
         **base,
@@ -223,10 +310,7 @@ def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, r
         defect_area_fraction=0.0,
         patches=(),
         verdict=RegionVerdict.NO_TEXTURE,
-        reasons=(
-            f"no measurable texture: gradient energy is {ratio:.1f}x the camera noise's "
-            f"(needs at least {TEXTURE_RATIO_MIN:g}x); polished, blurred or blank surface",
-        ),
+        reasons=(why,),
         cells=CellGrid(m.cells.origin_px, m.cells.cell_px, nan, c.coherence, nan, np.zeros(nan.shape, bool)),
         extra=extra,
     )
@@ -284,8 +368,9 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         coherence=float(coherence),
     )
     extra: dict = {"texture_to_noise": round(float(ratio), 2), "masked_fraction": round(m.masked_fraction, 4)}
-    if ratio < TEXTURE_RATIO_MIN:
-        return _no_texture(region, m, base, extra, ratio, c)
+    why = _texture(region, m, c, ratio, coherence, extra)
+    if why is not None:
+        return _no_texture(region, m, base, extra, why, c)
 
     centre_px = m.centre_px
     if region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL) and centre_px is None:
