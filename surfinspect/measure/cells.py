@@ -9,7 +9,7 @@ import numpy as np
 
 from .derivatives import gaussian_derivative_kernels
 
-__all__ = ["STRIP_ROWS", "CellSums", "cell_sums"]
+__all__ = ["STRIP_ROWS", "CellSums", "cell_sums", "merge_edge_slivers"]
 
 #: Rows per strip: a multiple of the cell size near this many rows is used.
 STRIP_ROWS = 512
@@ -57,6 +57,7 @@ class CellSums:
         h, w = self.shape_px
         xs = np.minimum(np.arange(cols + 1) * self.cell_px, w)
         ys = np.minimum(np.arange(rows + 1) * self.cell_px, h)
+        xs[-1], ys[-1] = w, h  # the last cell reaches the box's edge (it may hold a merged sliver)
         out = np.zeros((rows, cols, 4), dtype=np.int64)
         out[..., 0] = x0 + xs[None, :-1]
         out[..., 1] = y0 + ys[:-1, None]
@@ -217,6 +218,29 @@ def cell_sums(
         hist=hist,
         region_area=region_area,
     )
+
+
+def merge_edge_slivers(sums: CellSums) -> CellSums:
+    """Merge a last row or column of cells narrower than half a cell into its neighbour.
+
+    Cells are aligned to the region box's top-left corner, so its right and bottom edges may
+    leave a strip too narrow for a local lay of its own; merged, every pixel of the region belongs
+    to a cell that is checked (the merged cell is up to 1.5 cells long).
+    """
+    h, w = sums.shape_px
+    arrays = {k: getattr(sums, k) for k in ("jxx", "jxy", "jyy", "area", "hist", "region_area")}
+    for axis, extent in ((0, h), (1, w)):
+        n = arrays["area"].shape[axis]
+        if n < 2 or extent - (n - 1) * sums.cell_px >= sums.cell_px / 2:
+            continue
+        for k, a in arrays.items():
+            if a is None:
+                continue
+            a = np.moveaxis(a, axis, 0)
+            merged = a[:-1].copy()
+            merged[-1] += a[-1]
+            arrays[k] = np.moveaxis(merged, 0, axis)
+    return CellSums(origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, **arrays)
 
 
 def _measured_pixels(mask, keep, bbox, image_shape, border: int) -> np.ndarray | None:

@@ -18,7 +18,7 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
-from ..recipe import Recipe, Region, Shape
+from ..recipe import LayPattern, Recipe, Region, Shape
 from ..results import (
     DatumInfo,
     ImageInfo,
@@ -27,7 +27,7 @@ from ..results import (
     RecipeInfo,
     part_verdict,
 )
-from .cells import cell_sums
+from .cells import cell_sums, merge_edge_slivers
 from .conditions import block_grid, saturated_pixels
 from .datum import DatumError, find_part_frame
 from .derivatives import gaussian_derivative_kernels
@@ -39,6 +39,9 @@ __all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
 
 #: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
 HISTOGRAM_VOTE_STEP = 2
+
+#: A region with fewer cells than this has its direction test made on cells a third the size.
+MIN_TEST_CELLS = 16
 
 #: Strips measured at once within one image (OpenCV and NumPy release the GIL).
 THREADS = 2
@@ -275,6 +278,19 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         keep=keep,
         background_sigma=region.illumination_px,
     )
+    test_cells = None
+    if cells.area.size < MIN_TEST_CELLS and region.lay is LayPattern.DIRECTIONAL:
+        # too few cells for a strong direction test: test on cells of a third the size (cheap: the region is small)
+        test_cells = cell_sums(
+            pixels,
+            mask,
+            bbox,
+            cell_px=max(8, region.cell_px // 3),
+            sigma=region.sigma_px,
+            keep=keep,
+            background_sigma=region.illumination_px,
+        )
+    cells = merge_edge_slivers(cells)
     centre_px = None
     if region.centre is not None:
         cx, cy = frame.to_image([region.centre])[0]
@@ -290,6 +306,7 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         pixel_size_mm=recipe.pixel_size_mm,
         masked_fraction=masked,
         block_grid=_block_grid_sample(pixels, bbox, mask),
+        test_cells=test_cells,
     )
 
 

@@ -86,6 +86,7 @@ class RegionMeasurement:
     pixel_size_mm: float | None = None
     masked_fraction: float = 0.0  # share of the region's pixels left out as clipped (glare)
     block_grid: BlockGrid | None = None
+    test_cells: CellSums | None = None  # finer cells for the direction test of a small region
 
 
 def _cell_lays(m: RegionMeasurement) -> tuple[np.ndarray, np.ndarray]:
@@ -282,7 +283,8 @@ def _texture(region: Region, m: RegionMeasurement, c: Cells, ratio: float, coher
                 f"give (needs at least {TEXTURE_RATIO_MIN:g}x); the block grid is not grain"
             )
     if region.lay is LayPattern.DIRECTIONAL:
-        p, n = direction_test(m.cells, c.covered & (m.cells.area > 0))
+        t = m.test_cells if m.test_cells is not None else m.cells
+        p, n = direction_test(t, t.area >= CELL_MIN_COVER * t.cell_px**2)
         extra.update(direction_p=float(f"{p:.3g}"), direction_cells=n)
         if n >= 3:
             if p < TEXTURE_ALPHA and coherence >= TEXTURE_MIN_COHERENCE:
