@@ -67,6 +67,7 @@ REGION_DEFAULTS: dict[str, Any] = {
     "cell_px": 24,
     "sigma_px": 1.0,
     "illumination_px": 12.0,
+    "sharpness_period_px": 3.5,
 }
 
 SHAPE_KEYS = ("rect", "polygon", "circle", "annulus")
@@ -126,6 +127,7 @@ class Region:
     cell_px: int = REGION_DEFAULTS["cell_px"]
     sigma_px: float = REGION_DEFAULTS["sigma_px"]
     illumination_px: float = REGION_DEFAULTS["illumination_px"]
+    sharpness_period_px: float = REGION_DEFAULTS["sharpness_period_px"]
     line: int = 0
 
     @property
@@ -325,6 +327,7 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
     "cell_px": lambda r, m, k, p: r.number(m, k, p, lo=8, hi=4096, integer=True),
     "sigma_px": lambda r, m, k, p: r.number(m, k, p, lo=0.5, hi=8),
     "illumination_px": lambda r, m, k, p: _illumination(r, m, k, p),
+    "sharpness_period_px": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=64),
 }
 
 

@@ -122,6 +122,8 @@ class BlockGrid:
     phase_col: int
     phase_row: int
     step_variance: float
+    step_col: float = 0.0  # squared step added across the vertical boundaries (between columns)
+    step_row: float = 0.0  # ... and across the horizontal ones (between rows)
 
     @property
     def present(self) -> bool:
@@ -171,5 +173,12 @@ def block_grid(block: np.ndarray, mask: np.ndarray | None = None, *, origin: tup
     base_c, base_r = float(np.median(np.delete(pc, kc))), float(np.median(np.delete(pr, kr)))
     base = base_c + base_r
     contrast = (pc[kc] + pr[kr]) / base if base > 0 else (math.inf if pc[kc] + pr[kr] > 0 else 1.0)
-    step = max(pc[kc] - base_c, 0.0) + max(pr[kr] - base_r, 0.0)
-    return BlockGrid(contrast=float(contrast), phase_col=kc, phase_row=kr, step_variance=float(step / 2.0))
+    step_c, step_r = max(pc[kc] - base_c, 0.0), max(pr[kr] - base_r, 0.0)
+    return BlockGrid(
+        contrast=float(contrast),
+        phase_col=kc,
+        phase_row=kr,
+        step_variance=float((step_c + step_r) / 2.0),
+        step_col=float(step_c),
+        step_row=float(step_r),
+    )

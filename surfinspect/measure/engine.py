@@ -28,17 +28,21 @@ from ..results import (
     part_verdict,
 )
 from .cells import cell_sums, merge_edge_slivers
-from .conditions import block_grid, saturated_pixels
+from .conditions import block_grid, illumination_background, saturated_pixels
 from .datum import DatumError, find_part_frame
 from .derivatives import gaussian_derivative_kernels
 from .imaging import as_grey_float
 from .judge import RegionMeasurement, judge_region
 from .noise import noise_gradient_energy, noise_sigma
+from .spectrum import spectral_lay, tensor_angle_standard_error
 
 __all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
 
 #: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
 HISTOGRAM_VOTE_STEP = 2
+
+#: The spectral estimate uses at most this many pixels square from the region's centre.
+SPECTRAL_SIDE = 512
 
 #: A region with fewer cells than this has its direction test made on cells a third the size.
 MIN_TEST_CELLS = 16
@@ -291,6 +295,9 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
             background_sigma=region.illumination_px,
         )
     cells = merge_edge_slivers(cells)
+    spectral = tensor_se = None
+    if region.lay is LayPattern.DIRECTIONAL:
+        spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask if keep is None else mask & keep, sigma_n)
     centre_px = None
     if region.centre is not None:
         cx, cy = frame.to_image([region.centre])[0]
@@ -307,7 +314,30 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         masked_fraction=masked,
         block_grid=_block_grid_sample(pixels, bbox, mask),
         test_cells=test_cells,
+        spectral=spectral,
+        tensor_standard_error_deg=tensor_se,
     )
+
+
+def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, sigma_n: float):
+    """The spectral lay and the tensor angle's spectral standard error, from the region's central part.
+
+    At most :data:`SPECTRAL_SIDE` px square, so the cost stays bounded; the standard error is scaled
+    from that part to the whole region (variance inversely proportional to the measured area).
+    """
+    x0, y0, w, h = bbox
+    side = SPECTRAL_SIDE
+    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
+    r1, c1 = min(h, r0 + side), min(w, c0 + side)
+    crop = mask[r0:r1, c0:c1]
+    if crop.sum() < 64:
+        return None, None
+    block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]
+    spectral = spectral_lay(block, crop, noise_sigma=sigma_n)
+    if region.illumination_px > 0:
+        block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
+    se = tensor_angle_standard_error(block, crop, sigma=region.sigma_px)
+    return spectral, se * math.sqrt(float(crop.sum()) / max(float(mask.sum()), 1.0))
 
 
 def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1024):

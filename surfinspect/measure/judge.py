@@ -32,7 +32,8 @@ from .derivatives import tensor_lay
 from .noise import noise_gradient_energy
 from .patterns import fit_centre, judge_centred, judge_crossed, judge_nondirectional
 from .robust import robust_lay
-from .uncertainty import cell_uncertainty
+from .spectrum import SpectralLay
+from .uncertainty import COVERAGE_K, STEP_GRADIENT_ENERGY, Budget, cell_uncertainty, combine
 from .verdict import Cells, Verdict, fmt_angle, fmt_signed
 
 __all__ = [
@@ -87,6 +88,8 @@ class RegionMeasurement:
     masked_fraction: float = 0.0  # share of the region's pixels left out as clipped (glare)
     block_grid: BlockGrid | None = None
     test_cells: CellSums | None = None  # finer cells for the direction test of a small region
+    spectral: SpectralLay | None = None  # the second, independent estimate (image axes)
+    tensor_standard_error_deg: float | None = None  # of the summed tensor's angle, from the spectrum
 
 
 def _cell_lays(m: RegionMeasurement) -> tuple[np.ndarray, np.ndarray]:
@@ -192,6 +195,17 @@ def _judge_directional(region: Region, m: RegionMeasurement, c: Cells, coherence
         robust_w = np.zeros(c.lay.shape)
         robust_w[use] = rl.weights
         v.deviating |= _content_across(region, m, c, use, robust_w > 0)
+    # the scatter of the cells that follow the region's lay; deviating patches and outliers are reported apart
+    keep = c.clear & ~v.deviating & (robust_w > 0)
+    keep = keep if keep.sum() >= 3 else c.clear
+    u_cells = cell_uncertainty(c.lay, np.where(robust_w > 0, robust_w, weights), keep)
+    se = None if u_cells is None else u_cells / COVERAGE_K
+    if m.spectral is not None and m.spectral.method == "lobe" and m.tensor_standard_error_deg is not None:
+        # a broad spectrum (brushed, ground): marks correlated over many cells make the cells' scatter
+        # understate the error; the spectral variance of the tensor angle does not (spectrum.py)
+        se = m.tensor_standard_error_deg if se is None else max(se, m.tensor_standard_error_deg)
+        v.extra["tensor_standard_error_deg"] = round(m.tensor_standard_error_deg, 5)
+    _estimate(region, m, c, v, keep, weights, se)
     v.deviation = wrap_deviation(v.lay, expected)
     if abs(v.deviation) > region.tolerance_deg:
         v.fail(
@@ -199,10 +213,58 @@ def _judge_directional(region: Region, m: RegionMeasurement, c: Cells, coherence
         )
     if coherence < region.min_coherence:
         v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
-    # the scatter of the cells that follow the region's lay; deviating patches and outliers are reported apart
-    keep = c.clear & ~v.deviating & (robust_w > 0)
-    keep = keep if keep.sum() >= 3 else c.clear
-    v.uncertainty = cell_uncertainty(c.lay, np.where(robust_w > 0, robust_w, weights), keep)
+
+
+def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, weights, se_tensor) -> None:
+    """Combine the tensor lay with the spectral one; the uncertainty budget; review on disagreement or blur."""
+    budget = Budget(statistical=se_tensor if se_tensor is not None else math.nan)
+    if keep.sum() >= 1:  # robust against plain weighting of the cells that follow the lay
+        plain_kept, _ = axial_mean(c.lay[keep], weights[keep])
+        budget.weighting = abs(wrap_deviation(v.lay, plain_kept)) / math.sqrt(3.0)
+    grid = m.block_grid
+    if grid is not None:  # any 8 x 8 step pattern, even one too weak to count as a grid for the texture test
+        s = m.cells
+        aniso = math.hypot(s.jxx.sum() - s.jyy.sum(), 2.0 * s.jxy.sum()) / max(s.area.sum(), 1.0)
+        pull = STEP_GRADIENT_ENERGY * abs(grid.step_col - grid.step_row) / max(aniso, 1e-300)
+        budget.compression = math.degrees(0.5 * math.asin(min(pull, 1.0))) / math.sqrt(3.0)
+    sp = m.spectral
+    if sp is not None and np.isfinite(sp.lay_deg):
+        lay_s = (sp.lay_deg - m.rotation_deg) % 180.0
+        d = wrap_deviation(lay_s, v.lay)
+        v.extra.update(
+            spectral_lay_deg=round(lay_s, 4), spectral_method=sp.method, finest_period_px=round(sp.finest_period_px, 2)
+        )
+        if sp.method == "line" and sp.standard_error_deg:
+            v.extra["spectral_standard_error_deg"] = round(sp.standard_error_deg, 5)
+            if se_tensor is None:
+                v.lay, budget.statistical = lay_s, sp.standard_error_deg
+            else:
+                v.lay, budget.statistical, budget.disagreement_ratio = combine(
+                    v.lay, se_tensor, lay_s, sp.standard_error_deg
+                )
+            if budget.disagreement_ratio > COVERAGE_K:
+                v.review.append(
+                    f"the tensor and spectral estimates disagree by {abs(d):.2f}° ({budget.disagreement_ratio:.1f} times "
+                    f"their combined standard error)"
+                )
+        elif sp.spectrum_pixels >= LOBE_COMPARE_PIXELS and abs(d) > region.tolerance_deg / 2.0:
+            v.review.append(
+                f"the tensor and spectral estimates disagree by {abs(d):.1f}° (more than half the tolerance): "
+                "the region may hold two kinds of marks"
+            )
+        # a single line (a grating) has no fine detail by nature: sharpness is judged on broad spectra
+        if sp.method == "lobe" and 0 < region.sharpness_period_px < sp.finest_period_px:
+            v.review.append(
+                f"image not sharp enough: the finest detail above the noise has a period of "
+                f"{sp.finest_period_px:.1f} px (needs {region.sharpness_period_px:g} px or finer); motion or focus blur"
+            )
+    v.extra["uncertainty_budget"] = budget.as_dict()
+    v.uncertainty = None if not np.isfinite(budget.statistical) else budget.expanded()
+
+
+#: The lobe estimate (broad spectra) has no model standard error; it is compared with the tensor lay only
+#: on at least this many pixels (128 px square), where its own scatter is well under a degree.
+LOBE_COMPARE_PIXELS = 128 * 128
 
 
 #: A cell deviates when what it holds beyond the grain, off the expected lay, is at least this share

@@ -53,3 +53,19 @@ def test_area_counts_measured_pixels_and_region_area_counts_the_region():
     assert c.region_area.sum() == 1600
     # the 4 px border band (kernel radius of sigma 1) and the 100 masked pixels are not measured
     assert c.area.sum() == 36 * 36 - 100
+
+
+@pytest.mark.parametrize("where", ["full frame", "40 px top-left corner", "strip on the top edge"])
+def test_engine_lay_at_the_border_is_unbiased(where):
+    # the whole engine (robust lay, spectral combination) on noise-free gratings at the border
+    from conftest import directional_recipe
+
+    from surfinspect import inspect_image
+
+    worst = 0.0
+    for lay in np.arange(0.0, 180.0, 15.0):
+        for period in (5.0, 13.0):
+            img = synth.sine_grating(SHAPE, lay, period, phase=0.3)
+            region = inspect_image(img, directional_recipe(BORDER_BOXES[where], lay)).regions[0]
+            worst = max(worst, abs(wrap_deviation(region.lay_deg, lay)))
+    assert worst <= 0.02

@@ -69,7 +69,7 @@ def _least_squares_lay(img: np.ndarray, start_lay: float, snr: float) -> float:
 @pytest.mark.slow
 @pytest.mark.parametrize("snr", [2.0, 1.0, 0.5])
 def test_spectral_lay_is_within_3_times_the_cramer_rao_bound(snr):
-    # 200 trials at random angles and phases; the least-squares fit of the same data (30 trials,
+    # 200 trials at random angles and phases; the least-squares fit of the same data (20 trials,
     # the maximum-likelihood estimate) reaches the bound, which checks the derivation itself
     rng = np.random.default_rng(int(snr * 100))
     crb = orientation_crb_deg(snr)
@@ -80,11 +80,11 @@ def test_spectral_lay_is_within_3_times_the_cramer_rao_bound(snr):
         assert est.method == "line"
         errors.append(wrap_deviation(est.lay_deg, lay))
         se.append(est.standard_error_deg)
-        if i < 30:
+        if i < 20:
             ls_errors.append(wrap_deviation(_least_squares_lay(img, est.lay_deg, snr), lay))
     ratio = float(np.std(errors)) / crb
     assert ratio <= 3.0  # measured 1.89 at every SNR (the Hann window's price)
-    assert 0.75 <= float(np.sqrt(np.mean(np.square(ls_errors)))) / crb <= 1.3  # least squares: at the bound
+    assert 0.7 <= float(np.sqrt(np.mean(np.square(ls_errors)))) / crb <= 1.35  # least squares: at the bound
     assert abs(float(np.mean(errors))) < 3 * float(np.std(errors)) / math.sqrt(200)  # no bias
     # the reported standard error (bound at the measured SNR x the window's factor) matches the scatter
     assert 0.8 <= float(np.mean(se)) / float(np.std(errors)) <= 1.25
