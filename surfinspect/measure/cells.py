@@ -154,7 +154,9 @@ def cell_sums(
     n_rows, n_cols = -(-h // cell_px), -(-w // cell_px)
     smooth, deriv = gaussian_derivative_kernels(sigma)
     halo = len(smooth) // 2
-    weights = _measured_pixels(mask, keep, bbox, image.shape, halo if interior_only else 0)
+    weights, (in_r0, in_r1, in_c0, in_c1) = _measured_pixels(
+        mask, keep, bbox, image.shape, halo if interior_only else 0
+    )
     strip_cells = max(1, STRIP_ROWS // cell_px)
     cx0, cx1 = max(0, x0 - halo), min(cols_img, x0 + w + halo)
     w_pad = n_cols * cell_px
@@ -185,12 +187,21 @@ def cell_sums(
         del block
         np.negative(gy, out=gy)  # rows grow downward; the part frame's y grows upward
         m = np.zeros((h_pad, w_pad), np.float32)
+        # rows and columns of this strip whose kernel lies inside the image (box coordinates - r0)
+        a0, a1 = max(0, in_r0 - r0), max(0, min(r1, in_r1) - r0)
         if weights is None:
-            m[: r1 - r0, :w] = 1.0
+            m[a0:a1, in_c0:in_c1] = 1.0
         else:
-            m[: r1 - r0, :w] = weights[r0:r1]
+            m[a0:a1, in_c0:in_c1] = weights[r0 + a0 : r0 + a1, in_c0:in_c1]
+        if weights is not None:
             gx *= m  # masked gradients: products and magnitudes vanish outside the measured pixels
             gy *= m
+        else:  # a full box: only the border band (if any) is left out, by slicing
+            for g in (gx, gy):
+                g[:a0] = 0.0
+                g[a1:] = 0.0
+                g[:, :in_c0] = 0.0
+                g[:, in_c1:] = 0.0
         area = _block_sum(m, cell_px)
         del m
         sums = (_block_sum(gx * gx, cell_px), _block_sum(gx * gy, cell_px), _block_sum(gy * gy, cell_px), area)
@@ -206,7 +217,12 @@ def cell_sums(
             sl = slice(cell_row0, cell_row0 + n_strip)
             jxx[sl], jxy[sl], jyy[sl], area[sl] = sums
             hist[sl] = strip_hist.reshape(n_strip, n_cols, bins)
-    region_area = _padded_block_sum(mask, cell_px, n_rows, n_cols)
+    if mask.all():  # whole cells, clipped at the box's edge
+        ext_r = np.diff(np.minimum(np.arange(n_rows + 1) * cell_px, h)).astype(np.float64)
+        ext_c = np.diff(np.minimum(np.arange(n_cols + 1) * cell_px, w)).astype(np.float64)
+        region_area = np.outer(ext_r, ext_c)
+    else:
+        region_area = _padded_block_sum(mask, cell_px, n_rows, n_cols)
     return CellSums(
         origin_px=(x0, y0),
         cell_px=cell_px,
@@ -243,23 +259,22 @@ def merge_edge_slivers(sums: CellSums) -> CellSums:
     return CellSums(origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, **arrays)
 
 
-def _measured_pixels(mask, keep, bbox, image_shape, border: int) -> np.ndarray | None:
-    """Pixels of the box that are measured (region, not masked, kernel inside the image); None: all."""
+def _measured_pixels(mask, keep, bbox, image_shape, border: int):
+    """Measured pixels of the box: (None or a bool array of region pixels not masked, interior rectangle).
+
+    The rectangle ``(r0, r1, c0, c1)`` (box coordinates) holds the pixels whose kernel lies inside
+    the image; the array is None when every pixel of the box belongs to the region and none is masked.
+    """
     x0, y0, w, h = bbox
     rows_img, cols_img = image_shape
-    near_border = border > 0 and (
-        x0 < border or y0 < border or x0 + w > cols_img - border or y0 + h > rows_img - border
+    inner = (
+        max(0, border - y0),
+        min(h, rows_img - border - y0),
+        max(0, border - x0),
+        min(w, cols_img - border - x0),
     )
     full = bool(mask.all()) and (keep is None or bool(keep.all()))
-    if full and not near_border:
-        return None
-    out = mask.copy() if keep is None else mask & keep
-    if near_border:
-        out[: max(0, border - y0)] = False
-        out[:, : max(0, border - x0)] = False
-        out[max(0, rows_img - border - y0) :] = False
-        out[:, max(0, cols_img - border - x0) :] = False
-    return out
+    return (None if full else (mask if keep is None else mask & keep)), inner
 
 
 def _padded_block_sum(a: np.ndarray, cell: int, n_rows: int, n_cols: int) -> np.ndarray:

@@ -65,11 +65,15 @@ class IlluminationBackground:
     def sample(self, row0: int, row1: int, col0: int, col1: int) -> np.ndarray:
         """The background on image rows ``row0:row1`` and columns ``col0:col1`` (bilinear)."""
         ox, oy = self.origin
-        cols = ((np.arange(col0, col1, dtype=np.float32) - ox) / 4.0)[None, :]
-        rows = ((np.arange(row0, row1, dtype=np.float32) - oy) / 4.0)[:, None]
-        map_x = np.broadcast_to(cols, (row1 - row0, col1 - col0)).astype(np.float32)
-        map_y = np.broadcast_to(rows, (row1 - row0, col1 - col0)).astype(np.float32)
-        return cv2.remap(self.small, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        # destination pixel (x, y) reads the coarse grid at ((x + col0 - ox) / 4, (y + row0 - oy) / 4)
+        to_small = np.array([[0.25, 0.0, (col0 - ox) / 4.0], [0.0, 0.25, (row0 - oy) / 4.0]])
+        return cv2.warpAffine(
+            self.small,
+            to_small,
+            (col1 - col0, row1 - row0),
+            flags=cv2.INTER_LINEAR | cv2.WARP_INVERSE_MAP,
+            borderMode=cv2.BORDER_REPLICATE,
+        )
 
 
 def illumination_background(block: np.ndarray, sigma_px: float, *, origin: tuple[int, int] = (0, 0)):

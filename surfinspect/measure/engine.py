@@ -42,7 +42,7 @@ __all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
 HISTOGRAM_VOTE_STEP = 2
 
 #: The spectral estimate uses at most this many pixels square from the region's centre.
-SPECTRAL_SIDE = 512
+SPECTRAL_SIDE = 256
 
 #: A region with fewer cells than this has its direction test made on cells a third the size.
 MIN_TEST_CELLS = 16
