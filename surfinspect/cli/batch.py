@@ -2,7 +2,7 @@
 
 Exit code: 1 when any part is rejected, else 3 when any part needs review, has
 an unreadable image or was not recorded (the batch stopped), else 0; 2 for an
-input error that stops the whole batch (see :mod:`surfinspect.batch`).
+input error that stops the whole batch (see :mod:`surfinspect.station.batch`).
 Stopped by a signal (Ctrl-C, SIGTERM, SIGHUP), the batch ends its worker
 processes and exits with 128 + the signal number, as a shell reports a
 process killed by that signal: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP.
@@ -20,6 +20,7 @@ from typing import Iterator
 
 from ..archive import store as archive
 from ..station import batch
+from ._keys import open_key
 from .console import Console
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
@@ -40,6 +41,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
         "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+    )
+    parser.add_argument(
+        "--station-key",
+        metavar="KEYFILE",
+        help="the station's private key (enrolled with role station): signs the chain head when the batch closes",
+    )
+    parser.add_argument(
+        "--passphrase-env", metavar="VAR", help="environment variable holding the station key's passphrase"
     )
 
 
@@ -112,6 +121,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         operator=args.operator,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
+        station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
     progress = _Progress(console)
     try:

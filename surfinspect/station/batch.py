@@ -40,6 +40,7 @@ import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
 from ..measure.imaging import read_image
@@ -99,6 +100,7 @@ class BatchConfig:
     operator: str | None = None
     recursive: bool = False
     out_dir: Path | None = None
+    station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
 
 
 @dataclass(frozen=True)
@@ -222,7 +224,9 @@ def _pool_context() -> multiprocessing.context.BaseContext:
     # fork is unsafe with threads (tqdm's monitor, BLAS); forkserver forks from a clean, preloaded server
     if "forkserver" in multiprocessing.get_all_start_methods():
         ctx = multiprocessing.get_context("forkserver")
-        ctx.set_forkserver_preload(["surfinspect.batch", "surfinspect.engine", "surfinspect.overlay"])
+        ctx.set_forkserver_preload(
+            ["surfinspect.station.batch", "surfinspect.measure.engine", "surfinspect.report.overlay"]
+        )
         return ctx
     return multiprocessing.get_context("spawn")
 
@@ -256,6 +260,10 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
+        if config.station_key is not None:  # refused before any work, not at the close
+            arc.register().require_signer(
+                config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
+            )
         hashed = {key: _hash_file(path) for key, path in images}
         plan = arc.start_batch(
             config.batch_id,
@@ -278,7 +286,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
-            batch = _finish(arc, config.batch_id)
+            batch = _finish(arc, config.batch_id, config.station_key)
         if config.out_dir is not None:
             export_batch(arc, config.batch_id, config.out_dir)
         parts = tuple(arc.parts(config.batch_id))
@@ -408,11 +416,15 @@ def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:
     return results.exit_code(verdicts)
 
 
-def _finish(arc: archive_mod.Archive, batch_id: str) -> archive_mod.BatchRow:
+def _finish(arc: archive_mod.Archive, batch_id: str, station_key: SigningKey | None = None) -> archive_mod.BatchRow:
     generated_at = archive_mod.utc_now()
     report = render_batch_report(arc, batch_id, generated_at=generated_at)
     return arc.finish_batch(
-        batch_id, report_pdf=report, regions_csv=regions_csv(arc, batch_id), report_generated_at=generated_at
+        batch_id,
+        report_pdf=report,
+        regions_csv=regions_csv(arc, batch_id),
+        report_generated_at=generated_at,
+        station_key=station_key,
     )
 
 
