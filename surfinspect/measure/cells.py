@@ -152,68 +152,15 @@ def cell_sums(
     if x0 < 0 or y0 < 0 or x0 + w > cols_img or y0 + h > rows_img:
         raise ValueError(f"bbox {bbox} lies outside the image of {cols_img}x{rows_img}")
     n_rows, n_cols = -(-h // cell_px), -(-w // cell_px)
-    smooth, deriv = gaussian_derivative_kernels(sigma)
-    halo = len(smooth) // 2
-    weights, (in_r0, in_r1, in_c0, in_c1) = _measured_pixels(
-        mask, keep, bbox, image.shape, halo if interior_only else 0
-    )
-    strip_cells = max(1, STRIP_ROWS // cell_px)
-    cx0, cx1 = max(0, x0 - halo), min(cols_img, x0 + w + halo)
-    w_pad = n_cols * cell_px
-    background = None
-    if background_sigma > 0:
-        from .conditions import illumination_background
-
-        by0, by1 = max(0, y0 - halo), min(rows_img, y0 + h + halo)
-        background = illumination_background(image[by0:by1, cx0:cx1], background_sigma, origin=(cx0, by0))
-    votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, w_pad)
-
-    def strip(cell_row0: int):
-        r0 = cell_row0 * cell_px  # strip rows relative to bbox
-        r1 = min(h, r0 + strip_cells * cell_px)
-        n_strip_cells = -(-(r1 - r0) // cell_px)
-        h_pad = n_strip_cells * cell_px
-        ry0, ry1 = max(0, y0 + r0 - halo), min(rows_img, y0 + r1 + halo)
-        block = np.ascontiguousarray(image[ry0:ry1, cx0:cx1], dtype=np.float32)
-        if background is not None:
-            block -= background.sample(ry0, ry1, cx0, cx1)
-        top, left = y0 + r0 - ry0, x0 - cx0
-        # gradients into zero-padded buffers whose size is a whole number of cells
-        gx = np.zeros((h_pad, w_pad), np.float32)
-        gy = np.zeros((h_pad, w_pad), np.float32)
-        inner = (slice(top, top + (r1 - r0)), slice(left, left + w))
-        gx[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, deriv, smooth, borderType=cv2.BORDER_REFLECT_101)[inner]
-        gy[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, smooth, deriv, borderType=cv2.BORDER_REFLECT_101)[inner]
-        del block
-        np.negative(gy, out=gy)  # rows grow downward; the part frame's y grows upward
-        m = np.zeros((h_pad, w_pad), np.float32)
-        # rows and columns of this strip whose kernel lies inside the image (box coordinates - r0)
-        a0, a1 = max(0, in_r0 - r0), max(0, min(r1, in_r1) - r0)
-        if weights is None:
-            m[a0:a1, in_c0:in_c1] = 1.0
-        else:
-            m[a0:a1, in_c0:in_c1] = weights[r0 + a0 : r0 + a1, in_c0:in_c1]
-        if weights is not None:
-            gx *= m  # masked gradients: products and magnitudes vanish outside the measured pixels
-            gy *= m
-        else:  # a full box: only the border band (if any) is left out, by slicing
-            for g in (gx, gy):
-                g[:a0] = 0.0
-                g[a1:] = 0.0
-                g[:, :in_c0] = 0.0
-                g[:, in_c1:] = 0.0
-        area = _block_sum(m, cell_px)
-        del m
-        sums = (_block_sum(gx * gx, cell_px), _block_sum(gx * gy, cell_px), _block_sum(gy * gy, cell_px), area)
-        return cell_row0, n_strip_cells, sums, votes.count(gx, gy, n_strip_cells)
-
+    strips = _Strips(image, mask, keep, (x0, y0, w, h), cell_px, sigma, interior_only, background_sigma)
+    strips.votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, strips.w_pad)
     jxx, jxy, jyy, area = (np.zeros((n_rows, n_cols)) for _ in range(4))
     hist = np.zeros((n_rows, n_cols, bins))
     from concurrent.futures import ThreadPoolExecutor
 
     # the vote counting (np.bincount) holds the GIL; the filters of the next strip run meanwhile
     with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        for cell_row0, n_strip, sums, strip_hist in pool.map(strip, range(0, n_rows, strip_cells)):
+        for cell_row0, n_strip, sums, strip_hist in pool.map(strips, range(0, n_rows, strips.strip_cells)):
             sl = slice(cell_row0, cell_row0 + n_strip)
             jxx[sl], jxy[sl], jyy[sl], area[sl] = sums
             hist[sl] = strip_hist.reshape(n_strip, n_cols, bins)
@@ -234,6 +181,75 @@ def cell_sums(
         hist=hist,
         region_area=region_area,
     )
+
+
+class _Strips:
+    """One strip of cell rows at a time: gradients, masked products, block sums and votes."""
+
+    def __init__(
+        self, image, mask, keep, box, cell_px: int, sigma: float, interior_only: bool, background_sigma: float
+    ):
+        x0, y0, w, h = box
+        rows_img, cols_img = image.shape
+        self.image, self.box, self.cell_px = image, box, cell_px
+        self.smooth, self.deriv = gaussian_derivative_kernels(sigma)
+        self.halo = halo = len(self.smooth) // 2
+        self.weights, self.inner = _measured_pixels(mask, keep, box, image.shape, halo if interior_only else 0)
+        self.strip_cells = max(1, STRIP_ROWS // cell_px)
+        self.cx0, self.cx1 = max(0, x0 - halo), min(cols_img, x0 + w + halo)
+        self.w_pad = -(-w // cell_px) * cell_px
+        self.background = None
+        self.votes: _Votes | None = None
+        if background_sigma > 0:
+            from .conditions import illumination_background
+
+            by0, by1 = max(0, y0 - halo), min(rows_img, y0 + h + halo)
+            self.background = illumination_background(
+                image[by0:by1, self.cx0 : self.cx1], background_sigma, origin=(self.cx0, by0)
+            )
+
+    def gradients(self, r0: int, r1: int, h_pad: int):
+        """gx, gy (y up) of box rows r0:r1 in zero-padded buffers a whole number of cells wide."""
+        x0, y0, w, _ = self.box
+        ry0, ry1 = max(0, y0 + r0 - self.halo), min(self.image.shape[0], y0 + r1 + self.halo)
+        block = np.ascontiguousarray(self.image[ry0:ry1, self.cx0 : self.cx1], dtype=np.float32)
+        if self.background is not None:
+            block -= self.background.sample(ry0, ry1, self.cx0, self.cx1)
+        top, left = y0 + r0 - ry0, x0 - self.cx0
+        inner = (slice(top, top + (r1 - r0)), slice(left, left + w))
+        gx = np.zeros((h_pad, self.w_pad), np.float32)
+        gy = np.zeros((h_pad, self.w_pad), np.float32)
+        border = cv2.BORDER_REFLECT_101
+        gx[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, self.deriv, self.smooth, borderType=border)[inner]
+        gy[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, self.smooth, self.deriv, borderType=border)[inner]
+        np.negative(gy, out=gy)  # rows grow downward; the part frame's y grows upward
+        return gx, gy
+
+    def __call__(self, cell_row0: int):
+        cell_px, h = self.cell_px, self.box[3]
+        r0 = cell_row0 * cell_px  # strip rows relative to the box
+        r1 = min(h, r0 + self.strip_cells * cell_px)
+        n_strip_cells = -(-(r1 - r0) // cell_px)
+        gx, gy = self.gradients(r0, r1, n_strip_cells * cell_px)
+        m = np.zeros_like(gx)
+        # rows and columns of this strip whose kernel lies inside the image (box coordinates - r0)
+        in_r0, in_r1, in_c0, in_c1 = self.inner
+        a0, a1 = max(0, in_r0 - r0), max(0, min(r1, in_r1) - r0)
+        if self.weights is None:  # a full box: only the border band (if any) is left out, by slicing
+            m[a0:a1, in_c0:in_c1] = 1.0
+            for g in (gx, gy):
+                g[:a0] = 0.0
+                g[a1:] = 0.0
+                g[:, :in_c0] = 0.0
+                g[:, in_c1:] = 0.0
+        else:
+            m[a0:a1, in_c0:in_c1] = self.weights[r0 + a0 : r0 + a1, in_c0:in_c1]
+            gx *= m  # masked gradients: products and magnitudes vanish outside the measured pixels
+            gy *= m
+        area = _block_sum(m, cell_px)
+        del m
+        sums = (_block_sum(gx * gx, cell_px), _block_sum(gx * gy, cell_px), _block_sum(gy * gy, cell_px), area)
+        return cell_row0, n_strip_cells, sums, self.votes.count(gx, gy, n_strip_cells)
 
 
 def merge_edge_slivers(sums: CellSums) -> CellSums:

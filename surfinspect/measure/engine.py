@@ -45,7 +45,7 @@ HISTOGRAM_VOTE_STEP = 2
 SPECTRAL_SIDE = 256
 
 #: A region with fewer cells than this has its direction test made on cells a third the size.
-MIN_TEST_CELLS = 16
+MIN_TEST_CELLS = 64
 
 #: Strips measured at once within one image (OpenCV and NumPy release the GIL).
 THREADS = 2

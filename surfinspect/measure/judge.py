@@ -247,11 +247,10 @@ def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, 
                     f"the tensor and spectral estimates disagree by {abs(d):.2f}° ({budget.disagreement_ratio:.1f} times "
                     f"their combined standard error)"
                 )
-        elif sp.spectrum_pixels >= LOBE_COMPARE_PIXELS and abs(d) > region.tolerance_deg / 2.0:
-            v.review.append(
-                f"the tensor and spectral estimates disagree by {abs(d):.1f}° (more than half the tolerance): "
-                "the region may hold two kinds of marks"
-            )
+        else:
+            # a lobe (broad spectrum) has no model standard error, and the spectrum also holds the cells
+            # the robust lay leaves out (patches, scratches): the difference is reported, not judged
+            v.extra["spectral_difference_deg"] = round(d, 4)
         # a single line (a grating) has no fine detail by nature: sharpness is judged on broad spectra
         if sp.method == "lobe" and 0 < region.sharpness_period_px < sp.finest_period_px:
             v.review.append(
@@ -260,11 +259,6 @@ def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, 
             )
     v.extra["uncertainty_budget"] = budget.as_dict()
     v.uncertainty = None if not np.isfinite(budget.statistical) else budget.expanded()
-
-
-#: The lobe estimate (broad spectra) has no model standard error; it is compared with the tensor lay only
-#: on at least this many pixels (128 px square), where its own scatter is well under a degree.
-LOBE_COMPARE_PIXELS = 128 * 128
 
 
 #: A cell deviates when what it holds beyond the grain, off the expected lay, is at least this share
