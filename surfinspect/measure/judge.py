@@ -10,7 +10,7 @@ Pure functions. The rules (all thresholds come from the recipe region):
   what the image's own noise gives. Such a region gets no angle at all.
 * **Directional** lay passes when ``|deviation| <= tolerance_deg`` (the lay is the robust
   combination of the cells, :mod:`.robust`), coherence ``>= min_coherence`` and the
-  deviating-patch share ``<= max_defect_fraction``.
+  deviating-patch share ``<= max_deviating_fraction``.
 * **Crossed**, **multidirectional / particulate**, **circular / radial**: :mod:`.patterns`.
 * **Any**: texture must be present; its direction is not judged.
 """
@@ -365,7 +365,7 @@ def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, w
         lay_deg=None,
         deviation_deg=None,
         uncertainty_deg=None,
-        defect_area_fraction=0.0,
+        deviating_area_fraction=0.0,
         patches=(),
         verdict=RegionVerdict.NO_TEXTURE,
         reasons=(why,),
@@ -421,6 +421,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         tolerance_deg=region.tolerance_deg,
         histogram=histogram,
         lay_pattern=region.lay.value,
+        lay_symbol=region.lay_symbol,
         outline_px=m.outline_px,
         exclude_px=m.exclude_px,
         coherence=float(coherence),
@@ -460,11 +461,11 @@ def _result(region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdi
     if region.lay is LayPattern.DIRECTIONAL and follow.any():
         grain = [float(a[follow].sum() / sums.area[follow].sum()) for a in (sums.jxx, sums.jxy, sums.jyy)]
     patches = _patches(v.deviating, m, expected, grain) if v.deviating.any() else ()
-    defect = float(sum(p.area_fraction for p in patches))
-    if defect > region.max_defect_fraction:
+    deviating = float(sum(p.area_fraction for p in patches))
+    if deviating > region.max_deviating_fraction:
         biggest = patches[0]
         v.fail(
-            f"{100 * defect:.1f}% of the area deviates (allowed {100 * region.max_defect_fraction:g}%): "
+            f"{100 * deviating:.1f}% of the area deviates (allowed {100 * region.max_deviating_fraction:g}%): "
             f"{len(patches)} patch{'es' if len(patches) > 1 else ''}, largest {100 * biggest.area_fraction:.1f}% "
             f"with lay {fmt_angle(biggest.lay_deg)}, {biggest.length_px:.0f} px long"
         )
@@ -489,7 +490,7 @@ def _result(region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdi
         lay_deg=v.lay,
         deviation_deg=v.deviation,
         uncertainty_deg=v.uncertainty,
-        defect_area_fraction=defect,
+        deviating_area_fraction=deviating,
         patches=patches,
         verdict=verdict,
         reasons=tuple(reasons),

@@ -151,7 +151,7 @@ def judge_crossed(region: Region, histogram: Histogram, v: Verdict) -> None:
     found, devs = [], []
     for e, (peak, _) in zip(region.lay_deg, peaks):
         if peak is None:
-            v.fail(f"no grain found near {fmt_angle(e)} (crossed lay needs both directions)")
+            v.fail(f"no lay found near {fmt_angle(e)} (crossed lay needs both directions)")
             found.append(None)
             devs.append(None)
             continue
@@ -159,7 +159,7 @@ def judge_crossed(region: Region, histogram: Histogram, v: Verdict) -> None:
         found.append(round(peak, 3))
         devs.append(round(d, 3))
         if abs(d) > region.tolerance_deg:
-            v.fail(f"grain {fmt_angle(peak)} is {abs(d):.1f}° off {fmt_angle(e)} (tolerance {region.tolerance_deg:g}°)")
+            v.fail(f"lay {fmt_angle(peak)} is {abs(d):.1f}° off {fmt_angle(e)} (tolerance {region.tolerance_deg:g}°)")
     v.extra.update(crossed_lay_deg=found, crossed_deviation_deg=devs)
     if all(p is not None for p, _ in peaks):
         shares = [share for _, share in peaks]

@@ -17,6 +17,7 @@ from datetime import datetime, timezone
 import cv2
 import numpy as np
 import pytest
+from pdfa_checks import assert_pdfa_2b
 from pypdf import PdfReader
 from pypdf.generic import ContentStream
 from test_overlay import (
@@ -31,6 +32,7 @@ from test_overlay import (
 
 from surfinspect import results
 from surfinspect.errors import InputError
+from surfinspect.pdfa.fonts import SANS_BOLD
 from surfinspect.report.pdf import (
     CAUTION,
     PICTURE_MAX_PX,
@@ -87,9 +89,9 @@ def test_text_holds_recipe_parts_regions_values_verdicts_and_hashes(three):
             if region["lay_deg"] is not None:
                 assert format_angle(region["lay_deg"], axial=True) in page
                 assert format_signed_angle(region["deviation_deg"]) in page
-            word = {"pass": "PASS", "fail": "FAIL", "no-texture": "NO TEXTURE"}[region["verdict"]]
+            word = {"pass": "PASS", "fail": "FAIL", "no-texture": "NO-TEXTURE"}[region["verdict"]]
             assert f"{region['name']}: {word}" in page  # the picture's label
-        assert {"accept": "ACCEPTED", "reject": "REJECTED", "review": "REVIEW"}[as_json["verdict"]] in page
+        assert {"accept": "ACCEPT", "reject": "REJECT", "review": "REVIEW"}[as_json["verdict"]] in page
     assert "90.12°" in everything and "+0.12°" in everything  # 90.123 printed with 2 decimals
     assert "J. Weber" in summary and socket.gethostname() in summary
 
@@ -253,19 +255,38 @@ def test_same_inputs_same_bytes_and_document_id_from_report_id():
     assert meta["/CreationDate"].startswith("D:20310402090000")
 
 
+@pytest.mark.parametrize("edition", ["unsigned", "signed", "batch statistics", "not inspected and extra page"])
+def test_every_report_edition_is_pdfa_2b(edition):
+    """ISO 19005-2 clauses checked by tests/pdfa_checks.py: fonts embedded, XMP 2/B, sRGB intent, no /Encrypt."""
+    parts = batch_of_three()
+    kwargs = {}
+    if edition == "signed":
+        # the comment holds characters the font lacks: they must print as '?', never as .notdef (6.2.11.8)
+        kwargs["signoff"] = SignOff("Ana Łukasiewicz", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment="検査 ok")
+    elif edition == "batch statistics":
+        kwargs["batch_stats"] = True
+    elif edition == "not inspected and extra page":
+        kwargs["not_inspected"] = [NotInspected("LW-220-0009.png", "e" * 64, "not a readable image")]
+        kwargs["extra_pages"] = [lambda c, size: (c.setFont(SANS_BOLD, 14), c.drawString(40, 700, "Extra"))]
+    pdf = render_report(parts, [make_pixels()] * 3, report_id="P-1", generated_at=WHEN, **kwargs)
+    assert_pdfa_2b(pdf)
+    meta = PdfReader(io.BytesIO(pdf)).metadata
+    assert meta.title == "Surface lay inspection report P-1" and meta.subject == "surfinspect report P-1"
+
+
 def test_signoff_block_empty_then_filled():
     parts = [make_part()]
     # reference: the SignOff fields of results.py, printed verbatim
     unsigned = PdfReader(io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN)))
     text = unsigned.pages[0].extract_text()
     assert "SIGN-OFF" in text and "NOT SIGNED" in text
-    sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, record_sha256="cd" * 32)
+    sign = SignOff("Anna Berg", "released", "2031-04-02T10:30:00Z", "ab" * 32, record_sha256="cd" * 32)
     signed = PdfReader(
         io.BytesIO(render_report(parts, [make_pixels()], report_id="S", generated_at=WHEN, signoff=sign))
     )
     text = signed.pages[0].extract_text()
     assert "NOT SIGNED" not in text
-    for value in ("Anna Berg", "APPROVED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
+    for value in ("Anna Berg", "RELEASED", "2031-04-02T10:30:00Z", "ab" * 32, "cd" * 32):
         assert value in text
 
 
@@ -291,7 +312,7 @@ def test_batch_statistics_page_matches_independent_capability():
     sigma = np.abs(np.diff(x)).mean() / 1.128
     cp = 6.0 / (6 * sigma)
     cpk = min(3.0 - x.mean(), x.mean() + 3.0) / (3 * sigma)
-    assert f"Cp {cp:.2f}" in stats and f"Cpk {cpk:.2f}" in stats
+    assert f"Cp {cp:.2f} (" in stats and f"Cpk {cpk:.2f} (" in stats
     # the 2.6 deg panel lies beyond mean + 2.66 mean(MR) (same reference): it is listed as #7 with
     # why, and the two moving ranges around it (|x7 - x6| and |x8 - x7|, hand-computed 2.55 and 2.48)
     # exceed 3.267 mean(MR): the later part of each pair, #7 and #8, is named
@@ -301,7 +322,14 @@ def test_batch_statistics_page_matches_independent_capability():
     assert "8 LW-220-0008" in stats and "deviation jump from #7 above the moving-range limit" in stats
     # the summary gives the same capability and points at the statistics page
     summary = " ".join(texts[0].split())
-    assert f"Cp {cp:.2f} · Cpk {cpk:.2f}" in summary and f"(page {k_stats + 1})" in summary
+    # with 95 % intervals: Cp by the chi-square quantiles (Montgomery ch. 8.3.5), Cpk by Bissell (1990)
+    from scipy.stats import chi2, norm
+
+    n = len(x)
+    cp_lo, cp_hi = cp * np.sqrt(chi2.ppf([0.025, 0.975], n - 1) / (n - 1))
+    half = norm.ppf(0.975) * np.sqrt(1 / (9 * n) + cpk**2 / (2 * (n - 1)))
+    shown = f"Cp {cp:.2f} ({cp_lo:.2f}-{cp_hi:.2f}) · Cpk {cpk:.2f} ({cpk - half:.2f}-{cpk + half:.2f})"
+    assert shown in summary and "fewer than 25 parts" in summary and f"(page {k_stats + 1})" in summary
 
 
 def test_batch_statistics_mark_parts_beyond_tolerance_inside_control_limits():
@@ -321,7 +349,7 @@ def test_batch_statistics_mark_parts_beyond_tolerance_inside_control_limits():
 
 def test_extra_pages_come_last_with_footer():
     def gauge_page(canvas, page_size):
-        canvas.setFont("Helvetica-Bold", 14)
+        canvas.setFont(SANS_BOLD, 14)
         canvas.drawString(40, page_size[1] - 60, "Gauge study: example page")
 
     pdf = render_report([make_part()], [make_pixels()], report_id="X", generated_at=WHEN, extra_pages=[gauge_page])
@@ -409,17 +437,17 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     unsigned = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN))))
     assert all("NOT SIGNED" in t for t in unsigned)
     comment = "Released after re-brushing of panel 0002; " + "checked against drawing LW-220 sheet 2 " * 4
-    sign = SignOff("Anna Berg", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
+    sign = SignOff("Anna Berg", "released", "2031-04-02T10:30:00Z", "ab" * 32, comment=comment, record_sha256="cd" * 32)
     signed = page_texts(
         PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign)))
     )
     # reference: the SignOff fields of results.py, printed verbatim on every page
     assert all(signoff_state(sign) in t and "NOT SIGNED" not in t for t in signed)
-    assert signoff_state(sign) == "Signed: APPROVED by Anna Berg, 2031-04-02T10:30:00Z"
+    assert signoff_state(sign) == "Signed: RELEASED by Anna Berg, 2031-04-02T10:30:00Z"
     # a long comment wraps inside the block: every word is there, and the block ends before the parts table
     summary = signed[0]
     assert " ".join(comment.split()) in " ".join(summary.split())
-    assert summary.index("sheet 2") < summary.index("Parts (rejected first")
+    assert summary.index("sheet 2") < summary.index("Parts (reject first")
 
 
 def _text_lines_with_baselines(page) -> list[tuple[str, float]]:
@@ -446,11 +474,11 @@ def _rects(page, reader) -> list[tuple[float, float, float, float]]:
 
 def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_inside():
     parts = batch_of_three()
-    # invented comment: Japanese for "checked" (outside Latin-1), then enough words to wrap onto several rows
+    # invented comment: Japanese for "checked" (not in the report's font), then enough words to wrap onto several rows
     comment = "検査済み: panel 0002 re-brushed, é and € kept; " + "checked against drawing LW-220 sheet 2 " * 6
     sign = SignOff(
         "Anna Berg",
-        "approved",
+        "released",
         "2031-04-02T10:30:00Z",
         "ab" * 32,
         comment=comment,
@@ -463,18 +491,18 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
     page = reader.pages[0]
     text = page.extract_text()
     assert "Covers report" in text and "SHA-256 " + "ef" * 32 in text
-    # WinAnsiEncoding (PDF 32000-1:2008, Annex D.2) holds é and €, not the kana/kanji: those print as '?'
+    # Liberation Sans holds é and €, not the kana/kanji (see the printable_text test): those print as '?'
     assert "■" not in text
     assert "????: panel 0002 re-brushed, é and € kept;" in " ".join(text.split())
-    assert "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)" in text
+    assert "(characters the report's font lacks shown as ?; the signed record keeps the exact text)" in text
     lines = _text_lines_with_baselines(page)
     title_y = next(y for t, y in lines if t == "SIGN-OFF")
     # the frame drawn around the title: its top edge 15 pt above the title's baseline (the block's own layout)
     (box,) = [r for r in _rects(page, reader) if abs(r[1] + r[3] - (title_y + 15)) < 0.01]
     bottom, top = box[1], box[1] + box[3]
-    comment_rows = [y for t, y in lines if "sheet 2" in t or "characters outside Latin-1" in t]
+    comment_rows = [y for t, y in lines if "sheet 2" in t or "font lacks" in t]
     assert len(comment_rows) >= 3  # the comment wrapped, and the note follows it
-    # a 7.5 pt Helvetica descender reaches ~1.6 pt below the baseline (AFM descender -207/1000)
+    # a 7.5 pt Liberation Sans descender reaches ~1.6 pt below the baseline (hhea descender -434/2048 em)
     assert all(bottom + 1.6 < y < top for y in comment_rows)
     parts_title_y = next(y for t, y in lines if t == "Parts")
     assert parts_title_y < bottom
@@ -483,9 +511,34 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
 def test_printable_text_replaces_only_what_the_report_font_cannot_show():
     from surfinspect.report.pdf import printable_text
 
-    # reference: Python's cp1252 codec, the Windows Latin-1 set of PDF's WinAnsiEncoding (PDF 32000-1:2008, Annex D.2)
-    assert printable_text("Müller – 5 € ‰") == ("Müller – 5 € ‰", False)
+    # Latin, Greek and Cyrillic names print as written now that the font is embedded
+    assert printable_text("Müller – 5 € ‰ Łukasz Ωμέγα Жуков") == ("Müller – 5 € ‰ Łukasz Ωμέγα Жуков", False)
     assert printable_text("李 Wei\x07") == ("? Wei?", True)
+
+
+def test_printable_text_agrees_with_the_font_files_own_character_maps():
+    """reference: fontTools, a TrueType reader independent of reportlab's: a character is kept iff every
+    sans face the report prints in (regular, bold, italic) maps it to a glyph, control characters never."""
+    import unicodedata
+    from importlib import resources
+
+    ttLib = pytest.importorskip("fontTools.ttLib")
+    from surfinspect.report.pdf import printable_text
+
+    maps = []
+    for face in ("LiberationSans-Regular", "LiberationSans-Bold", "LiberationSans-Italic"):
+        with resources.as_file(resources.files("surfinspect.pdfa") / "data" / f"{face}.ttf") as path:
+            maps.append(ttLib.TTFont(str(path)).getBestCmap())
+    # a sample across what a name or comment may hold: controls, Latin-1, Latin Extended, Greek, Cyrillic,
+    # Hebrew, Arabic, symbols, arrows, maths, CJK
+    sample = [chr(c) for c in range(0x01, 0x2300, 3)] + list("李検한🙂")
+    kept = 0
+    for ch in sample:
+        expected = all(ord(ch) in m for m in maps) and not unicodedata.category(ch).startswith("C")
+        assert printable_text(ch) == ((ch, False) if expected else ("?", True)), f"U+{ord(ch):04X}"
+        kept += expected
+    assert 600 < kept < len(sample) - 400  # the sample holds plenty of both kinds
+    assert all(printable_text(ch) == (ch, False) for ch in "é€ŁΩЖ≤≥±°·…—")
 
 
 def test_not_inspected_parts_are_counted_listed_and_paged():
@@ -494,11 +547,11 @@ def test_not_inspected_parts_are_counted_listed_and_paged():
     pdf = render_report(parts, [make_pixels()] * 3, report_id="N", generated_at=WHEN, not_inspected=[lost])
     texts = page_texts(PdfReader(io.BytesIO(pdf)))
     summary = " ".join(texts[0].split())
-    assert "NOT INSPECTED" in summary and "1 not inspected" in summary
+    assert "NOT-INSPECTED" in summary and "1 not-inspected" in summary
     assert "LW-220-0009.png" in summary and "not a readable image" in summary
     # listed after the reject and before the part that needs review (a hold, like the rejects)
     assert summary.index("LW-220-0002") < summary.index("LW-220-0009.png") < summary.index("LW-220-0003")
-    k = next(i for i, t in enumerate(texts) if t.lstrip().startswith("Parts not inspected: 1 of 4"))
+    k = next(i for i, t in enumerate(texts) if t.lstrip().startswith("Parts not-inspected: 1 of 4"))
     assert "e" * 64 in texts[k].replace("\n", "")
     row = summary[summary.index("LW-220-0009.png") :].split("truncated)")[1].split()[0]
     assert row == str(k + 1)  # the summary's page column points at the list
@@ -525,7 +578,7 @@ def test_verdict_sentence_wraps_instead_of_cutting_off():
     part = make_part(regions=(face, blank))
     texts = page_texts(PdfReader(io.BytesIO(render_report([part], [None], report_id="W", generated_at=WHEN))))
     header = " ".join(texts[1].split("Image file")[0].split())
-    assert f"Needs review: pad: {long_reason}" in header and "…" not in header
+    assert f"Review: pad: {long_reason}" in header and "…" not in header
     one = make_part(regions=(face,))
     texts = page_texts(PdfReader(io.BytesIO(render_report([one], [None], report_id="W", generated_at=WHEN))))
     assert "The region is within its limits." in texts[1]
