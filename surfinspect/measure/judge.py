@@ -204,7 +204,7 @@ def _judge_directional(region: Region, m: RegionMeasurement, c: Cells, coherence
         # a broad spectrum (brushed, ground): marks correlated over many cells make the cells' scatter
         # understate the error; the spectral variance of the tensor angle does not (spectrum.py)
         se = m.tensor_standard_error_deg if se is None else max(se, m.tensor_standard_error_deg)
-        v.extra["tensor_standard_error_deg"] = round(m.tensor_standard_error_deg, 5)
+        v.extra["tensor_standard_uncertainty_deg"] = round(m.tensor_standard_error_deg, 5)
     _estimate(region, m, c, v, keep, weights, se)
     v.deviation = wrap_deviation(v.lay, expected)
     if abs(v.deviation) > region.tolerance_deg:
@@ -235,7 +235,7 @@ def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, 
             spectral_lay_deg=round(lay_s, 4), spectral_method=sp.method, finest_period_px=round(sp.finest_period_px, 2)
         )
         if sp.method == "line" and sp.standard_error_deg:
-            v.extra["spectral_standard_error_deg"] = round(sp.standard_error_deg, 5)
+            v.extra["spectral_standard_uncertainty_deg"] = round(sp.standard_error_deg, 5)
             if se_tensor is None:
                 v.lay, budget.statistical = lay_s, sp.standard_error_deg
             else:
@@ -245,7 +245,7 @@ def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, 
             if budget.disagreement_ratio > COVERAGE_K:
                 v.review.append(
                     f"the tensor and spectral estimates disagree by {abs(d):.2f}° ({budget.disagreement_ratio:.1f} times "
-                    f"their combined standard error)"
+                    f"their combined standard uncertainty)"
                 )
         else:
             # a lobe (broad spectrum) has no model standard error, and the spectrum also holds the cells
