@@ -15,9 +15,11 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Callable
 
-import yaml
-
-from .errors import RecipeError
+from . import _safe_yaml
+from ._safe_yaml import Map as _Map
+from ._safe_yaml import describe as _describe
+from .errors import InputError, RecipeError
+from .inputs import read_regular_file, text_problem
 
 __all__ = ["LayPattern", "Shape", "Region", "Recipe", "load_recipe", "parse_recipe"]
 
@@ -67,6 +69,21 @@ REGION_DEFAULTS: dict[str, Any] = {
 }
 
 SHAPE_KEYS = ("rect", "polygon", "circle", "annulus")
+
+#: Bounds on what a recipe may hold (see the README, "Limits"). Coordinates and sizes are in
+#: recipe units (pixels, or mm with pixel_size_mm); a 200-megapixel image is ~15000 px a side.
+LIMITS = {
+    "coordinate": 1_000_000.0,  # |x|, |y|, sizes and radii
+    "revision": 2**31 - 1,
+    "pixel_size_mm": (1e-6, 100.0),
+    "regions": 1000,
+    "excludes": 100,
+    "polygon_points": 10_000,
+    "recipe_name_chars": 120,
+    "region_name_chars": 80,
+    "description_chars": 4000,
+    "problems_shown": 50,
+}
 
 
 @dataclass(frozen=True)
@@ -161,56 +178,31 @@ class _Problems:
     def add(self, line: int, path: str, text: str) -> None:
         self.items.append((line, f"{self.source}:{line}: {path}: {text}"))
 
-
-def _to_python(node: yaml.Node, problems: _Problems, path: str) -> Any:
-    """Convert a composed YAML node to Python values, keeping line numbers.
-
-    Mappings become :class:`_Map` (a dict that remembers each key's line).
-    """
-    if isinstance(node, yaml.MappingNode):
-        out = _Map(node.start_mark.line + 1)
-        for key_node, value_node in node.value:
-            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else str(key_node.value)
-            sub = f"{path}.{key}" if path else key
-            if key in out:
-                problems.add(key_node.start_mark.line + 1, sub, "key given twice")
-            out[key] = _to_python(value_node, problems, sub)
-            out.lines[key] = key_node.start_mark.line + 1
-        return out
-    if isinstance(node, yaml.SequenceNode):
-        seq = _Seq(_to_python(v, problems, f"{path}[{i}]") for i, v in enumerate(node.value))
-        seq.line = node.start_mark.line + 1
-        seq.lines = [v.start_mark.line + 1 for v in node.value]
-        return seq
-    return yaml.SafeLoader.construct_object(_constructor(), node)
-
-
-class _Map(dict):
-    def __init__(self, line: int):
-        super().__init__()
-        self.line = line
-        self.lines: dict[str, int] = {}
-
-    def line_of(self, key: str) -> int:
-        return self.lines.get(key, self.line)
-
-
-class _Seq(list):
-    line = 0
-    lines: list[int] = []
-
-
-def _constructor() -> yaml.SafeLoader:
-    return yaml.SafeLoader("")
-
-
-def _describe(value: Any) -> str:
-    text = repr(value) if isinstance(value, str) else str(value)
-    return text if len(text) <= 60 else text[:57] + "..."
+    def raise_if_any(self) -> None:
+        if not self.items:
+            return
+        lines = [text for _, text in sorted(self.items, key=lambda t: t[0])]
+        shown = LIMITS["problems_shown"]
+        if len(lines) > shown:
+            lines = lines[:shown] + [f"{self.source}: ... and {len(lines) - shown} more problems"]
+        raise RecipeError(lines[0] if len(lines) == 1 else f"{len(self.items)} problems in {self.source}", lines)
 
 
 def _is_number(v: Any) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        return False
+    # an int beyond float range would raise in isfinite; no recipe number comes near 1e15
+    return abs(v) <= 1e15 if isinstance(v, int) else math.isfinite(v)
+
+
+def _num(x: float) -> str:
+    return f"{x:g}" if isinstance(x, float) else str(x)
+
+
+def _not_a_number(v: Any) -> str:
+    if isinstance(v, float):
+        return f"must be a finite number (got {_describe(v)})"
+    return f"must be a number (got {_describe(v)}{_safe_yaml.number_hint(v)})"
 
 
 class _Reader:
@@ -230,14 +222,15 @@ class _Reader:
         if integer and not (isinstance(v, int) and not isinstance(v, bool)):
             self.p.add(m.line_of(key), where, f"must be a whole number (got {_describe(v)})")
             return None
-        if not _is_number(v):
-            self.p.add(m.line_of(key), where, f"must be a number (got {_describe(v)})")
+        huge = isinstance(v, int) and not isinstance(v, bool) and not _is_number(v)
+        if not _is_number(v) and not huge:
+            self.p.add(m.line_of(key), where, _not_a_number(v))
             return None
         bad_lo = lo is not None and (v <= lo if lo_open else v < lo)
-        bad_hi = hi is not None and v > hi
+        bad_hi = huge or (hi is not None and v > hi)
         if bad_lo or bad_hi:
-            lo_text = "" if lo is None else (f"> {lo}" if lo_open else f">= {lo}")
-            hi_text = "" if hi is None else f"<= {hi}"
+            lo_text = "" if lo is None else (f"> {_num(lo)}" if lo_open else f">= {_num(lo)}")
+            hi_text = "" if hi is None else f"<= {_num(hi)}"
             allowed = " and ".join(t for t in (lo_text, hi_text) if t)
             self.p.add(m.line_of(key), where, f"out of range (got {_describe(v)}, allowed {allowed})")
             return None
@@ -248,10 +241,29 @@ class _Reader:
             n = f"{count} numbers" if count is not None else "a list of numbers"
             self.p.add(line, where, f"must be {n} {what} (got {_describe(value)})")
             return None
-        if not all(_is_number(v) for v in value):
-            self.p.add(line, where, f"must hold numbers only (got {_describe(value)})")
+        bad = next((v for v in value if not _is_number(v)), None)
+        if bad is not None:
+            self.p.add(line, where, f"must hold numbers only (got {_describe(bad)}{_safe_yaml.number_hint(bad)})")
+            return None
+        limit = LIMITS["coordinate"]
+        if any(abs(v) > limit for v in value):
+            self.p.add(line, where, f"out of range (got {_describe(list(value))}, allowed -{limit:g} to {limit:g})")
             return None
         return tuple(float(v) for v in value)
+
+    def text(self, m: _Map, key: str, path: str, *, max_chars: int, allow: str = "", required: bool = True):
+        """A name or free text: a string of printable characters, bounded in length."""
+        v = m.get(key)
+        where = _join(path, key)
+        if not isinstance(v, str) or (required and not v.strip()):
+            what = "needs a name" if required else "must be text"
+            self.p.add(m.line_of(key), where, f"{what} (got {_describe(v)})")
+            return None
+        problem = text_problem(v, max_chars=max_chars, allow=allow)
+        if problem is not None:
+            self.p.add(m.line_of(key), where, problem)
+            return None
+        return v
 
 
 def _join(path: str, key: str) -> str:
@@ -275,8 +287,10 @@ def _parse_shape(r: _Reader, m: _Map, path: str, *, allow_annulus: bool) -> Shap
             r.p.add(line, where, f"width and height must be > 0 (got {list(value)})")
             return None
     elif kind == "polygon":
-        if not isinstance(value, list) or len(value) < 3:
-            r.p.add(line, where, f"must be a list of at least 3 [x, y] points (got {_describe(value)})")
+        most = LIMITS["polygon_points"]
+        if not isinstance(value, list) or not 3 <= len(value) <= most:
+            got = f"{len(value)} points" if isinstance(value, list) else _describe(value)
+            r.p.add(line, where, f"must be a list of 3 to {most} [x, y] points (got {got})")
             return None
         pts = [r.numbers(pt, line, f"{where}[{i}]", 2, "[x, y]") for i, pt in enumerate(value)]
         if any(p is None for p in pts):
@@ -322,10 +336,11 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
         return None
     n_before = len(r.p.items)
-    name = m.get("name")
-    if not isinstance(name, str) or not name.strip():
-        r.p.add(m.line, _join(path, "name"), f"every region needs a name (got {_describe(name)})")
-        name = None
+    if "name" not in m:
+        r.p.add(m.line, _join(path, "name"), "missing: every region needs a name")
+    name = r.text(m, "name", path, max_chars=LIMITS["region_name_chars"]) if "name" in m else None
+    if name is None:
+        pass
     elif name in names:
         r.p.add(m.line_of("name"), _join(path, "name"), f"region name {name!r} is used twice")
     else:
@@ -337,8 +352,13 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
     excludes: list[Shape] = []
     if "exclude" in m:
         ex = m["exclude"]
-        if not isinstance(ex, list):
-            r.p.add(m.line_of("exclude"), _join(path, "exclude"), f"must be a list of shapes (got {_describe(ex)})")
+        if not isinstance(ex, list) or len(ex) > LIMITS["excludes"]:
+            got = f"{len(ex)} shapes" if isinstance(ex, list) else _describe(ex)
+            r.p.add(
+                m.line_of("exclude"),
+                _join(path, "exclude"),
+                f"must be a list of at most {LIMITS['excludes']} shapes (got {got})",
+            )
         else:
             for i, item in enumerate(ex):
                 where = f"{_join(path, 'exclude')}[{i}]"
@@ -391,7 +411,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 "missing: a directional region needs lay_deg (allowed 0 <= lay_deg < 180), or give lay: multidirectional, circular, ...",
             )
         elif not _is_number(raw):
-            r.p.add(m.line_of("lay_deg"), where, f"must be a number (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
+            r.p.add(m.line_of("lay_deg"), where, f"{_not_a_number(raw)[:-1]}, allowed 0 <= lay_deg < 180)")
         elif not (0 <= raw < 180):
             r.p.add(m.line_of("lay_deg"), where, f"out of range (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
         else:
@@ -456,31 +476,25 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         Listing every problem found, each ``file:line: key: what is wrong``.
     """
     problems = _Problems(source)
-    try:
-        nodes = list(yaml.compose_all(text, Loader=yaml.SafeLoader))
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        line = mark.line + 1 if mark else 0
-        what = getattr(exc, "problem", None) or str(exc).splitlines()[0]
-        raise RecipeError(f"{source}:{line}: not valid YAML: {what}") from None
-    if len(nodes) != 1 or not isinstance(nodes[0], yaml.MappingNode):
-        raise RecipeError(f"{source}:1: recipe: the file must hold one mapping with keys recipe, revision, regions")
-    doc = _to_python(nodes[0], problems, "")
+    doc = _safe_yaml.compose_mapping(text, source, problems)
     r = _Reader(problems)
     r.unknown(doc, _TOP_KEYS, "")
 
-    name = doc.get("recipe")
-    if not isinstance(name, str) or not name.strip():
-        problems.add(doc.line_of("recipe"), "recipe", f"needs a name (got {_describe(name)})")
-    revision = r.number(doc, "revision", "", lo=0, integer=True) if "revision" in doc else None
-    if "revision" not in doc:
-        problems.add(doc.line, "revision", "missing (allowed a whole number >= 0)")
+    name = r.text(doc, "recipe", "", max_chars=LIMITS["recipe_name_chars"])
+    revision = None
+    if "revision" in doc:
+        revision = r.number(doc, "revision", "", lo=0, hi=LIMITS["revision"], integer=True)
+    else:
+        problems.add(doc.line, "revision", f"missing (allowed a whole number from 0 to {LIMITS['revision']})")
     datum = doc.get("datum", "image")
     if datum not in DATUMS:
         problems.add(
             doc.line_of("datum"), "datum", f"unknown datum (got {_describe(datum)}, allowed {', '.join(DATUMS)})"
         )
-    pixel_size = r.number(doc, "pixel_size_mm", "", lo=0, lo_open=True) if "pixel_size_mm" in doc else None
+    pixel_size = None
+    if "pixel_size_mm" in doc:
+        lo, hi = LIMITS["pixel_size_mm"]
+        pixel_size = r.number(doc, "pixel_size_mm", "", lo=lo, hi=hi)
     camera_rotation = 0.0
     if "camera_rotation_deg" in doc:
         if datum != "image":
@@ -490,9 +504,11 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
                 "only used with datum: image (the part-edge datum measures the skew)",
             )
         camera_rotation = r.number(doc, "camera_rotation_deg", "", lo=-45, hi=45) or 0.0
-    description = doc.get("description", "")
-    if not isinstance(description, str):
-        problems.add(doc.line_of("description"), "description", f"must be text (got {_describe(description)})")
+    description = ""
+    if "description" in doc:
+        description = r.text(
+            doc, "description", "", max_chars=LIMITS["description_chars"], allow="\n\t", required=False
+        )
 
     defaults = dict(REGION_DEFAULTS)
     if "defaults" in doc:
@@ -509,10 +525,10 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
 
     regions: list[Region] = []
     raw_regions = doc.get("regions")
-    if not isinstance(raw_regions, list) or not raw_regions:
-        problems.add(
-            doc.line_of("regions"), "regions", f"needs a list of at least one region (got {_describe(raw_regions)})"
-        )
+    most = LIMITS["regions"]
+    if not isinstance(raw_regions, list) or not 1 <= len(raw_regions) <= most:
+        got = f"{len(raw_regions)} regions" if isinstance(raw_regions, list) else _describe(raw_regions)
+        problems.add(doc.line_of("regions"), "regions", f"needs a list of 1 to {most} regions (got {got})")
     else:
         names: set[str] = set()
         for i, item in enumerate(raw_regions):
@@ -520,9 +536,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
             if reg is not None:
                 regions.append(reg)
 
-    if problems.items:
-        lines = [text for _, text in sorted(problems.items, key=lambda t: t[0])]
-        raise RecipeError(lines[0] if len(lines) == 1 else f"{len(lines)} problems in {source}", lines)
+    problems.raise_if_any()
 
     return Recipe(
         name=name.strip(),
@@ -531,7 +545,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         datum=datum,
         pixel_size_mm=pixel_size,
         camera_rotation_deg=float(camera_rotation),
-        description=description,
+        description=description or "",
         path=source,
         sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
     )
@@ -547,9 +561,11 @@ def load_recipe(path: str | Path) -> Recipe:
     """
     path = Path(path)
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise RecipeError(f"{path}: cannot read recipe ({exc.strerror or exc})") from None
+        data = read_regular_file(path, "recipe", max_bytes=_safe_yaml.MAX_RECIPE_BYTES)
+    except RecipeError:
+        raise
+    except InputError as exc:
+        raise RecipeError(str(exc)) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:
