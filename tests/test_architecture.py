@@ -20,7 +20,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "surfinspect"
 FLOORS = {"shared": 0, "measure": 1, "qualify": 2, "report": 3, "archive": 4, "station": 5, "review": 6, "cli": 7}
 
 #: What the measurement core may import besides the standard library and its own package.
-MEASURE_THIRD_PARTY = {"numpy", "scipy", "cv2", "skimage"}
+MEASURE_THIRD_PARTY = {"numpy", "scipy", "cv2", "skimage", "PIL", "simplejpeg"}  # the last two: strict image checks
 
 #: Modules that exist to face the outside (the public API and ``python -m``) may import any room.
 FACADES = {"surfinspect/__init__.py", "surfinspect/__main__.py"}

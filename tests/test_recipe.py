@@ -97,7 +97,10 @@ regions:
             r"defaults\.tolerance_deg: out of range \(got 0, allowed > 0 and <= 45\)",
         ),
         (("lay: C", "lay: C\n    lay_deg: 10"), r"regions\[1\]\(pad\)\.lay_deg: not used with lay 'C'"),
-        (("datum: image", "datum: image\npixel_size_mm: 0"), r"pixel_size_mm: out of range \(got 0, allowed >= 1e-06 and <= 100\)"),
+        (
+            ("datum: image", "datum: image\npixel_size_mm: 0"),
+            r"pixel_size_mm: out of range \(got 0, allowed >= 1e-06 and <= 100\)",
+        ),
     ],
 )
 def test_field_errors_name_the_field_and_allowed_values(change, message):

@@ -2,21 +2,54 @@
 
 One policy for every image that enters the engine: a 2-D float32 array of grey
 values scaled to [0, 1] by the file's own bit depth, rows growing downward.
+
+An image file is untrusted input. Before it is decoded: only a regular file
+is read (never a FIFO or a device), at most ``SURFINSPECT_MAX_IMAGE_MB``
+megabytes of it (default 1024), and the size its header declares must be
+within the pixel budget, ``SURFINSPECT_MAX_MEGAPIXELS`` (default 200). Then a
+strict decoder must read the whole file without a warning (libjpeg-turbo
+through simplejpeg for JPEG, Pillow for the rest) before OpenCV decodes it for
+the engine: OpenCV, like libjpeg, fills a damaged or short file with grey and
+only warns.
 """
 
 from __future__ import annotations
 
 import hashlib
+import io
+import threading
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
 import cv2
 import numpy as np
+import simplejpeg
+from PIL import Image
 
 from ..errors import InputError
+from ..inputs import env_limit, read_regular_file
 from ..results import ImageInfo
 
-__all__ = ["LoadedImage", "read_image", "decode_image", "as_grey_float", "IMAGE_SUFFIXES"]
+__all__ = [
+    "LoadedImage",
+    "read_image",
+    "decode_image",
+    "as_grey_float",
+    "IMAGE_SUFFIXES",
+    "MAX_MEGAPIXELS_ENV",
+    "MAX_IMAGE_MB_ENV",
+    "pixel_budget",
+]
+
+#: Environment variable: the pixel budget in megapixels (default 200; a header declaring more is refused).
+MAX_MEGAPIXELS_ENV = "SURFINSPECT_MAX_MEGAPIXELS"
+DEFAULT_MAX_MEGAPIXELS = 200.0
+#: Environment variable: the largest image file read, in megabytes (default 1024).
+MAX_IMAGE_MB_ENV = "SURFINSPECT_MAX_IMAGE_MB"
+DEFAULT_MAX_IMAGE_MB = 1024.0
+#: Smallest image side, px.
+MIN_SIDE_PX = 16
 
 IMAGE_SUFFIXES = (".png", ".tif", ".tiff", ".jpg", ".jpeg", ".bmp")
 
@@ -77,6 +110,7 @@ def decode_image(data: bytes, name: str) -> tuple[np.ndarray, int]:
         raise InputError(f"{name}: image file is empty")
     if _looks_truncated(data):  # checked first: the decoder would print its own complaint
         raise InputError(f"{name}: image file is truncated (its end marker is missing)")
+    _check_strictly(data, name)
     buf = np.frombuffer(data, dtype=np.uint8)
     # ANYCOLOR (not UNCHANGED) so that a camera's EXIF orientation tag is applied: the picture
     # is measured the way it is seen, and lay angles refer to that view
@@ -97,6 +131,85 @@ def decode_image(data: bytes, name: str) -> tuple[np.ndarray, int]:
     return as_grey_float(raw), bit_depth
 
 
+def pixel_budget() -> int:
+    """The largest image, in pixels, that is decoded (``SURFINSPECT_MAX_MEGAPIXELS``, default 200 MP).
+
+    Raises
+    ------
+    InputError
+        When the variable is set to something other than a number from 0.001 to 10000.
+    """
+    return int(env_limit(MAX_MEGAPIXELS_ENV, DEFAULT_MAX_MEGAPIXELS, lo=0.001, hi=10_000) * 1e6)
+
+
+#: Pillow's own decompression-bomb bound is a module global; it is lifted only while a header is
+#: read under this lock, because the pixel budget below takes its place.
+_PIL_LOCK = threading.Lock()
+
+
+def _pillow_open(data: bytes) -> Image.Image:
+    """``Image.open`` without Pillow's own bomb bound (its module global, lifted under a lock for the open)."""
+    with _PIL_LOCK:
+        bound = Image.MAX_IMAGE_PIXELS
+        Image.MAX_IMAGE_PIXELS = None
+        try:
+            return Image.open(io.BytesIO(data))
+        finally:
+            Image.MAX_IMAGE_PIXELS = bound
+
+
+def _is_jpeg(data: bytes) -> bool:
+    return data[:3] == b"\xff\xd8\xff"
+
+
+def _declared_size(data: bytes, name: str) -> tuple[int, int]:
+    """(width, height) from the file's header, without decoding the pixels."""
+    try:
+        if _is_jpeg(data):
+            height, width, _, _ = simplejpeg.decode_jpeg_header(data)
+            return int(width), int(height)
+        with _pillow_open(data) as im:
+            return im.size
+    except Exception as exc:  # any decoder's complaint about a header is the same finding for the user
+        raise InputError(
+            f"{name}: not a readable image (allowed PNG, TIFF, JPEG, BMP at 8 or 16 bits; the header says: {exc})"
+        ) from None
+
+
+def _check_strictly(data: bytes, name: str) -> None:
+    """Refuse an image whose header exceeds the pixel budget, or that a strict decoder finds damaged.
+
+    The whole file is decoded once by a decoder that treats every warning as
+    an error: libjpeg-turbo (simplejpeg, ``strict=True``, at 1/8 scale: every
+    entropy-coded byte is still read) for JPEG, Pillow with truncated images
+    refused for the rest. A JPEG cut short and closed with an end-of-image
+    marker passes an end-marker check but not this one ("premature end of
+    data segment").
+    """
+    width, height = _declared_size(data, name)
+    budget = pixel_budget()
+    if width * height > budget:
+        raise InputError(
+            f"{name}: image too large (header declares {width}x{height} = {width * height / 1e6:.1f} MP, "
+            f"allowed at most {budget / 1e6:g} MP; set {MAX_MEGAPIXELS_ENV} to raise the budget)"
+        )
+    if min(width, height) < MIN_SIDE_PX:
+        raise InputError(
+            f"{name}: image is too small ({width}x{height} px, allowed at least {MIN_SIDE_PX}x{MIN_SIDE_PX})"
+        )
+    try:
+        if _is_jpeg(data):
+            simplejpeg.decode_jpeg(data, colorspace="GRAY", min_factor=8, strict=True)
+        else:
+            with warnings.catch_warnings():
+                warnings.simplefilter("error")
+                warnings.simplefilter("ignore", Image.DecompressionBombWarning)  # the budget above rules
+                with _pillow_open(data) as im:
+                    im.load()
+    except Exception as exc:  # a damaged file: the decoder's words name what is wrong
+        raise InputError(f"{name}: image file is damaged or truncated (the decoder reports: {exc})") from None
+
+
 def _looks_truncated(data: bytes) -> bool:
     # OpenCV fills a truncated PNG or JPEG with grey and only warns; check the end markers.
     if data[:8] == b"\x89PNG\r\n\x1a\n":
@@ -106,13 +219,15 @@ def _looks_truncated(data: bytes) -> bool:
     return False
 
 
-def read_image(path: str | Path) -> LoadedImage:
+def read_image(path: str | Path, *, follow_symlinks: bool = True) -> LoadedImage:
     """Read an image file for inspection.
 
     Parameters
     ----------
     path : str or Path
         An 8- or 16-bit PNG or TIFF, a JPEG or a BMP; colour is converted to grey.
+    follow_symlinks : bool
+        False refuses a symbolic link (a batch reads the files it listed, not where a link points).
 
     Returns
     -------
@@ -123,15 +238,19 @@ def read_image(path: str | Path) -> LoadedImage:
     Raises
     ------
     InputError
-        When the file is missing, unreadable, empty or truncated.
+        When the file is missing, unreadable, not a regular file, larger than
+        ``SURFINSPECT_MAX_IMAGE_MB``, declares more pixels than
+        ``SURFINSPECT_MAX_MEGAPIXELS``, is empty, truncated or damaged.
     """
     path = Path(path)
-    try:
-        data = path.read_bytes()
-    except FileNotFoundError:
-        raise InputError(f"{path}: image file not found") from None
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read image ({exc.strerror or exc})") from None
+    max_mb = env_limit(MAX_IMAGE_MB_ENV, DEFAULT_MAX_IMAGE_MB, lo=0.001, hi=1_000_000)
+    data = read_regular_file(
+        path,
+        "image file",
+        max_bytes=int(max_mb * 1e6),
+        follow_symlinks=follow_symlinks,
+        limit_hint=f"; set {MAX_IMAGE_MB_ENV} in MB to raise it",
+    )
     pixels, bit_depth = decode_image(data, str(path))
     info = ImageInfo(
         path=str(path),

@@ -10,29 +10,47 @@ to the images it was started with.
 
 Outcome per part: accept, reject or review as the engine decides, or
 ``error`` when the image cannot be read (reported with the reason, counted,
-listed, never dropped). The exit code is that of ``inspect`` over the parts,
-with an error or a part not yet inspected counting as "needs review": 1 when
-any part is rejected, else 3 when any part needs review, has an error or is
-still missing, else 0. (2, an input error, is kept for problems that stop the
-whole batch: a bad recipe, a missing folder, a batch id bound to other images.)
+listed, never dropped). A folder entry is refused without being read, and
+recorded as not inspected with the reason, when its name is not valid UTF-8,
+holds a control character or is longer than :data:`MAX_NAME_BYTES`, when it
+is a symbolic link leading out of the batch folder, a FIFO, a device or a
+socket, or when it is larger than the image size limit (see
+:mod:`surfinspect.measure.imaging`). Such parts never stop the batch: it is
+finished with the parts that could be judged.
+
+The exit code is that of ``inspect`` over the parts, with an error counting as
+"needs review": 1 when any part is rejected, else 3 when any part needs review
+or has an error, else 0. 2 is kept for problems that stop the whole batch: a
+bad recipe, a missing folder, a batch id bound to other images, and a batch
+that stopped before every part was recorded (a worker that ended abruptly or
+made no progress for :data:`PART_TIMEOUT_ENV` seconds, a full disk): run the
+same command again to finish it.
+
+Worker processes send the parent only a few hundred bytes per part (where
+their outputs are, or the error), well under the size a pipe writes at once,
+so a worker that dies cannot leave the parent waiting for the rest of a
+message; the outputs travel through files in a scratch folder the parent owns.
 """
 
 from __future__ import annotations
 
 import csv
+import hashlib
 import io
 import json
 import multiprocessing
 import os
+import shutil
 import signal
+import stat
 import tempfile
 import threading
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime
-from pathlib import Path, PurePosixPath
+from pathlib import Path
 from typing import Callable, Sequence
 
 import cv2
@@ -41,16 +59,20 @@ import numpy as np
 from .. import results
 from ..archive import store as archive_mod
 from ..errors import InputError
-from ..fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
-from ..measure.imaging import read_image
+from ..fsutil import ensure_output_dir, write_bytes_atomic
+from ..inputs import env_limit, escape_text, is_inside, open_regular_file
+from ..measure.imaging import DEFAULT_MAX_IMAGE_MB, IMAGE_SUFFIXES, MAX_IMAGE_MB_ENV, read_image
 from ..recipe import Recipe, load_recipe
-from ..results import PartVerdict, SignOff
-from .runner import find_images, inspect_path, output_stems
+from ..results import EXIT_INPUT_ERROR, PartVerdict, SignOff
+from .runner import inspect_path, output_stems
 
 __all__ = [
     "BatchConfig",
     "BatchOutcome",
     "PartDone",
+    "FoundPart",
+    "MAX_NAME_BYTES",
+    "PART_TIMEOUT_ENV",
     "TEST_EXIT_AT_PART_ENV",
     "TEST_HOLD_FROM_PART_ENV",
     "discover_images",
@@ -68,6 +90,14 @@ TEST_HOLD_FROM_PART_ENV = "SURFINSPECT_TEST_HOLD_FROM_PART"
 _TEST_HOLD_S = 60.0
 #: Exit status of a worker that ends because the batch process is gone.
 _EXIT_PARENT_GONE = 75
+#: Longest name (each folder or file name, in UTF-8 bytes) a part may have. Its outputs add
+#: ".overlay.png" and an atomic write's temporary name ~25 bytes more, within the usual 255-byte
+#: limit of a file system's names.
+MAX_NAME_BYTES = 200
+#: Environment variable: seconds the batch waits for the next part from its workers (default 600)
+#: before it stops, ends them and exits 2.
+PART_TIMEOUT_ENV = "SURFINSPECT_PART_TIMEOUT_S"
+_ERROR_BYTES = 2000  # an error sent back by a worker stays a short message
 
 CSV_COLUMNS = (
     "batch_id",
@@ -135,15 +165,33 @@ class BatchOutcome:
 # ------------------------------------------------------------------ planning
 
 
+@dataclass(frozen=True)
+class FoundPart:
+    """A folder entry that is a part of the batch.
+
+    ``key`` names it in the archive and on the console: its path below the
+    folder, '/'-separated, with any control character or undecodable byte
+    escaped (``\\n``, ``\\xff``). ``path`` is the file that is read (a link
+    inside the folder is replaced by its target). ``refusal`` says why the
+    entry is not read at all, or is None.
+    """
+
+    key: str
+    path: Path
+    refusal: str | None = None
+
+
 def discover_images(
     folder: str | os.PathLike, *, recursive: bool = False, exclude: Sequence[str | os.PathLike] = ()
-) -> list[tuple[str, Path]]:
-    """Image files in ``folder`` as (part key, path), sorted; the key is the path below ``folder``, '/'-separated.
+) -> list[FoundPart]:
+    """Folder entries named like images (by suffix), sorted by path, each with any reason it is refused.
 
     Overlays this tool wrote (``*.overlay.png``) are never parts, nor is
     anything under an ``exclude`` folder that lies inside ``folder`` (the
     batch's own ``--out`` and ``--archive``); an ``exclude`` folder that is
-    ``folder`` itself or lies outside it is ignored.
+    ``folder`` itself or lies outside it is ignored. Links to folders are not
+    descended into. Every other entry with an image suffix is a part, also
+    one that cannot be read: it is recorded as not inspected, with the reason.
 
     Raises
     ------
@@ -151,9 +199,78 @@ def discover_images(
         When the folder is missing or holds no image.
     """
     folder = Path(folder)
-    inside = [e for e in exclude if _strictly_inside(Path(e), folder)]
-    found = find_images(folder, recursive=recursive, exclude=inside)
-    return [(PurePosixPath(*p.relative_to(folder).parts).as_posix(), p) for p in found]
+    if not folder.is_dir():
+        raise InputError(f"{escape_text(str(folder))}: not a folder of images")
+    skip = [os.path.realpath(e) for e in exclude if _strictly_inside(Path(e), folder)]
+    found: list[FoundPart] = []
+    keys: set[str] = set()
+    for rel in sorted(_image_entries(folder, (), recursive, skip)):
+        key = escape_text("/".join(rel))
+        while key in keys:  # two raw names that escape alike stay two parts
+            key += "~"
+        keys.add(key)
+        path = folder.joinpath(*rel)
+        refusal = _name_refusal(rel) or _file_refusal(path, folder)
+        target = Path(os.path.realpath(path)) if refusal is None and path.is_symlink() else path
+        found.append(FoundPart(key, target, refusal))
+    if not found:
+        raise InputError(f"{escape_text(str(folder))}: no images found (allowed suffixes {', '.join(IMAGE_SUFFIXES)})")
+    return found
+
+
+def _image_entries(folder: Path, rel: tuple[str, ...], recursive: bool, skip: list[str]):
+    """Relative paths (tuples of names) of entries with an image suffix; sub-folders too when recursive."""
+    with os.scandir(folder.joinpath(*rel)) as listing:
+        entries = list(listing)
+    for entry in entries:
+        if entry.is_dir(follow_symlinks=False):
+            if recursive and os.path.realpath(entry.path) not in skip:
+                yield from _image_entries(folder, (*rel, entry.name), recursive, skip)
+            continue
+        name = entry.name.lower()
+        if os.path.splitext(name)[1] in IMAGE_SUFFIXES and not name.endswith(".overlay.png"):
+            yield (*rel, entry.name)
+
+
+def _name_refusal(rel: tuple[str, ...]) -> str | None:
+    """Why a part's name cannot be kept as it is (the file is then not read), or None."""
+    for name in rel:
+        try:
+            size = len(name.encode("utf-8"))
+        except UnicodeEncodeError:
+            return "the file name is not valid UTF-8 (shown with \\x escapes); rename the file to inspect it"
+        if escape_text(name) != name:
+            return "the file name holds a control character (shown escaped); rename the file to inspect it"
+        if size > MAX_NAME_BYTES:
+            return (
+                f"the file name is too long (got {size} bytes, allowed at most {MAX_NAME_BYTES}); "
+                "rename the file to inspect it"
+            )
+    return None
+
+
+def _file_refusal(path: Path, folder: Path) -> str | None:
+    """Why a folder entry is not read (a link out of the folder, not a regular file, too large), or None."""
+    try:
+        st = os.lstat(path)
+        if stat.S_ISLNK(st.st_mode):
+            if not is_inside(path, folder):
+                return "a symbolic link to a place outside the batch folder; not followed (copy the image in instead)"
+            st = os.stat(path)
+    except FileNotFoundError:
+        return "a symbolic link whose target does not exist"
+    except OSError as exc:
+        return f"cannot read the file ({exc.strerror or exc})"
+    if not stat.S_ISREG(st.st_mode):
+        kind = "a FIFO (named pipe)" if stat.S_ISFIFO(st.st_mode) else "a device, socket or folder"
+        return f"{kind}, not a regular file; not read (allowed: regular image files)"
+    max_bytes = int(env_limit(MAX_IMAGE_MB_ENV, DEFAULT_MAX_IMAGE_MB, lo=0.001, hi=1_000_000) * 1e6)
+    if st.st_size > max_bytes:
+        return (
+            f"the file is too large (got {st.st_size} bytes, allowed at most {max_bytes}; "
+            f"set {MAX_IMAGE_MB_ENV} in MB to raise it); not read"
+        )
+    return None
 
 
 def _strictly_inside(path: Path, folder: Path) -> bool:
@@ -162,11 +279,19 @@ def _strictly_inside(path: Path, folder: Path) -> bool:
 
 
 def _hash_file(path: Path) -> tuple[str | None, str | None]:
-    """(SHA-256, None), or (None, why) for a file whose bytes cannot be read."""
+    """(SHA-256, None), or (None, why) for a file whose bytes cannot be read; never follows a link."""
     try:
-        return sha256_file(path), None
+        fd, _ = open_regular_file(path, "image file", follow_symlinks=False)
+    except InputError as exc:
+        return None, str(exc)
+    h = hashlib.sha256()
+    try:
+        with os.fdopen(fd, "rb") as fh:
+            while block := fh.read(1 << 20):
+                h.update(block)
     except OSError as exc:
-        return None, f"{path}: cannot read the file ({exc.strerror or exc})"
+        return None, f"{escape_text(str(path))}: cannot read the file ({exc.strerror or exc})"
+    return h.hexdigest(), None
 
 
 # ------------------------------------------------------------------- workers
@@ -199,23 +324,21 @@ def _exit_with_batch(batch_alive) -> None:
     os._exit(_EXIT_PARENT_GONE)
 
 
-def _inspect_one(
-    position: int, part_key: str, path: str, name: str, exit_at: str | None, hold_from: str | None
-) -> dict:
+def _inspect_one(position: int, path: str, name: str, scratch: str, exit_at: str | None, hold_from: str | None) -> dict:
+    """Inspect one part into ``scratch``; returns a short message: the outputs' file names, or the error."""
     if exit_at == str(position + 1):
         os._exit(70)
     if hold_from is not None and position + 1 >= int(hold_from):
         time.sleep(_TEST_HOLD_S)
-    # the same read-inspect-write as ``inspect``, into a scratch folder whose files go back to the parent
-    with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
-        outcome, _ = inspect_path(path, _worker_recipe, tmp, name)
-        if outcome.error is not None:
-            return {"part_key": part_key, "error": outcome.error}
-        return {
-            "part_key": part_key,
-            "result_json": Path(outcome.json_path).read_bytes(),
-            "overlay_png": Path(outcome.overlay_path).read_bytes(),
-        }
+    # the same read-inspect-write as ``inspect``, into the parent's scratch folder (one sub-folder per part)
+    out = Path(scratch) / str(position)
+    out.mkdir()
+    outcome, _ = inspect_path(path, _worker_recipe, out, name, follow_symlinks=False)
+    if outcome.error is not None:
+        # in bytes, so that the whole message stays one atomic pipe write (PIPE_BUF is 4096 on Linux)
+        error = outcome.error.encode("utf-8")[:_ERROR_BYTES].decode("utf-8", "ignore")
+        return {"position": position, "error": error}
+    return {"position": position, "result_json": outcome.json_path, "overlay_png": outcome.overlay_path}
 
 
 def _pool_context() -> multiprocessing.context.BaseContext:
@@ -245,6 +368,8 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     InputError
         For a bad recipe, a missing or empty folder, an invalid batch id, a
         batch id bound to other images or recipe, or ``jobs`` < 1.
+    OSError, sqlite3.Error
+        When the archive cannot be written (a full disk); what was recorded stays, the rest is pending.
     """
     if config.jobs is not None and config.jobs < 1:
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
@@ -256,25 +381,27 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
-        hashed = {key: _hash_file(path) for key, path in images}
+        # a refused entry is not read at all: it has no hash, and its record says why
+        hashed = {f.key: (None, f.refusal) if f.refusal else _hash_file(f.path) for f in images}
         plan = arc.start_batch(
             config.batch_id,
             recipe_name=recipe.name,
             recipe_revision=recipe.revision,
             recipe_path=recipe.path,
             recipe_sha256=recipe.sha256,
-            parts=[(key, hashed[key][0]) for key, _ in images],
+            parts=[(f.key, hashed[f.key][0]) for f in images],
             operator=config.operator,
         )
-        recorder = _Recorder(arc, config.batch_id, dict(images), {k: h for k, (h, _) in hashed.items()}, plan, on_part)
+        paths = {f.key: f.path for f in images}
+        recorder = _Recorder(arc, config.batch_id, paths, {k: h for k, (h, _) in hashed.items()}, plan, on_part)
         tasks = []
-        for position, (key, _) in enumerate(images):
-            if key not in plan.pending:
+        for position, found in enumerate(images):
+            if found.key not in plan.pending:
                 continue
-            if hashed[key][0] is None:
-                recorder.error(key, hashed[key][1])
+            if hashed[found.key][0] is None:
+                recorder.error(found.key, hashed[found.key][1])
             else:
-                tasks.append((position, key))
+                tasks.append((position, found.key))
         interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
@@ -290,7 +417,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         inspected_now=recorder.recorded,
         finished=batch.is_finished,
         interruption=interruption,
-        exit_code=batch_exit_code(parts),
+        exit_code=EXIT_INPUT_ERROR if interruption else batch_exit_code(parts),
     )
 
 
@@ -304,18 +431,26 @@ class _Recorder:
         self.recorded = 0
 
     def error(self, key: str, message: str) -> None:
+        """Record a part as not inspected, with the reason (prefixed by its key when the text does not name it)."""
         # the part's name within the batch folder, not this station's full path, goes into the record
-        message = message.replace(str(self.paths[key]), key)
+        where = str(self.paths[key])
+        message = message.replace(where, key).replace(escape_text(where), key)
+        if not message.startswith(key):
+            message = f"{key}: {message}"
         self._record(key, archive_mod.error_record_json(key, self.hashes[key], message), None)
 
-    def worker_output(self, out: dict) -> None:
-        key = out["part_key"]
+    def worker_output(self, key: str, out: dict) -> None:
+        """Record what a worker sent for part ``key``: an error, or the result and overlay files it wrote."""
         if "error" in out:
             self.error(key, out["error"])
-        elif json.loads(out["result_json"])["image"]["sha256"] != self.hashes[key]:
+            return
+        result_json = Path(out["result_json"]).read_bytes()
+        overlay_png = Path(out["overlay_png"]).read_bytes()
+        shutil.rmtree(Path(out["result_json"]).parent, ignore_errors=True)
+        if json.loads(result_json)["image"]["sha256"] != self.hashes[key]:
             self.error(key, f"{self.paths[key]}: the file changed while the batch ran")
         else:
-            self._record(key, out["result_json"], out["overlay_png"])
+            self._record(key, result_json, overlay_png)
 
     def _record(self, key: str, result_json: bytes, overlay_png: bytes | None) -> None:
         image_path = self.paths[key] if self.hashes[key] else None
@@ -342,11 +477,14 @@ def _inspect_pending(
     cores = os.cpu_count() or 1
     jobs = min(jobs or cores, len(tasks))
     names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
+    keys = dict(tasks)
     # the hooks are read here: forkserver workers do not see the environment of later runs
     exit_at = os.environ.get(TEST_EXIT_AT_PART_ENV)
     hold_from = os.environ.get(TEST_HOLD_FROM_PART_ENV)
+    timeout_s = env_limit(PART_TIMEOUT_ENV, 600.0, lo=1.0, hi=1e6)
     context = _pool_context()
     batch_alive, batch_alive_writer = context.Pipe(duplex=False)
+    scratch = tempfile.mkdtemp(prefix="surfinspect-batch-")
     lost = 0
     try:
         with ProcessPoolExecutor(
@@ -356,21 +494,35 @@ def _inspect_pending(
             initargs=(recipe, max(1, cores // jobs), batch_alive),
         ) as pool:
             try:
-                futures = [
-                    pool.submit(_inspect_one, position, key, str(recorder.paths[key]), names[key], exit_at, hold_from)
+                waiting = {
+                    pool.submit(
+                        _inspect_one, position, str(recorder.paths[key]), names[key], scratch, exit_at, hold_from
+                    ): position
                     for position, key in tasks
-                ]
-                for future in as_completed(futures):
-                    try:
-                        recorder.worker_output(future.result())
-                    except BrokenProcessPool:
-                        lost += 1
+                }
+                while waiting:
+                    done, _ = wait(waiting, timeout=timeout_s, return_when=FIRST_COMPLETED)
+                    if not done:
+                        _terminate_workers(pool)
+                        return (
+                            f"no part finished within {timeout_s:g} s ({PART_TIMEOUT_ENV}); the workers were "
+                            f"stopped and {len(waiting)} part(s) were not recorded (run the same command again)"
+                        )
+                    for future in done:
+                        position = waiting.pop(future)
+                        try:
+                            out = future.result()
+                        except BrokenProcessPool:
+                            lost += 1
+                            continue
+                        recorder.worker_output(keys[position], out)
             except BaseException:
                 _terminate_workers(pool)
                 raise
     finally:
         batch_alive.close()
         batch_alive_writer.close()
+        shutil.rmtree(scratch, ignore_errors=True)
     if lost:
         return (
             f"a worker process ended abruptly; {lost} part(s) were not recorded "

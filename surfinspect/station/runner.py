@@ -16,6 +16,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
+from ..inputs import escape_text
 from ..measure.engine import inspect_image
 from ..measure.imaging import IMAGE_SUFFIXES, read_image
 from ..recipe import Recipe
@@ -59,24 +60,35 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
 
 
 def inspect_path(
-    path: str | Path, recipe: Recipe, out_dir: str | Path, stem: str, *, keep_pixels: bool = False
+    path: str | Path,
+    recipe: Recipe,
+    out_dir: str | Path,
+    stem: str,
+    *,
+    keep_pixels: bool = False,
+    follow_symlinks: bool = True,
 ) -> tuple[PartOutcome, np.ndarray | None]:
-    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically."""
+    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically.
+
+    An input error (an unreadable, damaged or oversized image, a region outside
+    it, too little memory for it) becomes the outcome's ``error``; an output
+    that cannot be written (a full disk) raises ``OSError``.
+    """
     from ..report.overlay import write_overlay_png
 
     try:
-        loaded = read_image(path)
+        loaded = read_image(path, follow_symlinks=follow_symlinks)
         result = inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
-    except InputError as exc:
-        text = str(exc)
+    except (InputError, MemoryError) as exc:
+        text = str(exc) if isinstance(exc, InputError) else "not enough memory to inspect this image"
         # a recipe problem found on this image (a region outside it) must say which image
-        if str(path) not in text:
-            text = f"{path}: {text}"
+        if str(path) not in text and escape_text(str(path)) not in text:
+            text = f"{escape_text(str(path))}: {text}"
         return PartOutcome(path=str(path), stem=stem, error=text), None
     outcome = PartOutcome(
         path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
