@@ -79,7 +79,9 @@ OBJECTS_DIR = "objects"
 GENESIS_SHA256 = "0" * 64
 BUSY_TIMEOUT_S = 60.0
 ERROR_VERDICT = "error"
-_OBJECT_MODE = 0o444  # stored files are never written again; read-only guards against slips
+_OBJECT_MODE = (
+    0o440  # never written again (read-only guards against slips); not world-readable: images are customer data
+)
 
 
 class EventKind(str, enum.Enum):

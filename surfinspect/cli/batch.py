@@ -1,8 +1,10 @@
 """``surfinspect batch``: inspect a folder of images in parallel into the archive.
 
-Exit code: 1 when any part is rejected, else 3 when any part needs review, has
-an unreadable image or was not recorded (the batch stopped), else 0; 2 for an
-input error that stops the whole batch (see :mod:`surfinspect.batch`).
+Exit code: 1 when any part is rejected, else 3 when any part needs review or
+was not inspected (an unreadable, refused or damaged file), else 0; 2 for an
+input error that stops the whole batch and for a batch that stopped before
+every part was recorded (a worker that ended, a full disk: the reason is
+printed; run again to finish). See :mod:`surfinspect.station.batch`.
 Stopped by a signal (Ctrl-C, SIGTERM, SIGHUP), the batch ends its worker
 processes and exits with 128 + the signal number, as a shell reports a
 process killed by that signal: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP.
@@ -14,11 +16,13 @@ import argparse
 import contextlib
 import shlex
 import signal
+import sqlite3
 import threading
 from pathlib import Path
 from typing import Iterator
 
 from ..archive import store as archive
+from ..results import EXIT_INPUT_ERROR
 from ..station import batch
 from .console import Console
 
@@ -62,7 +66,7 @@ class _Progress:
             self.bar.n = done.done
             self.bar.set_postfix_str(f"{done.part_key}: {done.verdict}", refresh=True)
         else:
-            note = f" ({done.error})" if done.error else ""
+            note = f" ({_reason(done.part_key, done.error)})" if done.error else ""
             self.console.info(f"[{done.done}/{done.total}] {done.part_key}: {done.verdict}{note}")
 
     def close(self) -> None:
@@ -119,13 +123,18 @@ def run(args: argparse.Namespace, console: Console) -> int:
             outcome = batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
         progress.close()  # the bar's last line first, then the message
-        done = progress.last
-        recorded = f"{done.done} of {done.total} part(s) recorded" if done else "no part recorded in this run"
         console.error(
-            f"batch {args.batch_id}: interrupted ({signal.Signals(stop.signum).name}); {recorded}; "
+            f"batch {args.batch_id}: interrupted ({signal.Signals(stop.signum).name}); {_recorded(progress)}; "
             "run again with the same --batch-id to finish"
         )
         return 128 + stop.signum
+    except (OSError, sqlite3.Error) as exc:  # the archive cannot be written: a full disk, a lost mount
+        progress.close()
+        console.error(
+            f"batch {args.batch_id}: stopped: {_write_failure(exc)}; {_recorded(progress)}; "
+            "free the space and run again with the same --batch-id to finish"
+        )
+        return EXIT_INPUT_ERROR
     finally:
         progress.close()
     counts = outcome.counts
@@ -136,7 +145,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     summary = ", ".join(f"{counts[v]} {v}" for v in ("accept", "reject", "review", "error", "pending") if counts[v])
     console.info(f"batch {outcome.batch_id}: {len(outcome.parts)} parts: {summary}")
     for key, message in outcome.errors:
-        console.warn(f"{key}: not inspected: {message}")
+        console.warn(f"{key}: not inspected: {_reason(key, message)}")
     if outcome.interruption:
         console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
     elif args.out:
@@ -144,6 +153,22 @@ def run(args: argparse.Namespace, console: Console) -> int:
     else:
         _say_where_the_report_is(args, console)
     return outcome.exit_code
+
+
+def _reason(key: str, message: str) -> str:
+    """An error record's message without the part key it starts with (the line names the part already)."""
+    return message[len(key) + 2 :] if message.startswith(f"{key}: ") else message
+
+
+def _recorded(progress: _Progress) -> str:
+    done = progress.last
+    return f"{done.done} of {done.total} part(s) recorded" if done else "no part recorded in this run"
+
+
+def _write_failure(exc: BaseException) -> str:
+    if isinstance(exc, OSError):
+        return f"cannot write {exc.filename or 'the archive'} ({exc.strerror or exc})"
+    return f"cannot write the archive index ({exc})"
 
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:

@@ -56,7 +56,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
                 console.error(o.error)
             outcomes.append(o)
             pixels.append(px)
-        console.info(f"\n{recipe.name} (revision {recipe.revision}):")
+        console.info("")
+        console.info(f"{recipe.name} (revision {recipe.revision}):")
         print_results(console, outcomes)
         done = [(o.result, px) for o, px in zip(outcomes, pixels) if o.result is not None]
         if done:

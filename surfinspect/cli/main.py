@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from typing import Sequence
 
@@ -16,6 +17,9 @@ from .._version import __version__
 from ..errors import InputError
 from ..results import EXIT_INPUT_ERROR
 from .console import Console
+
+#: Environment variable: when set, an internal error shows its traceback instead of one line.
+DEBUG_ENV = "SURFINSPECT_DEBUG"
 
 #: Sub-commands in the order ``--help`` lists them.
 COMMANDS = ("inspect", "check", "demo", "batch", "keygen", "sign", "verify", "show", "target", "bias", "gauge")
@@ -75,6 +79,14 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         console.error("interrupted")
         return 130
+    except Exception as exc:  # a bug: never a traceback that exits 1, which would read as "rejected"
+        if os.environ.get(DEBUG_ENV):
+            raise
+        console.error(
+            f"internal error, not a verdict ({type(exc).__name__}: {exc}); "
+            f"please report it with the command that was run (set {DEBUG_ENV}=1 for the traceback)"
+        )
+        return EXIT_INPUT_ERROR
 
 
 if __name__ == "__main__":  # pragma: no cover
