@@ -241,12 +241,13 @@ class _Reader:
             n = f"{count} numbers" if count is not None else "a list of numbers"
             self.p.add(line, where, f"must be {n} {what} (got {_describe(value)})")
             return None
-        bad = next((v for v in value if not _is_number(v)), None)
+        limit = LIMITS["coordinate"]
+        huge = next((v for v in value if isinstance(v, int) and not isinstance(v, bool) and abs(v) > limit), None)
+        bad = next((v for v in value if not _is_number(v) and v is not huge), None)
         if bad is not None:
             self.p.add(line, where, f"must hold numbers only (got {_describe(bad)}{_safe_yaml.number_hint(bad)})")
             return None
-        limit = LIMITS["coordinate"]
-        if any(abs(v) > limit for v in value):
+        if huge is not None or any(abs(v) > limit for v in value):
             self.p.add(line, where, f"out of range (got {_describe(list(value))}, allowed -{limit:g} to {limit:g})")
             return None
         return tuple(float(v) for v in value)

@@ -15,12 +15,14 @@ only warns.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import io
 import threading
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Iterator
 
 import cv2
 import numpy as np
@@ -147,15 +149,25 @@ def pixel_budget() -> int:
 _PIL_LOCK = threading.Lock()
 
 
-def _pillow_open(data: bytes) -> Image.Image:
-    """``Image.open`` without Pillow's own bomb bound (its module global, lifted under a lock for the open)."""
-    with _PIL_LOCK:
-        bound = Image.MAX_IMAGE_PIXELS
-        Image.MAX_IMAGE_PIXELS = None
-        try:
-            return Image.open(io.BytesIO(data))
-        finally:
-            Image.MAX_IMAGE_PIXELS = bound
+@contextlib.contextmanager
+def _pillow_strict(data: bytes) -> Iterator[Image.Image]:
+    """The image opened by Pillow with every warning an error, and truncated files refused.
+
+    Pillow's own decompression-bomb bound (a module global) is lifted for the
+    open, under a lock, because the pixel budget takes its place.
+    """
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+        with _PIL_LOCK:
+            bound = Image.MAX_IMAGE_PIXELS
+            Image.MAX_IMAGE_PIXELS = None
+            try:
+                im = Image.open(io.BytesIO(data))
+            finally:
+                Image.MAX_IMAGE_PIXELS = bound
+        with im:
+            yield im
 
 
 def _is_jpeg(data: bytes) -> bool:
@@ -168,7 +180,7 @@ def _declared_size(data: bytes, name: str) -> tuple[int, int]:
         if _is_jpeg(data):
             height, width, _, _ = simplejpeg.decode_jpeg_header(data)
             return int(width), int(height)
-        with _pillow_open(data) as im:
+        with _pillow_strict(data) as im:
             return im.size
     except Exception as exc:  # any decoder's complaint about a header is the same finding for the user
         raise InputError(
@@ -201,11 +213,8 @@ def _check_strictly(data: bytes, name: str) -> None:
         if _is_jpeg(data):
             simplejpeg.decode_jpeg(data, colorspace="GRAY", min_factor=8, strict=True)
         else:
-            with warnings.catch_warnings():
-                warnings.simplefilter("error")
-                warnings.simplefilter("ignore", Image.DecompressionBombWarning)  # the budget above rules
-                with _pillow_open(data) as im:
-                    im.load()
+            with _pillow_strict(data) as im:
+                im.load()
     except Exception as exc:  # a damaged file: the decoder's words name what is wrong
         raise InputError(f"{name}: image file is damaged or truncated (the decoder reports: {exc})") from None
 
