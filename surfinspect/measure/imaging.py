@@ -18,8 +18,11 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import io
+import os
+import tempfile
 import threading
 import warnings
+import zlib
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
@@ -170,6 +173,55 @@ def _pillow_strict(data: bytes) -> Iterator[Image.Image]:
             yield im
 
 
+@contextlib.contextmanager
+def _libtiff_messages() -> Iterator[list[str]]:
+    """Collect what C decoders write to the process's stderr meanwhile (libtiff's warnings and errors).
+
+    File descriptor 2 is pointed at a temporary file for the duration, under
+    the Pillow lock; another thread's stderr output in that window lands in
+    the list too. The list is filled when the block ends.
+    """
+    lines: list[str] = []
+    with _PIL_LOCK, tempfile.TemporaryFile() as sink:
+        saved = os.dup(2)
+        try:
+            os.dup2(sink.fileno(), 2)
+            yield lines
+        finally:
+            os.dup2(saved, 2)
+            os.close(saved)
+            sink.seek(0)
+            lines += [ln for ln in sink.read(8192).decode("utf-8", "replace").splitlines() if ln.strip()]
+
+
+_PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+
+
+def _png_chunk_problem(data: bytes) -> str | None:
+    """What is wrong with a PNG file's chunk structure, or None.
+
+    Every chunk (length, type, data, CRC-32 of type and data; PNG
+    specification, ISO/IEC 15948:2004, section 5.3) must lie inside the file,
+    carry a matching CRC, and the file must end with IEND. Decoders differ on
+    a chunk whose length runs past the end: one reads on, another stalls for
+    seconds.
+    """
+    at = len(_PNG_SIGNATURE)
+    while at + 12 <= len(data):
+        length = int.from_bytes(data[at : at + 4], "big")
+        kind = data[at + 4 : at + 8]
+        end = at + 8 + length
+        shown = kind.decode("latin-1").encode("unicode_escape").decode("ascii")
+        if end + 4 > len(data):
+            return f"chunk {shown} at byte {at} claims {length} bytes, more than the file holds"
+        if zlib.crc32(data[at + 4 : end]) != int.from_bytes(data[end : end + 4], "big"):
+            return f"chunk {shown} at byte {at} fails its CRC check"
+        if kind == b"IEND":
+            return None
+        at = end + 4
+    return "the file ends before its IEND chunk"
+
+
 def _is_jpeg(data: bytes) -> bool:
     return data[:3] == b"\xff\xd8\xff"
 
@@ -209,12 +261,18 @@ def _check_strictly(data: bytes, name: str) -> None:
         raise InputError(
             f"{name}: image is too small ({width}x{height} px, allowed at least {MIN_SIDE_PX}x{MIN_SIDE_PX})"
         )
+    problem = _png_chunk_problem(data) if data[:8] == _PNG_SIGNATURE else None
+    if problem is not None:
+        raise InputError(f"{name}: image file is damaged ({problem})")
     try:
         if _is_jpeg(data):
             simplejpeg.decode_jpeg(data, colorspace="GRAY", min_factor=8, strict=True)
         else:
-            with _pillow_strict(data) as im:
+            with _pillow_strict(data) as im, _libtiff_messages() as said:
                 im.load()
+            pixel_trouble = [line for line in said if "Unknown field with tag" not in line]
+            if pixel_trouble:  # libtiff warns on stderr, not to Pillow, when it repairs pixel data
+                raise ValueError(pixel_trouble[0])
     except Exception as exc:  # a damaged file: the decoder's words name what is wrong
         raise InputError(f"{name}: image file is damaged or truncated (the decoder reports: {exc})") from None
 
