@@ -47,6 +47,7 @@ import tempfile
 import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures import TimeoutError as FutureTimeout  # builtin TimeoutError from 3.11 on, not on 3.10
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime
@@ -405,7 +406,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
-            batch = _finish(arc, config.batch_id)
+            batch, interruption = _finish(arc, config.batch_id)
         if config.out_dir is not None:
             export_batch(arc, config.batch_id, config.out_dir)
         parts = tuple(arc.parts(config.batch_id))
@@ -560,20 +561,54 @@ def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:
     return results.exit_code(verdicts)
 
 
-def _finish(arc: archive_mod.Archive, batch_id: str) -> archive_mod.BatchRow:
+def _finish(arc: archive_mod.Archive, batch_id: str) -> tuple[archive_mod.BatchRow, str | None]:
+    """Write the batch report and CSV and close the batch; (batch row, why it could not be finished or None)."""
     generated_at = archive_mod.utc_now()
-    report = render_batch_report(arc, batch_id, generated_at=generated_at)
-    return arc.finish_batch(
+    report, interruption = _render_report_in_own_process(arc, batch_id, generated_at)
+    if report is None:
+        return arc.batch(batch_id), interruption
+    batch = arc.finish_batch(
         batch_id, report_pdf=report, regions_csv=regions_csv(arc, batch_id), report_generated_at=generated_at
     )
+    return batch, None
+
+
+def _render_report_file(archive_dir: str, batch_id: str, generated_at: str, out: str) -> None:
+    with archive_mod.Archive(archive_dir) as arc:
+        write_bytes_atomic(out, render_batch_report(arc, batch_id, generated_at=generated_at))
+
+
+def _render_report_in_own_process(
+    arc: archive_mod.Archive, batch_id: str, generated_at: str
+) -> tuple[bytes | None, str | None]:
+    """The batch report's bytes, rendered in a process of its own; (None, why) when that process fails.
+
+    Every part's picture and page is held while a report is made; in a
+    process of its own that memory is given back when it ends, so the batch
+    process stays the same size for 30 parts or 3000. The wait is bounded
+    like a part's (:data:`PART_TIMEOUT_ENV`).
+    """
+    timeout_s = env_limit(PART_TIMEOUT_ENV, 600.0, lo=1.0, hi=1e6)
+    with tempfile.TemporaryDirectory(prefix="surfinspect-report-") as tmp:
+        out = Path(tmp) / "report.pdf"
+        with ProcessPoolExecutor(max_workers=1, mp_context=_pool_context()) as pool:
+            future = pool.submit(_render_report_file, str(arc.root), batch_id, generated_at, str(out))
+            try:
+                future.result(timeout=timeout_s)
+            except BrokenProcessPool:
+                return None, "the process writing the batch report ended abruptly (run the same command again)"
+            except FutureTimeout:
+                _terminate_workers(pool)
+                return None, f"the batch report was not written within {timeout_s:g} s ({PART_TIMEOUT_ENV})"
+        return out.read_bytes(), None
 
 
 # ------------------------------------------------------------------- outputs
 
 
 def _stored_parts(arc: archive_mod.Archive, batch_id: str):
-    """(row, stored result dict) for every recorded part, in batch order."""
-    return [(p, arc.read_result(p)) for p in arc.parts(batch_id) if p.result_sha256]
+    """(row, stored result dict) for every recorded part, in batch order, read one at a time."""
+    return ((p, arc.read_result(p)) for p in arc.parts(batch_id) if p.result_sha256)
 
 
 def _csv_value(v) -> str:
@@ -639,7 +674,7 @@ def render_batch_report(
     from ..report.pdf import NotInspected, render_report
 
     batch = arc.batch(batch_id)
-    stored = _stored_parts(arc, batch_id)
+    stored = list(_stored_parts(arc, batch_id))
     judged = [(p, r) for p, r in stored if p.verdict != archive_mod.ERROR_VERDICT]
     failed = [
         (p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT
