@@ -11,6 +11,8 @@ so that the parent can name a case that hangs past every alarm.
 from __future__ import annotations
 
 import random
+import struct
+import zlib
 
 import cv2
 import numpy as np
@@ -147,6 +149,22 @@ def mutate_bytes(rng: random.Random, data: bytes, steps: int) -> bytes:
         elif b:
             b[at : at + 8] = bytes(rng.randrange(256) for _ in range(8))
     return bytes(b)
+
+
+def png_chunk(kind: bytes, data: bytes) -> bytes:
+    # chunk layout: length, type, data, CRC-32 over type and data (PNG specification, ISO/IEC 15948, section 5.3)
+    return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+
+
+def header_bomb_png(width: int = 60000, height: int = 60000) -> bytes:
+    """A valid, 100-byte PNG whose header declares ``width`` x ``height`` pixels (3.6 gigapixels by default)."""
+    ihdr = struct.pack(">IIBBBBB", width, height, 8, 0, 0, 0, 0)
+    return (
+        b"\x89PNG\r\n\x1a\n"
+        + png_chunk(b"IHDR", ihdr)
+        + png_chunk(b"IDAT", zlib.compress(b"\0" * 64))
+        + png_chunk(b"IEND", b"")
+    )
 
 
 def _run_cases(cases_file: str, results_file: str, memory_mb: int, alarm_s: int) -> None:

@@ -2,8 +2,8 @@
 
 Rooms are stacked floors: a module may import its own room and the rooms below it, never one
 above. The shared contracts at the bottom import no room at all, and the measurement core imports
-nothing but the standard library, numpy, scipy, OpenCV and scikit-image (no PDF, database or web
-code). The map of the rooms is at the top of DEVELOPERS.md; keep the two in step.
+nothing but the standard library, numpy, scipy, OpenCV and scikit-image, plus Pillow and simplejpeg
+for strict image checks (no PDF, database or web code). The map of the rooms is at the top of DEVELOPERS.md; keep the two in step.
 """
 
 from __future__ import annotations

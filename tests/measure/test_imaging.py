@@ -102,27 +102,13 @@ def test_jpeg_exif_orientation_is_applied(tmp_path: Path):
 # ------------------------------------------------------------------ hostile files
 
 
-def _png_chunk(kind: bytes, data: bytes) -> bytes:
-    # length, type, data, CRC-32 over type and data (PNG specification, ISO/IEC 15948, section 5.3)
-    import struct
-    import zlib
-
-    return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
-
-
 def test_a_header_bomb_is_refused_before_decoding(tmp_path: Path):
-    import struct
     import time
-    import zlib
 
-    ihdr = struct.pack(">IIBBBBB", 60000, 60000, 8, 0, 0, 0, 0)
+    from fuzzing import header_bomb_png
+
     bomb = tmp_path / "bomb.png"
-    bomb.write_bytes(
-        b"\x89PNG\r\n\x1a\n"
-        + _png_chunk(b"IHDR", ihdr)
-        + _png_chunk(b"IDAT", zlib.compress(b"\0" * 64))
-        + _png_chunk(b"IEND", b"")
-    )
+    bomb.write_bytes(header_bomb_png())
     start = time.perf_counter()
     with pytest.raises(
         InputError,

@@ -6,16 +6,15 @@ import contextlib
 import os
 import resource
 import signal
-import struct
 import subprocess
 import sys
 import time
 import uuid
-import zlib
 from pathlib import Path
 
 import cv2
 import pytest
+from fuzzing import header_bomb_png
 
 from surfinspect.archive import store as arc
 from surfinspect.cli import main
@@ -32,22 +31,6 @@ regions:
     tolerance_deg: 3.0
 """
 SIZE = (128, 128)
-
-
-def _png_chunk(kind: bytes, data: bytes) -> bytes:
-    # PNG chunk layout: length, type, data, CRC-32 over type and data (ISO/IEC 15948, section 5.3)
-    return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
-
-
-def header_bomb_png() -> bytes:
-    """A 100-byte PNG whose header declares 60000 x 60000 pixels (3.6 gigapixels)."""
-    ihdr = struct.pack(">IIBBBBB", 60000, 60000, 8, 0, 0, 0, 0)
-    return (
-        b"\x89PNG\r\n\x1a\n"
-        + _png_chunk(b"IHDR", ihdr)
-        + _png_chunk(b"IDAT", zlib.compress(b"\0" * 64))
-        + _png_chunk(b"IEND", b"")
-    )
 
 
 def cut_and_closed_jpeg(image) -> bytes:
