@@ -6,32 +6,23 @@ Public API::
     loaded = read_image("panel.png")
     result = inspect_image(loaded.pixels, recipe, image_info=loaded.info)
     text = result_to_json(result)
+
+The names are loaded on first use, so that a command that needs no image (``--version``,
+``check``) does not pay for importing OpenCV and SciPy.
 """
 
+from ._lazy import attach
 from ._version import __version__
-from .errors import InputError, RecipeError
-from .measure.engine import inspect_image
-from .measure.imaging import read_image
-from .recipe import LayPattern, Recipe, Region, load_recipe, parse_recipe
-from .results import PartResult, PartVerdict, RegionResult, RegionVerdict
-from .results import dumps as result_to_json
-from .results import loads as result_from_json
 
-__all__ = [
-    "__version__",
-    "InputError",
-    "LayPattern",
-    "PartResult",
-    "PartVerdict",
-    "Recipe",
-    "RecipeError",
-    "Region",
-    "RegionResult",
-    "RegionVerdict",
-    "inspect_image",
-    "load_recipe",
-    "parse_recipe",
-    "read_image",
-    "result_from_json",
-    "result_to_json",
-]
+__getattr__, __dir__, _names = attach(
+    __name__,
+    {
+        "measure.engine": ("inspect_image",),
+        "measure.imaging": ("read_image",),
+        "errors": ("InputError", "RecipeError"),
+        "recipe": ("LayPattern", "Recipe", "Region", "load_recipe", "parse_recipe"),
+        "results": ("PartResult", "PartVerdict", "RegionResult", "RegionVerdict"),
+    },
+    aliases={"result_to_json": ("results", "dumps"), "result_from_json": ("results", "loads")},
+)
+__all__ = ["__version__", *_names]

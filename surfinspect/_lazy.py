@@ -7,7 +7,12 @@ import importlib
 from typing import Callable, Mapping
 
 
-def attach(package: str, names_by_module: Mapping[str, tuple[str, ...]]) -> tuple[Callable, Callable, list[str]]:
+def attach(
+    package: str,
+    names_by_module: Mapping[str, tuple[str, ...]],
+    *,
+    aliases: Mapping[str, tuple[str, str]] | None = None,
+) -> tuple[Callable, Callable, list[str]]:
     """Return ``__getattr__``, ``__dir__`` and ``__all__`` for a package.
 
     Parameters
@@ -17,13 +22,17 @@ def attach(package: str, names_by_module: Mapping[str, tuple[str, ...]]) -> tupl
     names_by_module : mapping of str to tuple of str
         Submodule name (relative to the package) to the public names it provides. A submodule
         itself is also reachable as an attribute.
+    aliases : mapping of str to (str, str), optional
+        Public name to (submodule, name inside it), for a name published under another name.
     """
-    where = {name: module for module, names in names_by_module.items() for name in names}
-    submodules = set(names_by_module)
+    where = {name: (module, name) for module, names in names_by_module.items() for name in names}
+    where.update(aliases or {})
+    submodules = {module for module in names_by_module if "." not in module}
 
     def __getattr__(name: str):
         if name in where:
-            value = getattr(importlib.import_module(f"{package}.{where[name]}"), name)
+            module, inner = where[name]
+            value = getattr(importlib.import_module(f"{package}.{module}"), inner)
         elif name in submodules:
             value = importlib.import_module(f"{package}.{name}")
         else:

@@ -121,3 +121,114 @@ def test_the_checker_sees_an_upward_import(tmp_path, monkeypatch):
     assert FLOORS[_target_room("surfinspect.report")] > FLOORS["measure"]
     assert _target_room("surfinspect.report.pdf.render_report") == "report"
     assert _target_room("surfinspect.results.PartResult") == "shared"
+
+
+# ------------------------------------------------------------------ sizes
+
+#: House rules: no module over ~600 lines, no function over ~80. A function's length is its lines
+#: from ``def`` to its end without its docstring (numpydoc parameters and references are not logic).
+MAX_MODULE_LINES = 600
+MAX_FUNCTION_LINES = 80
+
+#: Functions allowed to be longer because they are data tables, not logic, as "path::name".
+#: None at present; a name added here needs a comment saying what table it holds.
+DATA_TABLES: set[str] = set()
+
+#: Being split under issue 12/11; remove when done. Modules ("path") and functions ("path::name")
+#: whose owners are reworking them now. An entry that no longer exceeds the limit fails the test
+#: below, so the list cannot outlive its reason.
+BEING_SPLIT = {
+    # issue 12: the archive store and the signer register
+    "surfinspect/archive/store.py",
+    # issue 12: hostile inputs (the recipe loader)
+    "surfinspect/recipe.py::_parse_region",
+    "surfinspect/recipe.py::parse_recipe",
+    # issue 11: the measurement engine
+    "surfinspect/measure/datum.py",
+    "surfinspect/measure/judge.py::judge_region",
+    "surfinspect/measure/orientation.py::cell_sums",
+}
+
+
+def _function_lines(node: ast.FunctionDef | ast.AsyncFunctionDef) -> int:
+    lines = node.end_lineno - node.lineno + 1
+    first = node.body[0]
+    if isinstance(first, ast.Expr) and isinstance(first.value, ast.Constant) and isinstance(first.value.value, str):
+        lines -= first.end_lineno - first.lineno + 1
+    return lines
+
+
+def _oversized(path: Path, rel: str) -> dict[str, str]:
+    """Entry ("path" or "path::name") -> why it is too long, for one module."""
+    text = path.read_text(encoding="utf-8")
+    found = {}
+    n_lines = len(text.splitlines())
+    if n_lines > MAX_MODULE_LINES:
+        found[rel] = f"{rel}: {n_lines} lines (house rule: at most {MAX_MODULE_LINES})"
+    for node in ast.walk(ast.parse(text, rel)):
+        if isinstance(node, (ast.FunctionDef, ast.AsyncFunctionDef)):
+            n = _function_lines(node)
+            if n > MAX_FUNCTION_LINES:
+                found[f"{rel}::{node.name}"] = (
+                    f"{rel}:{node.lineno}: {node.name} is {n} lines without its docstring "
+                    f"(house rule: at most {MAX_FUNCTION_LINES}; split it into named pieces)"
+                )
+    return found
+
+
+def _all_oversized() -> dict[str, str]:
+    found = {}
+    for path in _modules():
+        found.update(_oversized(path, str(path.relative_to(PACKAGE.parent))))
+    return found
+
+
+def test_no_module_or_function_is_over_the_size_limits():
+    found = _all_oversized()
+    too_long = [why for entry, why in sorted(found.items()) if entry not in DATA_TABLES | BEING_SPLIT]
+    assert not too_long, "\n".join(too_long)
+
+
+def test_every_size_exemption_is_still_needed():
+    found = _all_oversized()
+    stale = sorted((DATA_TABLES | BEING_SPLIT) - set(found))
+    assert not stale, "within the limits now, remove from the exemptions: " + ", ".join(stale)
+
+
+def test_the_size_checker_sees_a_long_module_and_a_long_function(tmp_path):
+    """The size rules must be able to fail: a probe module of 700 lines with an 81-line function."""
+    body = "\n".join(f"    x{k} = {k}" for k in range(80))
+    probe = tmp_path / "probe.py"
+    probe.write_text(
+        f'def long_one():\n    """A docstring,\n\n    not counted."""\n{body}\n\n\n'
+        f'def fits():\n    """Docstring."""\n' + "\n".join(f"    y{k} = {k}" for k in range(79)) + "\n" + "#\n" * 530
+    )
+    found = _oversized(probe, "surfinspect/probe.py")
+    assert set(found) == {"surfinspect/probe.py", "surfinspect/probe.py::long_one"}
+    assert "long_one is 81 lines" in found["surfinspect/probe.py::long_one"]
+
+
+# ------------------------------------------------------------------ public names of the rooms
+
+
+@pytest.mark.parametrize("room", [r for r in FLOORS if r != "shared" and (PACKAGE / r / "__init__.py").exists()])
+def test_every_public_name_of_a_room_resolves_to_its_module(room):
+    """Each name a room's ``__init__`` lists (lazily) exists in the module it points at, and a
+    module that states its own ``__all__`` lists there every name the room gives for it."""
+    import importlib
+
+    package = importlib.import_module(f"surfinspect.{room}")
+    missing, unlisted = [], []
+    for name in package.__all__:
+        try:
+            value = getattr(package, name)
+        except (AttributeError, ImportError) as exc:
+            missing.append(f"{room}.{name}: {exc}")
+            continue
+        home = getattr(value, "__module__", None)
+        module = sys.modules.get(home or "")
+        if module is not None and home.startswith(f"surfinspect.{room}.") and hasattr(module, "__all__"):
+            if name not in module.__all__:
+                unlisted.append(f"{home}.{name}")
+    assert not missing, "\n".join(missing)
+    assert not unlisted, "listed by the room but not in its module's __all__: " + ", ".join(unlisted)

@@ -17,7 +17,7 @@ from ..fsutil import write_text_atomic
 from ..measure.engine import inspect_image
 from ..measure.imaging import read_image
 from ..measure.orientation import wrap_deviation
-from ..qualify import gauge
+from ..qualify import bias, gauge_forms
 from ..recipe import load_recipe
 from ..results import EXIT_CODES, PartVerdict
 from ._checks import check_number, check_output_file
@@ -84,7 +84,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
             )
     if not measurements:
         raise InputError("bias: no region of any image had measurable texture; nothing to analyse")
-    study = gauge.bias_study([m["nominal_deg"] for m in measurements], [m["measured_deg"] for m in measurements])
+    study = bias.bias_study([m["nominal_deg"] for m in measurements], [m["measured_deg"] for m in measurements])
     _report(study, console)
 
     exceeded = []
@@ -93,7 +93,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         for b in exceeded:
             console.info(f"bias at {b.nominal_deg:g}° is {b.bias_deg:+.4f}°, beyond ±{args.max_bias:g}°")
     if args.json:
-        doc = gauge.bias_to_dict(study)
+        doc = gauge_forms.bias_to_dict(study)
         doc["recipe"] = {"path": str(args.recipe), "name": recipe.name, "revision": recipe.revision}
         doc["measurements"] = measurements
         doc["missing"] = [{"image": str(p), "region": n} for p, n in missing]
@@ -110,7 +110,7 @@ def _fmt(v: float | None, spec: str = "+.4f") -> str:
     return "-" if v is None else format(v, spec)
 
 
-def _report(study: gauge.BiasStudy, console: Console) -> None:
+def _report(study: bias.BiasStudy, console: Console) -> None:
     level = f"{100 * study.confidence:g}%"
     console.table(
         ["nominal °", "n", "mean measured °", "bias °", "repeatability °", f"bias {level} CI °", "p (bias = 0)"],

@@ -17,7 +17,7 @@ from pathlib import Path
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
-from ..qualify import gauge
+from ..qualify import gauge, gauge_forms, study_table
 from ._checks import check_number, check_output_file
 from .console import Console
 
@@ -70,7 +70,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def _image_measure(recipe_path: str, region_name: str | None) -> gauge.Measure:
+def _image_measure(recipe_path: str, region_name: str | None) -> study_table.Measure:
     """A study ``measure`` function: inspect the image, return the region's lay deviation."""
     from ..measure.engine import inspect_image
     from ..measure.imaging import read_image
@@ -109,7 +109,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.pdf:
         check_output_file("--pdf", args.pdf, suffixes=(".pdf",), not_same_as=[*inputs, ("the --json file", args.json)])
     measure = _image_measure(args.recipe, args.region) if args.recipe else None
-    table = gauge.read_study_csv(args.study, measure=measure)
+    table = study_table.read_study_csv(args.study, measure=measure)
     study = gauge.gauge_rr(
         table.values,
         tolerance=args.tolerance,
@@ -122,10 +122,12 @@ def run(args: argparse.Namespace, console: Console) -> int:
     )
     report(study, console)
     if args.json:
-        write_text_atomic(args.json, json.dumps(gauge.gauge_to_dict(study), indent=2, sort_keys=True) + "\n")
+        write_text_atomic(args.json, json.dumps(gauge_forms.gauge_to_dict(study), indent=2, sort_keys=True) + "\n")
         console.info(f"wrote {args.json}")
     if args.pdf:
-        gauge.write_gauge_pdf(study, args.pdf)
+        from ..report.gauge_page import write_gauge_pdf
+
+        write_gauge_pdf(study, args.pdf)
         console.info(f"wrote {args.pdf}")
     return EXIT_BY_VERDICT[study.verdict]
 
@@ -137,9 +139,9 @@ def report(study: gauge.GaugeStudy, console: Console) -> None:
         f"{study.n_trials} trials, tolerance width {study.tolerance:g}"
     )
     console.info(f"model: {study.model_reason}")
-    console.table(gauge.ANOVA_HEADER, gauge.anova_text_rows(study.anova))
+    console.table(gauge_forms.ANOVA_HEADER, gauge_forms.anova_text_rows(study.anova))
     console.info("")
-    console.table(gauge.COMPONENT_HEADER, gauge.component_text_rows(study))
+    console.table(gauge_forms.COMPONENT_HEADER, gauge_forms.component_text_rows(study))
     console.info("")
     console.info(f"%GRR of total variation: {study.grr_percent_of_total_variation:.2f}%")
     console.info(f"%GRR of tolerance:       {study.grr_percent_of_tolerance:.2f}%")

@@ -101,7 +101,9 @@ def run(args: argparse.Namespace, console: Console) -> int:
         if args.recipe:
             console.info(f"wrote {args.recipe}")
         return 0
-    sheets = targets.write_target_pdf(
+    from ..qualify.target_pdf import write_target_pdf
+
+    sheets = write_target_pdf(
         args.out, args.lay, period_mm=args.period_mm, size_mm=size, kind=kind, raster_dpi=args.raster_dpi
     )
     count = sum(len(s.gratings) for s in sheets)

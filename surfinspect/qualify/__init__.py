@@ -1,5 +1,5 @@
 """Qualifying the measurement: printable targets, bias and linearity, gauge R&R, control charts
-and capability. Imports ``measure`` and the shared contracts.
+and capability (the gauge study's PDF page is in ``report.gauge_page``). Imports ``measure`` and the shared contracts.
 """
 
 from .._lazy import attach
@@ -15,24 +15,18 @@ __getattr__, __dir__, __all__ = attach(
             "individuals_chart",
             "capability",
         ),
+        "study_table": ("StudyTable", "read_study_csv"),
         "gauge": (
             "INTERACTION_ALPHA",
             "GaugeVerdict",
-            "StudyTable",
             "AnovaRow",
             "AnovaTable",
             "VarianceComponent",
             "GaugeStudy",
-            "BiasAtNominal",
-            "LinearityFit",
-            "BiasStudy",
-            "read_study_csv",
             "gauge_rr",
-            "bias_study",
-            "gauge_to_dict",
-            "bias_to_dict",
-            "write_gauge_pdf",
         ),
+        "bias": ("BiasAtNominal", "LinearityFit", "BiasStudy", "bias_study"),
+        "gauge_forms": ("gauge_to_dict", "bias_to_dict"),
         "targets": (
             "GRATING_KINDS",
             "PlacedGrating",
@@ -40,12 +34,12 @@ __getattr__, __dir__, __all__ = attach(
             "render_grating",
             "layout_targets",
             "render_sheet",
-            "write_target_pdf",
             "write_target_png",
             "target_recipe_yaml",
             "write_target_recipe",
             "check_dpi",
             "check_recipe_tolerance",
         ),
+        "target_pdf": ("write_target_pdf",),
     },
 )

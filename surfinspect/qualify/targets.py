@@ -1,4 +1,4 @@
-"""Known-angle reference targets: gratings at true physical scale, as PDF or PNG.
+"""Known-angle reference targets: gratings at true physical scale, as PDF (:mod:`.target_pdf`) or PNG.
 
 A target sheet holds one grating per nominal lay angle, each with fiducial
 crosses at its corners and its nominal angle printed beside it, plus a scale
@@ -26,7 +26,6 @@ from typing import Sequence
 
 import numpy as np
 
-from .._version import __version__
 from ..errors import InputError
 from ..fsutil import atomic_path, write_text_atomic
 from ..measure.synth import sine_grating, to_uint8
@@ -38,7 +37,6 @@ __all__ = [
     "render_grating",
     "layout_targets",
     "render_sheet",
-    "write_target_pdf",
     "write_target_png",
     "target_recipe_yaml",
     "write_target_recipe",
@@ -90,7 +88,7 @@ def render_grating(
 ) -> np.ndarray:
     """A grating whose lines run along ``lay_deg``.
 
-    The sine grating is :func:`surfinspect.synth.sine_grating`,
+    The sine grating is :func:`surfinspect.measure.synth.sine_grating`,
     ``mean + amplitude * sin(2 pi u / period + phase)`` with
     ``u = -sin(lay) x + cos(lay) y_up`` at pixel centres (point samples of a
     band-limited pattern are exact). The square grating is
@@ -498,148 +496,6 @@ def target_recipe_yaml(
         )
     doc = {"recipe": name, "revision": 1, "datum": "image", "regions": regions}
     return yaml.safe_dump(doc, sort_keys=False, default_flow_style=None)
-
-
-# ------------------------------------------------------------------ PDF
-
-
-def write_target_pdf(
-    path: str | Path,
-    lays_deg: Sequence[float],
-    *,
-    period_mm: float,
-    size_mm: tuple[float, float],
-    kind: str = "sine",
-    raster_dpi: float = 600.0,
-) -> tuple[TargetSheet, ...]:
-    """Write a printable PDF of gratings at true scale (A4 pages).
-
-    Square gratings are vector stripes; sine gratings are grey rasters at
-    ``raster_dpi`` with equal pitch on both axes (see the module notes).
-    Each grating has fiducial crosses at its corners and its nominal lay
-    printed below it; each page has a scale bar and the printing instruction.
-
-    Returns the sheets (pages) with each grating's rectangle in mm.
-    """
-    from PIL import Image
-    from reportlab.lib.pagesizes import A4
-    from reportlab.lib.units import mm
-    from reportlab.lib.utils import ImageReader
-    from reportlab.pdfgen import canvas
-
-    if kind not in GRATING_KINDS:
-        raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
-    sheets = layout_targets(lays_deg, size_mm)
-    if kind == "sine":
-        check_dpi(raster_dpi, "--raster-dpi")
-        raster_period_px = _period_px(period_mm, raster_dpi, "--raster-dpi")
-        tiles = [_raster_shape(g.rect_mm, raster_dpi) for sheet in sheets for g in sheet.gratings]
-        _check_raster_size(
-            sum(rows * cols for rows, cols in tiles), 1, raster_dpi, "--raster-dpi", f"the {len(tiles)} grating rasters"
-        )
-    else:
-        _period_px(period_mm, 1200.0, "a 1200 dpi printer")  # vector stripes: only a printable period is checked
-    page_h = A4[1]
-    # PDF frame: origin bottom-left, +Y up, 1 unit = 1 pt.
-    X = lambda v: v * mm  # noqa: E731
-    Y = lambda v: page_h - v * mm  # noqa: E731
-    with atomic_path(path) as tmp:
-        c = canvas.Canvas(str(tmp), pagesize=A4, pageCompression=1)
-        c.setTitle(
-            "surfinspect lay targets " + ", ".join(_label(g.lay_deg) for sheet in sheets for g in sheet.gratings)
-        )
-        c.setAuthor(f"surfinspect {__version__}")
-        for page_no, sheet in enumerate(sheets, 1):
-            c.setFillColorRGB(0, 0, 0)
-            c.setFont("Helvetica-Bold", 10)
-            c.drawString(
-                X(MARGIN_MM), Y(MARGIN_MM) - 8, f"Lay reference targets: {kind} gratings, period {period_mm:g} mm"
-            )
-            c.setFont("Helvetica", 7.5)
-            c.drawRightString(
-                X(A4_MM[0] - MARGIN_MM),
-                Y(MARGIN_MM) - 8,
-                "Print at 100 % (no fit to page). Lay: counter-clockwise from +X, +Y up.",
-            )
-            # scale bar with 10 mm ticks
-            bar_y = Y(MARGIN_MM + SCALE_BAR_Y_MM)
-            c.setLineWidth(0.6 * mm)
-            c.line(X(MARGIN_MM), bar_y, X(MARGIN_MM + SCALE_BAR_MM), bar_y)
-            c.setLineWidth(FIDUCIAL_LINE_MM * mm)
-            for k in range(int(SCALE_BAR_MM // 10) + 1):
-                tx = X(MARGIN_MM + 10.0 * k)
-                c.line(tx, bar_y, tx, bar_y + 2 * mm)
-            c.drawString(X(MARGIN_MM + SCALE_BAR_MM + 3), bar_y - 2.5, f"{SCALE_BAR_MM:g} mm")
-            for g in sheet.gratings:
-                gx, gy, gw, gh = g.rect_mm
-                if kind == "sine":
-                    rows, cols = _raster_shape(g.rect_mm, raster_dpi)
-                    tile = _grating_uint8((rows, cols), g.lay_deg, raster_period_px, kind="sine")
-                    drawn_w = cols * MM_PER_INCH / raster_dpi  # whole pixels, equal pitch on both axes
-                    drawn_h = rows * MM_PER_INCH / raster_dpi
-                    c.drawImage(
-                        ImageReader(Image.fromarray(tile, mode="L")),
-                        X(gx),
-                        Y(gy + drawn_h),
-                        width=X(drawn_w),
-                        height=drawn_h * mm,
-                    )
-                else:
-                    _draw_square_stripes(c, (X(gx), Y(gy + gh), X(gw), gh * mm), g.lay_deg, period_mm * mm)
-                c.setStrokeColorRGB(0, 0, 0)
-                c.setLineWidth(FIDUCIAL_LINE_MM * mm)
-                for fx, fy in _fiducial_centres(g.rect_mm):
-                    c.line(X(fx - FIDUCIAL_ARM_MM), Y(fy), X(fx + FIDUCIAL_ARM_MM), Y(fy))
-                    c.line(X(fx), Y(fy - FIDUCIAL_ARM_MM), X(fx), Y(fy + FIDUCIAL_ARM_MM))
-                label_y = Y(gy + gh + FIDUCIAL_OFFSET_MM + 5.5)
-                c.setFillColorRGB(0, 0, 0)
-                c.setFont("Helvetica-Bold", 10)
-                c.drawString(X(gx), label_y, f"lay {_label(g.lay_deg)}")
-                t = math.radians(g.lay_deg)
-                cx, cy, half = X(gx + _stroke_offset_mm(gw)), label_y + 3.5, 3.0 * mm
-                c.line(
-                    cx - half * math.cos(t), cy - half * math.sin(t), cx + half * math.cos(t), cy + half * math.sin(t)
-                )
-            c.setFont("Helvetica", 7)
-            c.drawString(
-                X(MARGIN_MM),
-                8 * mm,
-                f"surfinspect {__version__}  |  grating {size_mm[0]:g} x {size_mm[1]:g} mm"
-                + (f"  |  raster {raster_dpi:g} dpi" if kind == "sine" else "  |  vector stripes")
-                + f"  |  page {page_no} of {len(sheets)}",
-            )
-            c.showPage()
-        c.save()
-    return sheets
-
-
-def _raster_shape(rect_mm: tuple[float, float, float, float], raster_dpi: float) -> tuple[int, int]:
-    """(rows, cols) of a grating's raster in the PDF: its size rounded to whole pixels."""
-    return (
-        max(1, int(round(rect_mm[3] * raster_dpi / MM_PER_INCH))),
-        max(1, int(round(rect_mm[2] * raster_dpi / MM_PER_INCH))),
-    )
-
-
-def _draw_square_stripes(c, box_pt: tuple[float, float, float, float], lay_deg: float, period_pt: float) -> None:
-    """Dark stripes along ``lay_deg`` on a light ground, clipped to ``box_pt`` (x, y, w, h, PDF frame)."""
-    x, y, w, h = box_pt
-    light = GRATING_MEAN + GRATING_AMPLITUDE
-    dark = GRATING_MEAN - GRATING_AMPLITUDE
-    c.saveState()
-    clip = c.beginPath()
-    clip.rect(x, y, w, h)
-    c.clipPath(clip, stroke=0, fill=0)
-    c.setFillColorRGB(light, light, light)
-    c.rect(x, y, w, h, stroke=0, fill=1)
-    c.translate(x + w / 2, y + h / 2)
-    c.rotate(lay_deg)  # PDF rotation is counter-clockwise with +Y up: the project's convention
-    reach = math.hypot(w, h) / 2 + period_pt
-    c.setFillColorRGB(dark, dark, dark)
-    k_max = int(math.ceil(reach / period_pt))
-    for k in range(-k_max, k_max + 1):
-        c.rect(-reach, k * period_pt, 2 * reach, period_pt / 2, stroke=0, fill=1)
-    c.restoreState()
 
 
 def write_target_recipe(path: str | Path, name: str, sheet: TargetSheet, rects_px, *, tolerance_deg: float) -> None:

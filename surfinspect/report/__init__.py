@@ -52,5 +52,6 @@ __getattr__, __dir__, __all__ = attach(
             "signoff_state",
             "write_report",
         ),
+        "gauge_page": ("write_gauge_pdf",),
     },
 )

@@ -346,7 +346,9 @@ def _pool_context() -> multiprocessing.context.BaseContext:
     # fork is unsafe with threads (tqdm's monitor, BLAS); forkserver forks from a clean, preloaded server
     if "forkserver" in multiprocessing.get_all_start_methods():
         ctx = multiprocessing.get_context("forkserver")
-        ctx.set_forkserver_preload(["surfinspect.batch", "surfinspect.engine", "surfinspect.overlay"])
+        ctx.set_forkserver_preload(
+            ["surfinspect.station.batch", "surfinspect.measure.engine", "surfinspect.report.overlay"]
+        )
         return ctx
     return multiprocessing.get_context("spawn")
 

@@ -8,7 +8,7 @@
 
 The demo batch mixes good parts, a panel brushed 8° off, a panel with a
 re-brushed patch across the grain, a polished blank and a plate whose band is
-brushed 3.5° off. Every image comes from :mod:`surfinspect.synth` with a fixed
+brushed 3.5° off. Every image comes from :mod:`surfinspect.measure.synth` with a fixed
 seed; ``surfinspect demo --regenerate`` writes them again.
 """
 

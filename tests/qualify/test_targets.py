@@ -7,6 +7,7 @@ import pytest
 
 from surfinspect.errors import InputError
 from surfinspect.qualify import targets
+from surfinspect.qualify.target_pdf import write_target_pdf
 from surfinspect.qualify.targets import (
     A4_MM,
     MM_PER_INCH,
@@ -15,7 +16,6 @@ from surfinspect.qualify.targets import (
     render_grating,
     render_sheet,
     target_recipe_yaml,
-    write_target_pdf,
     write_target_png,
     write_target_recipe,
 )
@@ -208,7 +208,7 @@ def test_rendered_png_target_is_measured_with_bias_under_005_deg(tmp_path, kind)
     # by the engine shows a bias under 0.05 deg at each nominal angle.
     from surfinspect.measure.engine import inspect_image
     from surfinspect.measure.imaging import read_image
-    from surfinspect.qualify.gauge import bias_study
+    from surfinspect.qualify.bias import bias_study
     from surfinspect.recipe import load_recipe
 
     nominals = [0.0, 30.0, 45.0, 60.0, 90.0, 120.0, 165.5]

@@ -1,0 +1,88 @@
+"""The sign-off block: who signed, with what meaning and when, or that nobody has yet."""
+
+from __future__ import annotations
+
+from reportlab.lib.utils import simpleSplit
+from reportlab.pdfgen.canvas import Canvas
+
+from ..results import (
+    SignOff,
+)
+from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
+
+_SIGNOFF_LINE = 14.5
+_SIGNOFF_VALUE_X = 90.0
+_SIGNOFF_VALUE_W = _FRAME_W - _SIGNOFF_VALUE_X - 10
+_SIGNOFF_TEXT_SIZE = 7.5
+
+
+def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
+    """(label, value or None for an empty line, font) of the sign-off block; long comments wrap."""
+    if signoff is None:
+        return [
+            (label, None, "Helvetica")
+            for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")
+        ]
+    name, name_replaced = printable_text(signoff.signer_name)
+    comment, comment_replaced = printable_text(signoff.comment)
+    rows = [
+        ("Name (printed)", name, "Helvetica-Bold"),
+        ("Meaning", signoff.meaning.upper(), "Helvetica-Bold"),
+        ("Time (UTC)", signoff.signed_at_utc, "Helvetica"),
+        ("Key fingerprint", signoff.key_fingerprint, "Courier"),
+        ("Record SHA-256", signoff.record_sha256 or "—", "Courier"),
+        ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", "Courier"),
+    ]
+    if comment:
+        for k, line in enumerate(simpleSplit(comment, "Helvetica", _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
+            rows.append(("Comment" if k == 0 else "", line, "Helvetica"))
+    if name_replaced or comment_replaced:
+        rows.append(("", REPLACED_CHARACTERS_NOTE, "Helvetica-Oblique"))
+    return rows
+
+
+def _signoff_height(signoff: SignOff | None) -> float:
+    return 26.0 + len(_signoff_rows(signoff)) * _SIGNOFF_LINE
+
+
+def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
+    c.saveState()
+    height = _signoff_height(signoff)
+    _titled_box(c, y, height, "SIGN-OFF", line_width=1.2, title_size=10)
+    if signoff is None:
+        c.setFont("Helvetica-Bold", 8.5)
+        c.drawString(_MARGIN + 70, y - 15, "NOT SIGNED")
+        c.setFont("Helvetica", 7)
+        c.drawString(_MARGIN + 128, y - 15, "this report carries no sign-off yet; the lines below are left empty.")
+    else:
+        c.setFont("Helvetica", 7)
+        c.drawString(
+            _MARGIN + 70,
+            y - 15,
+            "Signed electronically; the archive's verify command checks the signature against the record.",
+        )
+    line_y = y - 32
+    for label, value, font in _signoff_rows(signoff):
+        c.setFont("Helvetica-Bold", _SIGNOFF_TEXT_SIZE)
+        c.drawString(_MARGIN + 8, line_y, label)
+        if value is None:
+            c.setLineWidth(0.5)
+            c.setDash([1, 2])
+            c.line(_MARGIN + _SIGNOFF_VALUE_X, line_y - 1, _MARGIN + _FRAME_W - 10, line_y - 1)
+            c.setDash([])
+            if label == "Meaning":
+                c.setFont("Helvetica", 6.5)
+                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
+        else:
+            size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
+            c.setFont(font, size)
+            c.drawString(_MARGIN + _SIGNOFF_VALUE_X, line_y, _fit_text(c, str(value), font, size, _SIGNOFF_VALUE_W))
+        line_y -= _SIGNOFF_LINE
+    c.restoreState()
+
+
+def signoff_state(signoff: SignOff | None) -> str:
+    """The sign-off state in one line, as the footer of every page prints it."""
+    if signoff is None:
+        return "NOT SIGNED"
+    return f"Signed: {signoff.meaning.upper()} by {printable_text(signoff.signer_name)[0]}, {signoff.signed_at_utc}"
