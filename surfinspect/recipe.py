@@ -332,24 +332,8 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
 }
 
 
-def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, line: int) -> Region | None:
-    if not isinstance(m, _Map):
-        r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
-        return None
-    n_before = len(r.p.items)
-    if "name" not in m:
-        r.p.add(m.line, _join(path, "name"), "missing: every region needs a name")
-    name = r.text(m, "name", path, max_chars=LIMITS["region_name_chars"]) if "name" in m else None
-    if name is None:
-        pass
-    elif name in names:
-        r.p.add(m.line_of("name"), _join(path, "name"), f"region name {name!r} is used twice")
-    else:
-        names.add(name)
-    if name:
-        path = f"{path}({name})"
-    r.unknown(m, _REGION_KEYS, path)
-    shape = _parse_shape(r, m, path, allow_annulus=True)
+def _parse_excludes(r: _Reader, m: _Map, path: str) -> list[Shape]:
+    """A region's ``exclude`` shapes (problems recorded for bad ones)."""
     excludes: list[Shape] = []
     if "exclude" in m:
         ex = m["exclude"]
@@ -374,13 +358,11 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 s = _parse_shape(r, item, where, allow_annulus=False)
                 if s is not None:
                     excludes.append(s)
+    return excludes
 
-    params = dict(defaults)
-    for key, rule in _PARAM_RULES.items():
-        if key in m:
-            params[key] = rule(r, m, key, path)
 
-    # lay pattern and angles
+def _parse_lay(r: _Reader, m: _Map, path: str, params: dict) -> tuple[LayPattern, tuple[float, ...]] | None:
+    """The region's lay pattern and expected angles; None for an unknown ``lay`` spelling."""
     pattern, fixed = LayPattern.DIRECTIONAL, None
     if "lay" in m:
         spelled = m["lay"]
@@ -391,7 +373,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 _join(path, "lay"),
                 f"unknown lay pattern (got {_describe(spelled)}, allowed {allowed})",
             )
-            return None  # what lay_deg must be depends on the pattern: nothing more to check
+            return None
         pattern, fixed = LAY_SPELLINGS[spelled]
     lay_deg: tuple[float, ...] = ()
     where = _join(path, "lay_deg")
@@ -435,6 +417,38 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         r.p.add(
             m.line_of("lay_deg"), where, f"not used with lay {m['lay']!r} (got {_describe(raw)}, allowed: leave it out)"
         )
+    return pattern, lay_deg
+
+
+def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, line: int) -> Region | None:
+    if not isinstance(m, _Map):
+        r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
+        return None
+    n_before = len(r.p.items)
+    if "name" not in m:
+        r.p.add(m.line, _join(path, "name"), "missing: every region needs a name")
+    name = r.text(m, "name", path, max_chars=LIMITS["region_name_chars"]) if "name" in m else None
+    if name is None:
+        pass
+    elif name in names:
+        r.p.add(m.line_of("name"), _join(path, "name"), f"region name {name!r} is used twice")
+    else:
+        names.add(name)
+    if name:
+        path = f"{path}({name})"
+    r.unknown(m, _REGION_KEYS, path)
+    shape = _parse_shape(r, m, path, allow_annulus=True)
+    excludes = _parse_excludes(r, m, path)
+
+    params = dict(defaults)
+    for key, rule in _PARAM_RULES.items():
+        if key in m:
+            params[key] = rule(r, m, key, path)
+
+    lay = _parse_lay(r, m, path, params)
+    if lay is None:
+        return None  # what lay_deg must be depends on the pattern: nothing more to check
+    pattern, lay_deg = lay
 
     centre = None
     if "centre" in m:

@@ -140,9 +140,6 @@ DATA_TABLES: set[str] = set()
 BEING_SPLIT = {
     # issue 12: the archive store and the signer register
     "surfinspect/archive/store.py",
-    # issue 12: hostile inputs (the recipe loader)
-    "surfinspect/recipe.py::_parse_region",
-    "surfinspect/recipe.py::parse_recipe",
     # issue 11: the measurement engine
     "surfinspect/measure/datum.py",
     "surfinspect/measure/judge.py::judge_region",

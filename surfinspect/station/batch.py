@@ -34,15 +34,11 @@ message; the outputs travel through files in a scratch folder the parent owns.
 
 from __future__ import annotations
 
-import csv
-import hashlib
-import io
 import json
 import multiprocessing
 import os
 import shutil
 import signal
-import stat
 import tempfile
 import threading
 import time
@@ -50,21 +46,20 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures import TimeoutError as FutureTimeout  # builtin TimeoutError from 3.11 on, not on 3.10
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Callable, Sequence
 
 import cv2
-import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, write_bytes_atomic
-from ..inputs import env_limit, escape_text, is_inside, open_regular_file
-from ..measure.imaging import DEFAULT_MAX_IMAGE_MB, IMAGE_SUFFIXES, MAX_IMAGE_MB_ENV, read_image
+from ..inputs import env_limit, escape_text
 from ..recipe import Recipe, load_recipe
-from ..results import EXIT_INPUT_ERROR, PartVerdict, SignOff
+from ..results import EXIT_INPUT_ERROR, PartVerdict
+from .batch_outputs import CSV_COLUMNS, export_batch, regions_csv, render_batch_report
+from .intake import MAX_NAME_BYTES, FoundPart, _hash_file, discover_images
 from .runner import inspect_path, output_stems
 
 __all__ = [
@@ -82,6 +77,7 @@ __all__ = [
     "regions_csv",
     "render_batch_report",
     "export_batch",
+    "CSV_COLUMNS",
 ]
 
 #: Test hook: when set to N, the worker that takes the batch's N-th part (1-based) ends abruptly.
@@ -91,33 +87,10 @@ TEST_HOLD_FROM_PART_ENV = "SURFINSPECT_TEST_HOLD_FROM_PART"
 _TEST_HOLD_S = 60.0
 #: Exit status of a worker that ends because the batch process is gone.
 _EXIT_PARENT_GONE = 75
-#: Longest name (each folder or file name, in UTF-8 bytes) a part may have. Its outputs add
-#: ".overlay.png" and an atomic write's temporary name ~25 bytes more, within the usual 255-byte
-#: limit of a file system's names.
-MAX_NAME_BYTES = 200
 #: Environment variable: seconds the batch waits for the next part from its workers (default 600)
 #: before it stops, ends them and exits 2.
 PART_TIMEOUT_ENV = "SURFINSPECT_PART_TIMEOUT_S"
 _ERROR_BYTES = 2000  # an error sent back by a worker stays a short message
-
-CSV_COLUMNS = (
-    "batch_id",
-    "part",
-    "image_sha256",
-    "part_verdict",
-    "region",
-    "lay_pattern",
-    "expected_lay_deg",
-    "tolerance_deg",
-    "lay_deg",
-    "deviation_deg",
-    "uncertainty_deg",
-    "coherence",
-    "defect_area_fraction",
-    "patches",
-    "region_verdict",
-    "reasons",
-)
 
 
 @dataclass(frozen=True)
@@ -161,138 +134,6 @@ class BatchOutcome:
     @property
     def errors(self) -> list[tuple[str, str]]:
         return [(p.part_key, p.error or "") for p in self.parts if p.verdict == archive_mod.ERROR_VERDICT]
-
-
-# ------------------------------------------------------------------ planning
-
-
-@dataclass(frozen=True)
-class FoundPart:
-    """A folder entry that is a part of the batch.
-
-    ``key`` names it in the archive and on the console: its path below the
-    folder, '/'-separated, with any control character or undecodable byte
-    escaped (``\\n``, ``\\xff``). ``path`` is the file that is read (a link
-    inside the folder is replaced by its target). ``refusal`` says why the
-    entry is not read at all, or is None.
-    """
-
-    key: str
-    path: Path
-    refusal: str | None = None
-
-
-def discover_images(
-    folder: str | os.PathLike, *, recursive: bool = False, exclude: Sequence[str | os.PathLike] = ()
-) -> list[FoundPart]:
-    """Folder entries named like images (by suffix), sorted by path, each with any reason it is refused.
-
-    Overlays this tool wrote (``*.overlay.png``) are never parts, nor is
-    anything under an ``exclude`` folder that lies inside ``folder`` (the
-    batch's own ``--out`` and ``--archive``); an ``exclude`` folder that is
-    ``folder`` itself or lies outside it is ignored. Links to folders are not
-    descended into. Every other entry with an image suffix is a part, also
-    one that cannot be read: it is recorded as not inspected, with the reason.
-
-    Raises
-    ------
-    InputError
-        When the folder is missing or holds no image.
-    """
-    folder = Path(folder)
-    if not folder.is_dir():
-        raise InputError(f"{escape_text(str(folder))}: not a folder of images")
-    skip = [os.path.realpath(e) for e in exclude if _strictly_inside(Path(e), folder)]
-    found: list[FoundPart] = []
-    keys: set[str] = set()
-    for rel in sorted(_image_entries(folder, (), recursive, skip)):
-        key = escape_text("/".join(rel))
-        while key in keys:  # two raw names that escape alike stay two parts
-            key += "~"
-        keys.add(key)
-        path = folder.joinpath(*rel)
-        refusal = _name_refusal(rel) or _file_refusal(path, folder)
-        target = Path(os.path.realpath(path)) if refusal is None and path.is_symlink() else path
-        found.append(FoundPart(key, target, refusal))
-    if not found:
-        raise InputError(f"{escape_text(str(folder))}: no images found (allowed suffixes {', '.join(IMAGE_SUFFIXES)})")
-    return found
-
-
-def _image_entries(folder: Path, rel: tuple[str, ...], recursive: bool, skip: list[str]):
-    """Relative paths (tuples of names) of entries with an image suffix; sub-folders too when recursive."""
-    with os.scandir(folder.joinpath(*rel)) as listing:
-        entries = list(listing)
-    for entry in entries:
-        if entry.is_dir(follow_symlinks=False):
-            if recursive and os.path.realpath(entry.path) not in skip:
-                yield from _image_entries(folder, (*rel, entry.name), recursive, skip)
-            continue
-        name = entry.name.lower()
-        if os.path.splitext(name)[1] in IMAGE_SUFFIXES and not name.endswith(".overlay.png"):
-            yield (*rel, entry.name)
-
-
-def _name_refusal(rel: tuple[str, ...]) -> str | None:
-    """Why a part's name cannot be kept as it is (the file is then not read), or None."""
-    for name in rel:
-        try:
-            size = len(name.encode("utf-8"))
-        except UnicodeEncodeError:
-            return "the file name is not valid UTF-8 (shown with \\x escapes); rename the file to inspect it"
-        if escape_text(name) != name:
-            return "the file name holds a control character (shown escaped); rename the file to inspect it"
-        if size > MAX_NAME_BYTES:
-            return (
-                f"the file name is too long (got {size} bytes, allowed at most {MAX_NAME_BYTES}); "
-                "rename the file to inspect it"
-            )
-    return None
-
-
-def _file_refusal(path: Path, folder: Path) -> str | None:
-    """Why a folder entry is not read (a link out of the folder, not a regular file, too large), or None."""
-    try:
-        st = os.lstat(path)
-        if stat.S_ISLNK(st.st_mode):
-            if not is_inside(path, folder):
-                return "a symbolic link to a place outside the batch folder; not followed (copy the image in instead)"
-            st = os.stat(path)
-    except FileNotFoundError:
-        return "a symbolic link whose target does not exist"
-    except OSError as exc:
-        return f"cannot read the file ({exc.strerror or exc})"
-    if not stat.S_ISREG(st.st_mode):
-        kind = "a FIFO (named pipe)" if stat.S_ISFIFO(st.st_mode) else "a device, socket or folder"
-        return f"{kind}, not a regular file; not read (allowed: regular image files)"
-    max_bytes = int(env_limit(MAX_IMAGE_MB_ENV, DEFAULT_MAX_IMAGE_MB, lo=0.001, hi=1_000_000) * 1e6)
-    if st.st_size > max_bytes:
-        return (
-            f"the file is too large (got {st.st_size} bytes, allowed at most {max_bytes}; "
-            f"set {MAX_IMAGE_MB_ENV} in MB to raise it); not read"
-        )
-    return None
-
-
-def _strictly_inside(path: Path, folder: Path) -> bool:
-    path, folder = path.resolve(), folder.resolve()
-    return path != folder and path.is_relative_to(folder)
-
-
-def _hash_file(path: Path) -> tuple[str | None, str | None]:
-    """(SHA-256, None), or (None, why) for a file whose bytes cannot be read; never follows a link."""
-    try:
-        fd, _ = open_regular_file(path, "image file", follow_symlinks=False)
-    except InputError as exc:
-        return None, str(exc)
-    h = hashlib.sha256()
-    try:
-        with os.fdopen(fd, "rb") as fh:
-            while block := fh.read(1 << 20):
-                h.update(block)
-    except OSError as exc:
-        return None, f"{escape_text(str(path))}: cannot read the file ({exc.strerror or exc})"
-    return h.hexdigest(), None
 
 
 # ------------------------------------------------------------------- workers
@@ -603,129 +444,3 @@ def _render_report_in_own_process(
                 _terminate_workers(pool)
                 return None, f"the batch report was not written within {timeout_s:g} s ({PART_TIMEOUT_ENV})"
         return out.read_bytes(), None
-
-
-# ------------------------------------------------------------------- outputs
-
-
-def _stored_parts(arc: archive_mod.Archive, batch_id: str):
-    """(row, stored result dict) for every recorded part, in batch order, read one at a time."""
-    return ((p, arc.read_result(p)) for p in arc.parts(batch_id) if p.result_sha256)
-
-
-def _csv_value(v) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, list):
-        return " ".join(_csv_value(x) for x in v)
-    return str(v)
-
-
-def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
-    """One CSV row per region of every part (one row for a part with an error or no region).
-
-    Figures are written as the part's JSON holds them (same rounding);
-    lists (expected lays of crossed lay) are space-separated.
-    """
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(CSV_COLUMNS)
-    for part, result in _stored_parts(arc, batch_id):
-        head = [batch_id, part.part_key, part.image_sha256 or "", part.verdict]
-        regions = result.get("regions") or []
-        if not regions:
-            reason = result.get("error") or "; ".join(result.get("reasons", []))
-            writer.writerow(head + [""] * (len(CSV_COLUMNS) - len(head) - 1) + [reason])
-        for r in regions:
-            writer.writerow(
-                head
-                + [
-                    r["name"],
-                    r.get("lay_pattern", ""),
-                    _csv_value(r["expected_lay_deg"]),
-                    _csv_value(r["tolerance_deg"]),
-                    _csv_value(r["lay_deg"]),
-                    _csv_value(r["deviation_deg"]),
-                    _csv_value(r["uncertainty_deg"]),
-                    _csv_value(r["coherence"]),
-                    _csv_value(r["defect_area_fraction"]),
-                    len(r["patches"]),
-                    r["verdict"],
-                    "; ".join(r["reasons"]),
-                ]
-            )
-    return buf.getvalue().encode("utf-8")
-
-
-def render_batch_report(
-    arc: archive_mod.Archive, batch_id: str, *, signoff: SignOff | None = None, generated_at: str | None = None
-) -> bytes:
-    """The batch PDF report from what the archive holds (signed edition when ``signoff`` is given).
-
-    Pictures are read from the archived images (the bytes that were
-    inspected), as 8-bit grey to keep the memory of a large batch down. Parts
-    whose image could not be read are counted on the summary and listed with their reasons.
-    The signed edition is rendered with the unsigned report's own generation
-    time, so that the two differ only in the sign-off block.
-
-    Raises
-    ------
-    InputError
-        When no part of the batch could be inspected (there is nothing to report).
-    """
-    from ..report.pdf import NotInspected, render_report
-
-    batch = arc.batch(batch_id)
-    stored = list(_stored_parts(arc, batch_id))
-    judged = [(p, r) for p, r in stored if p.verdict != archive_mod.ERROR_VERDICT]
-    failed = [
-        (p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT
-    ]
-    if not judged:
-        raise InputError(
-            f"batch {batch_id!r}: none of its {len(stored)} image(s) could be inspected; no report is made"
-        )
-    stamp = generated_at or batch.report_generated_at
-    return render_report(
-        [results.part_from_dict(r) for _, r in judged],
-        [_picture_uint8(arc.object_path(p.image_sha256)) for p, _ in judged],
-        report_id=batch_id,
-        operator=batch.operator,
-        station=batch.station,
-        generated_at=None if stamp is None else datetime.fromisoformat(stamp.replace("Z", "+00:00")),
-        signoff=signoff,
-        batch_stats=True,
-        not_inspected=[NotInspected(key, sha, error) for key, sha, error in failed],
-    )
-
-
-def _picture_uint8(path: Path) -> np.ndarray:
-    pixels = read_image(path).pixels
-    return np.clip(np.rint(pixels * 255.0), 0, 255).astype(np.uint8)
-
-
-def export_batch(arc: archive_mod.Archive, batch_id: str, out_dir: str | os.PathLike) -> list[Path]:
-    """Copy a batch's files from the archive to ``out_dir`` under readable names.
-
-    Per part ``NAME.json`` (result or error record) and ``NAME.overlay.png``;
-    for the batch ``report.pdf``, ``regions.csv`` and ``report.signed-N.pdf``
-    for each sign-off. Returns the paths written.
-    """
-    out = Path(out_dir)
-    parts = arc.parts(batch_id)
-    names = dict(zip((p.part_key for p in parts), output_stems([p.part_key for p in parts])))
-    files: list[tuple[Path, str]] = []
-    for p in parts:
-        if p.result_sha256:
-            files.append((out / f"{names[p.part_key]}.json", p.result_sha256))
-        if p.overlay_sha256:
-            files.append((out / f"{names[p.part_key]}.overlay.png", p.overlay_sha256))
-    batch = arc.batch(batch_id)
-    if batch.report_sha256:
-        files.append((out / "report.pdf", batch.report_sha256))
-        files.append((out / "regions.csv", batch.regions_csv_sha256))
-    for s in arc.signoffs(batch_id):
-        files.append((out / f"report.signed-{s.signoff_no}.pdf", s.signed_report_sha256))
-    for path, sha in files:
-        write_bytes_atomic(path, arc.read_object(sha))
-    return [path for path, _ in files]
