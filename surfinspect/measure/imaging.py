@@ -18,7 +18,9 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import io
+import logging
 import os
+import re
 import tempfile
 import threading
 import warnings
@@ -159,18 +161,39 @@ def _pillow_strict(data: bytes) -> Iterator[Image.Image]:
     Pillow's own decompression-bomb bound (a module global) is lifted for the
     open, under a lock, because the pixel budget takes its place.
     """
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")
-        warnings.simplefilter("ignore", Image.DecompressionBombWarning)
-        with _PIL_LOCK:
-            bound = Image.MAX_IMAGE_PIXELS
-            Image.MAX_IMAGE_PIXELS = None
-            try:
-                im = Image.open(io.BytesIO(data))
-            finally:
-                Image.MAX_IMAGE_PIXELS = bound
-        with im:
-            yield im
+    said = _PillowLog()
+    pil_log = logging.getLogger("PIL")
+    pil_log.addHandler(said)
+    propagate, pil_log.propagate = pil_log.propagate, False  # not on stderr: in our error message
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+            with _PIL_LOCK:
+                bound = Image.MAX_IMAGE_PIXELS
+                Image.MAX_IMAGE_PIXELS = None
+                try:
+                    im = Image.open(io.BytesIO(data))
+                finally:
+                    Image.MAX_IMAGE_PIXELS = bound
+            with im:
+                yield im
+    finally:
+        pil_log.removeHandler(said)
+        pil_log.propagate = propagate
+    if said.messages:
+        raise ValueError(said.messages[0])
+
+
+class _PillowLog(logging.Handler):
+    """Pillow's own warnings (it logs some instead of warning), kept as findings."""
+
+    def __init__(self) -> None:
+        super().__init__(logging.WARNING)
+        self.messages: list[str] = []
+
+    def emit(self, record: logging.LogRecord) -> None:
+        self.messages.append(record.getMessage())
 
 
 @contextlib.contextmanager
@@ -235,8 +258,9 @@ def _declared_size(data: bytes, name: str) -> tuple[int, int]:
         with _pillow_strict(data) as im:
             return im.size
     except Exception as exc:  # any decoder's complaint about a header is the same finding for the user
+        said = re.sub(r" <_io\.BytesIO object at 0x[0-9a-f]+>", "", str(exc))
         raise InputError(
-            f"{name}: not a readable image (allowed PNG, TIFF, JPEG, BMP at 8 or 16 bits; the header says: {exc})"
+            f"{name}: not a readable image (allowed PNG, TIFF, JPEG, BMP at 8 or 16 bits; the header says: {said})"
         ) from None
 
 

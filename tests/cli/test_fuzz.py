@@ -30,7 +30,7 @@ from surfinspect.errors import InputError, RecipeError
 from surfinspect.measure.imaging import decode_image
 
 FUZZ = settings(
-    max_examples=1500,
+    max_examples=1000,
     deadline=3000,
     derandomize=True,  # the same cases on every run and in CI; a failure is reproducible
     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
@@ -128,7 +128,7 @@ def _check_outcome(case: dict, result: dict, root: Path) -> str | None:
 
 
 def test_commands_on_fuzzed_recipes_and_images_end_in_a_verdict_or_an_input_error(tmp_path):
-    cases = _make_cases(tmp_path, n_recipes=900, n_images=500)
+    cases = _make_cases(tmp_path, n_recipes=700, n_images=350)
     cases_file, results_file = tmp_path / "cases.json", tmp_path / "results.jsonl"
     cases_file.write_text(json.dumps(cases))
     env = {
@@ -155,7 +155,7 @@ def test_commands_on_fuzzed_recipes_and_images_end_in_a_verdict_or_an_input_erro
     assert not findings, findings
     # the fuzzing reaches both outcomes: accepted inputs and refused ones
     codes = [r["code"] for r in results.values()]
-    assert codes.count(2) > 200 and sum(c in (0, 1, 3) for c in codes) > 80
+    assert codes.count(2) > 200 and sum(c in (0, 1, 3) for c in codes) > 60
 
 
 def _limited(memory_mb: int):

@@ -154,7 +154,7 @@ def test_full_disk_exits_2_every_time_within_bounded_time(full_disk_batch):
         start = time.monotonic()
         done = subprocess.run(
             [sys.executable, "-m", "surfinspect", "batch", str(recipe), str(folder), "--archive", str(archive)]
-            + ["--batch-id", f"D{run}", "--jobs", "2"],
+            + ["--batch-id", f"D{run}", "--jobs", "1"],
             capture_output=True,
             text=True,
             timeout=60,  # a parent left blocked would fail here
