@@ -171,8 +171,10 @@ def _run_cases(cases_file: str, results_file: str, memory_mb: int, alarm_s: int)
     import contextlib
     import io
     import json
+    import os
     import resource
     import signal
+    import tempfile
     import traceback
 
     resource.setrlimit(resource.RLIMIT_AS, (memory_mb << 20, memory_mb << 20))
@@ -189,6 +191,9 @@ def _run_cases(cases_file: str, results_file: str, memory_mb: int, alarm_s: int)
             log.flush()
             out, err = io.StringIO(), io.StringIO()
             code, trace = None, None
+            c_level = tempfile.TemporaryFile()  # what C libraries write to file descriptor 2
+            saved = os.dup(2)
+            os.dup2(c_level.fileno(), 2)
             signal.alarm(alarm_s)
             try:
                 with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
@@ -197,7 +202,12 @@ def _run_cases(cases_file: str, results_file: str, memory_mb: int, alarm_s: int)
                 trace = traceback.format_exc(limit=8)
             finally:
                 signal.alarm(0)
-            log.write(json.dumps({"name": case["name"], "code": code, "err": err.getvalue(), "trace": trace}) + "\n")
+                os.dup2(saved, 2)
+                os.close(saved)
+            c_level.seek(0)
+            err_text = err.getvalue() + c_level.read(4000).decode("utf-8", "replace")
+            c_level.close()
+            log.write(json.dumps({"name": case["name"], "code": code, "err": err_text, "trace": trace}) + "\n")
             log.flush()
 
 

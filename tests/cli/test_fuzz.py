@@ -114,10 +114,10 @@ def _check_outcome(case: dict, result: dict, root: Path) -> str | None:
     if any("internal error" in line or "Traceback" in line for line in lines):
         return f"internal error: {result['err'][-600:]}"
     code = result["code"]
+    if not all(line.startswith(("surfinspect: error:", "surfinspect: warning:")) for line in lines):
+        return f"stderr holds lines that are not ours (a library's noise): {result['err'][-600:]}"
     if code == 2:
-        if not lines or not all(line.startswith(("surfinspect: error:", "surfinspect: warning:")) for line in lines):
-            return f"exit 2 without one-line errors: {result['err'][-600:]}"
-        return None
+        return None if lines else "exit 2 without an error line"
     if code not in (0, 1, 3):
         return f"exit code {code}"
     if case["argv"][0] == "inspect":
