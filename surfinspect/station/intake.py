@@ -19,13 +19,9 @@ from typing import Sequence
 from ..errors import InputError
 from ..inputs import env_limit, escape_text, is_inside, open_regular_file
 from ..measure.imaging import DEFAULT_MAX_IMAGE_MB, IMAGE_SUFFIXES, MAX_IMAGE_MB_ENV
+from .runner import MAX_NAME_BYTES
 
 __all__ = ["MAX_NAME_BYTES", "FoundPart", "discover_images"]
-
-#: Longest name (each folder or file name, in UTF-8 bytes) a part may have. Its outputs add
-#: ".overlay.png" and an atomic write's temporary name ~25 bytes more, within the usual 255-byte
-#: limit of a file system's names.
-MAX_NAME_BYTES = 200
 
 
 @dataclass(frozen=True)

@@ -22,11 +22,16 @@ from ..measure.imaging import IMAGE_SUFFIXES, read_image
 from ..recipe import Recipe
 from ..results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
 
+#: Longest name (each folder or file name, in UTF-8 bytes) a part may have. Its outputs add
+#: ".overlay.png" and an atomic write's temporary name ~25 bytes more, within the usual 255-byte
+#: limit of a file system's names.
+MAX_NAME_BYTES = 200
 #: Long side of the overlay PNG, px: a full-size overlay of a 12 MP brushed photo is ~25 MB.
 OVERLAY_MAX_SIDE = 2000
 
 __all__ = [
     "PartOutcome",
+    "MAX_NAME_BYTES",
     "output_stems",
     "inspect_path",
     "find_images",
@@ -77,6 +82,12 @@ def inspect_path(
     from ..report.overlay import write_overlay_png
 
     try:
+        size = len(stem.encode("utf-8", "surrogateescape"))
+        if size > MAX_NAME_BYTES:
+            raise InputError(
+                f"{escape_text(str(path))}: the file name is too long for its outputs "
+                f"(got {size} bytes, allowed at most {MAX_NAME_BYTES}); rename the file"
+            )
         loaded = read_image(path, follow_symlinks=follow_symlinks)
         result = inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
         out = Path(out_dir)

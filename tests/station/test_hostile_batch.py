@@ -171,3 +171,13 @@ def test_full_disk_exits_2_every_time_within_bounded_time(full_disk_batch):
             with contextlib.suppress(OSError):
                 subprocess.run(["rm", "-rf", str(archive)], timeout=10)
     assert max(durations) < 30, durations
+
+
+def test_inspect_goes_on_past_a_name_too_long_for_its_outputs(hostile_folder, tmp_path, capsys):
+    recipe, folder, _ = hostile_folder
+    out = tmp_path / "out"
+    long_name = folder / ("L" * 245 + ".png")
+    assert main(["inspect", str(recipe), str(folder / "good.png"), str(long_name), "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "the file name is too long for its outputs (got 245 bytes, allowed at most 200)" in err
+    assert (out / "good.json").exists() and (out / "report.pdf").exists()
