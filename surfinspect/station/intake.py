@@ -77,8 +77,17 @@ def discover_images(
     return found
 
 
+#: Deepest sub-folder a recursive batch descends into, below the batch folder.
+MAX_FOLDER_DEPTH = 32
+
+
 def _image_entries(folder: Path, rel: tuple[str, ...], recursive: bool, skip: list[str]):
     """Relative paths (tuples of names) of entries with an image suffix; sub-folders too when recursive."""
+    if len(rel) > MAX_FOLDER_DEPTH:
+        raise InputError(
+            f"{escape_text(str(folder.joinpath(*rel)))}: folders nested too deep "
+            f"(allowed at most {MAX_FOLDER_DEPTH} levels below the batch folder)"
+        )
     with os.scandir(folder.joinpath(*rel)) as listing:
         entries = list(listing)
     for entry in entries:

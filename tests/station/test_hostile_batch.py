@@ -18,6 +18,7 @@ from fuzzing import header_bomb_png
 
 from surfinspect.archive import store as arc
 from surfinspect.cli import main
+from surfinspect.errors import InputError
 from surfinspect.measure import synth
 from surfinspect.station import batch
 
@@ -181,3 +182,16 @@ def test_inspect_goes_on_past_a_name_too_long_for_its_outputs(hostile_folder, tm
     err = capsys.readouterr().err
     assert "the file name is too long for its outputs (got 245 bytes, allowed at most 200)" in err
     assert (out / "good.json").exists() and (out / "report.pdf").exists()
+
+
+def test_folders_nested_without_end_are_refused_not_recursed_into(tmp_path):
+    deep = tmp_path.joinpath(*["d"] * 40)
+    deep.mkdir(parents=True)
+    (deep / "a.png").write_bytes(b"x")
+    with pytest.raises(
+        InputError, match=r"folders nested too deep \(allowed at most 32 levels below the batch folder\)"
+    ):
+        batch.discover_images(tmp_path, recursive=True)
+    assert [f.key for f in batch.discover_images(tmp_path.joinpath(*["d"] * 10), recursive=True)] == [
+        "/".join(["d"] * 30 + ["a.png"])
+    ]
