@@ -65,6 +65,10 @@ RECIPE_SNIPPETS = [
     "polygon: [[0, 0]]",
     "name: " + "x" * 300,
     "lay: X\n    lay_deg: [0, 1]",
+    "&a [*a]",  # a recursive alias
+    "[" * 2000,  # deep nesting
+    "{a: " * 200,
+    "&x [&y [1, 2], *y, *y, *y, *y, *y, *y, *y]",
 ]
 
 BASE_RECIPE = """\
