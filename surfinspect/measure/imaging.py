@@ -108,10 +108,15 @@ def as_grey_float(image: np.ndarray) -> np.ndarray:
 def decode_image(data: bytes, name: str) -> tuple[np.ndarray, int]:
     """Decode image file bytes to grey float32 and the file's bit depth.
 
+    The header's declared size is checked against :func:`pixel_budget` and
+    the whole file is read by a strict decoder before OpenCV decodes it (see
+    the module notes).
+
     Raises
     ------
     InputError
-        When the bytes are empty, truncated or not an image this tool reads.
+        When the bytes are empty, truncated, damaged, declare more pixels than
+        the budget or fewer than 16 x 16, or are not an image this tool reads.
     """
     if not data:
         raise InputError(f"{name}: image file is empty")
