@@ -127,6 +127,7 @@ def _check_outcome(case: dict, result: dict, root: Path) -> str | None:
     return None
 
 
+@pytest.mark.slow
 def test_commands_on_fuzzed_recipes_and_images_end_in_a_verdict_or_an_input_error(tmp_path):
     cases = _make_cases(tmp_path, n_recipes=700, n_images=350)
     cases_file, results_file = tmp_path / "cases.json", tmp_path / "results.jsonl"

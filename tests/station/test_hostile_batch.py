@@ -146,6 +146,7 @@ def full_disk_batch(tmp_path_factory):
         subprocess.run(["umount", "-l", str(disk)], capture_output=True, timeout=10)
 
 
+@pytest.mark.slow
 def test_full_disk_exits_2_every_time_within_bounded_time(full_disk_batch):
     recipe, folder, disk, mounted = full_disk_batch
     env = {**os.environ, "PYTHONUNBUFFERED": "1"}
