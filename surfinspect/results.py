@@ -378,14 +378,21 @@ def loads(text: str) -> PartResult:
     return part_from_dict(json.loads(text))
 
 
+#: What a sign-off means; no word is shared with a part verdict (accept/reject/review) or a region
+#: verdict (pass/fail/no-texture): released = may go on as judged, withheld = held back,
+#: examined = read and checked without a release decision.
+SIGNOFF_MEANINGS = ("released", "withheld", "examined")
+
+
 @dataclass(frozen=True)
 class SignOff:
     """What a signed report shows in its sign-off block (filled by the archive)."""
 
     signer_name: str
-    meaning: str  # "approved" | "rejected" | "reviewed"
+    meaning: str  # one of SIGNOFF_MEANINGS
     signed_at_utc: str  # ISO 8601, UTC
     key_fingerprint: str  # SHA-256 of the raw Ed25519 public key, hex
     comment: str = ""
     record_sha256: str = ""  # hash of the canonical signed record
     report_sha256: str = ""  # hash of the unsigned batch report the signature covers
+    chain_head: str = ""  # "N <sha256>": the archive's audit chain head the signature covers (an anchor on paper)

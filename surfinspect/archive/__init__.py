@@ -1,5 +1,12 @@
-"""The archive: index, content-addressed files, hash-chained audit trail, signatures, verification.
-Imports the shared contracts only (no measurement, no report).
+"""The archive: index behind one backend interface, content-addressed files, the audit chain, the
+signer register, signed acts and verification. Imports the shared contracts only (no measurement,
+no report, no station).
+
+Modules, one concern each: ``schema`` (tables and row types), ``backend`` (the index interface),
+``sqlite_backend`` (SQLite behind it), ``objects`` (files by content hash), ``chain`` (canonical
+serialisation, event hashes, row replay), ``register`` (who may sign), ``records`` (plain records and ids), ``store`` (the Archive),
+``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``checks``, ``signed_checks``
+and ``verify`` (the verifier and anchors).
 """
 
 from .._lazy import attach
@@ -8,8 +15,6 @@ __getattr__, __dir__, __all__ = attach(
     __name__,
     {
         "signing": (
-            "MEANINGS",
-            "RECORD_FORMAT",
             "SigningKey",
             "PublicKeyInfo",
             "key_fingerprint",
@@ -19,25 +24,31 @@ __getattr__, __dir__, __all__ = attach(
             "load_public_key",
             "public_key_path_for",
             "passphrase_from_env",
-            "make_signoff_record",
-            "canonical_record_bytes",
             "sign_record",
             "verify_record",
         ),
-        "store": (
-            "ARCHIVE_FORMAT",
+        "schema": ("ARCHIVE_FORMAT", "BatchRow", "PartRow", "SignoffRow", "DispositionRow", "RegisterRow", "EventRow"),
+        "backend": ("IndexBackend", "IndexDamaged"),
+        "chain": ("EventKind", "canonical_bytes"),
+        "register": ("Register", "Signer", "STATION_ROLE"),
+        "store": ("Archive", "BatchPlan"),
+        "records": (
             "ERROR_SCHEMA",
-            "EventKind",
-            "Archive",
-            "BatchRow",
-            "PartRow",
-            "SignoffRow",
-            "BatchPlan",
             "image_set_sha256",
             "error_record_json",
-            "sign_batch",
-            "verify",
+            "check_batch_id",
+            "verdict_counts",
             "utc_now",
         ),
+        "signatures": (
+            "MEANINGS",
+            "DECISIONS",
+            "init_owner",
+            "enrol_signer",
+            "revoke_signer",
+            "sign_batch",
+            "record_disposition",
+        ),
+        "verify": ("VerifyReport", "verify", "verify_archive", "export_anchor", "read_anchor"),
     },
 )

@@ -1,10 +1,9 @@
-"""Electronic sign-off: Ed25519 key pairs, the canonical sign-off record, signatures.
+"""Ed25519 key pairs and key files, and signing canonical records.
 
-A sign-off binds a person's printed name, the time (UTC), the meaning of the
-signature and the SHA-256 of every record it covers (the batch report and each
-part result) into one canonical byte string, and signs that string with the
-signer's Ed25519 key [1]_. Because the covered hashes are inside the signed
-bytes, a signature cannot be moved onto another record.
+A signature is made over the canonical bytes of a record
+(:func:`.chain.canonical_bytes`) with the signer's Ed25519 key [1]_. Because
+every covered hash is inside the signed bytes, a signature cannot be moved
+onto another record.
 
 Key files
 ---------
@@ -13,20 +12,23 @@ Key files
 ``KEYFILE`` (the private key; mode 0600 from the moment it exists)::
 
     {"format": "surfinspect.signing-key/1",
-     "signer_name": "A. N. INSPECTOR",
+     "signer_name": "a label for the key's holder (never printed on a record)",
      "key_fingerprint": "<64 hex>",
      "passphrase_protected": true | false,
      "private_key_pem": "-----BEGIN (ENCRYPTED) PRIVATE KEY-----..."}
 
-``KEYFILE.pub`` (the public key, to hand to auditors)::
+``KEYFILE.pub`` (the public key, to hand to the archive's owner for enrolment)::
 
     {"format": "surfinspect.public-key/1",
      "signer_name": ..., "key_fingerprint": ...,
      "public_key_pem": "-----BEGIN PUBLIC KEY-----..."}
 
 The private key is PKCS #8 PEM, encrypted with the best scheme the
-``cryptography`` package offers when a passphrase is given. The key
-fingerprint is the SHA-256 of the raw 32-byte public key, in hex.
+``cryptography`` package offers (``BestAvailableEncryption``) unless the key
+was made with ``--no-passphrase``. The key fingerprint is the SHA-256 of the
+raw 32-byte public key, in hex. The ``signer_name`` in a key file is a label
+only: the printed name on every signature comes from the archive's signer
+register. A private key file that group or others may read is refused.
 
 References
 ----------
@@ -39,9 +41,10 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import stat
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Callable, Mapping
 
 from cryptography.exceptions import InvalidSignature
 from cryptography.hazmat.primitives import serialization
@@ -49,10 +52,11 @@ from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey,
 
 from ..errors import InputError
 from ..fsutil import atomic_path
+from .chain import canonical_bytes
 
 __all__ = [
-    "MEANINGS",
-    "RECORD_FORMAT",
+    "PRIVATE_KEY_FORMAT",
+    "PUBLIC_KEY_FORMAT",
     "SigningKey",
     "PublicKeyInfo",
     "key_fingerprint",
@@ -62,19 +66,16 @@ __all__ = [
     "load_public_key",
     "public_key_path_for",
     "passphrase_from_env",
-    "make_signoff_record",
-    "canonical_record_bytes",
     "sign_record",
     "verify_record",
 ]
 
-#: Allowed meanings of a sign-off.
-MEANINGS = ("approved", "rejected", "reviewed")
-RECORD_FORMAT = "surfinspect.signoff-record/1"
 PRIVATE_KEY_FORMAT = "surfinspect.signing-key/1"
 PUBLIC_KEY_FORMAT = "surfinspect.public-key/1"
 
 _RAW = serialization.Encoding.Raw, serialization.PublicFormat.Raw
+
+Passphrase = bytes | Callable[[], bytes] | None
 
 
 def key_fingerprint(public_key_raw: bytes) -> str:
@@ -86,19 +87,20 @@ def key_fingerprint(public_key_raw: bytes) -> str:
 
 @dataclass(frozen=True)
 class SigningKey:
-    """A signer's private key together with the printed name it belongs to."""
+    """A private key and the label its key file gives it (the label is never a printed name)."""
 
-    signer_name: str
     private_key: Ed25519PrivateKey
+    label: str = ""
+    protected: bool = False  # read from a passphrase-protected key file
 
     @classmethod
-    def generate(cls, signer_name: str) -> "SigningKey":
-        return cls(_check_name(signer_name), Ed25519PrivateKey.generate())
+    def generate(cls, label: str = "") -> "SigningKey":
+        return cls(Ed25519PrivateKey.generate(), _fold(label))
 
     @classmethod
-    def from_secret_bytes(cls, secret_key: bytes, signer_name: str) -> "SigningKey":
+    def from_secret_bytes(cls, secret_key: bytes, label: str = "") -> "SigningKey":
         """Build a key from the 32-byte secret (the RFC 8032 "secret key")."""
-        return cls(_check_name(signer_name), Ed25519PrivateKey.from_private_bytes(secret_key))
+        return cls(Ed25519PrivateKey.from_private_bytes(secret_key), _fold(label))
 
     @property
     def public_key_raw(self) -> bytes:
@@ -115,7 +117,7 @@ class SigningKey:
 
 @dataclass(frozen=True)
 class PublicKeyInfo:
-    signer_name: str
+    label: str
     public_key_raw: bytes
 
     @property
@@ -132,11 +134,8 @@ def verify_signature(public_key_raw: bytes, message: bytes, signature: bytes) ->
     return True
 
 
-def _check_name(signer_name: str) -> str:
-    name = " ".join(str(signer_name).split())
-    if not name:
-        raise InputError("--name: the signer's printed name is empty (give the name as it should appear on reports)")
-    return name
+def _fold(text: str) -> str:
+    return " ".join(str(text).split())
 
 
 # ----------------------------------------------------------------- key files
@@ -148,8 +147,10 @@ def public_key_path_for(key_path: str | os.PathLike) -> Path:
     return key_path.with_name(key_path.name + ".pub")
 
 
-def write_key_pair(key_path: str | os.PathLike, signer_name: str, *, passphrase: bytes | None = None) -> SigningKey:
+def write_key_pair(key_path: str | os.PathLike, label: str, *, passphrase: bytes | None) -> SigningKey:
     """Generate a key pair and write ``key_path`` (private, mode 0600) and ``key_path.pub``.
+
+    ``passphrase`` None writes the private key unencrypted (``--no-passphrase``).
 
     Raises
     ------
@@ -165,13 +166,13 @@ def write_key_pair(key_path: str | os.PathLike, signer_name: str, *, passphrase:
         if p.exists():
             raise InputError(f"{p}: file exists; a key file is never overwritten (choose another --out)")
     if passphrase is not None and not passphrase:
-        raise InputError("passphrase: the passphrase is empty (set a non-empty value or leave out --passphrase-env)")
-    key = SigningKey.generate(signer_name)
+        raise InputError("passphrase: the passphrase is empty (give a non-empty one, or ask for --no-passphrase)")
+    key = SigningKey.generate(label)
     encryption = serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
     pem = key.private_key.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8, encryption)
     private_doc = {
         "format": PRIVATE_KEY_FORMAT,
-        "signer_name": key.signer_name,
+        "signer_name": key.label,
         "key_fingerprint": key.fingerprint,
         "passphrase_protected": bool(passphrase),
         "private_key_pem": pem.decode("ascii"),
@@ -181,7 +182,7 @@ def write_key_pair(key_path: str | os.PathLike, signer_name: str, *, passphrase:
     )
     public_doc = {
         "format": PUBLIC_KEY_FORMAT,
-        "signer_name": key.signer_name,
+        "signer_name": key.label,
         "key_fingerprint": key.fingerprint,
         "public_key_pem": public_pem.decode("ascii"),
     }
@@ -207,31 +208,55 @@ def _read_key_document(path: Path, expected_format: str) -> dict:
     return doc
 
 
-def load_signing_key(key_path: str | os.PathLike, *, passphrase: bytes | None = None) -> SigningKey:
+def check_private_key_file(path: Path) -> None:
+    """Refuse a private key file that is not a regular file or that group or others may read or write."""
+    try:
+        info = path.stat()
+    except FileNotFoundError:
+        raise InputError(f"{path}: key file not found") from None
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read the key file ({exc.strerror or exc})") from None
+    if not stat.S_ISREG(info.st_mode):
+        raise InputError(f"{path}: not a regular file (allowed: a private key file made by `surfinspect keygen`)")
+    mode = stat.S_IMODE(info.st_mode)
+    if mode & 0o077:
+        raise InputError(
+            f"{path}: the private key may be read by group or others (mode {mode:04o}, allowed 0600 or 0400); "
+            f"run: chmod 600 {path}"
+        )
+
+
+def load_signing_key(key_path: str | os.PathLike, *, passphrase: Passphrase = None) -> SigningKey:
     """Read a private key file written by :func:`write_key_pair`.
+
+    ``passphrase`` is the passphrase, or a function asked for it only when the
+    key is protected (a no-echo prompt), or None.
 
     Raises
     ------
     InputError
-        When the file is missing or malformed, the passphrase is missing or
-        wrong, or the stored fingerprint does not belong to the key.
+        When the file is missing, malformed or readable by group or others,
+        the passphrase is missing or wrong, or the stored fingerprint does not
+        belong to the key.
     """
     path = Path(key_path)
+    check_private_key_file(path)
     doc = _read_key_document(path, PRIVATE_KEY_FORMAT)
-    if doc.get("passphrase_protected") and not passphrase:
-        raise InputError(
-            f"{path}: the key is passphrase-protected; give --passphrase-env VAR naming a variable that holds it"
-        )
+    password = None
+    if doc.get("passphrase_protected"):
+        password = passphrase() if callable(passphrase) else passphrase
+        if not password:
+            raise InputError(
+                f"{path}: the key is passphrase-protected; run on a terminal to be asked for it, "
+                "or give --passphrase-env VAR naming a variable that holds it"
+            )
     try:
-        private = serialization.load_pem_private_key(
-            str(doc["private_key_pem"]).encode("ascii"),
-            password=passphrase if doc.get("passphrase_protected") else None,
-        )
+        private = serialization.load_pem_private_key(str(doc["private_key_pem"]).encode("ascii"), password=password)
     except (KeyError, ValueError, TypeError) as exc:
         raise InputError(f"{path}: private_key_pem: cannot be read (wrong passphrase or damaged file: {exc})") from None
     if not isinstance(private, Ed25519PrivateKey):
         raise InputError(f"{path}: private_key_pem: not an Ed25519 key (got {type(private).__name__})")
-    key = SigningKey(_check_name(doc.get("signer_name", "")), private)
+    key = SigningKey(private, _fold(doc.get("signer_name", "")), bool(doc.get("passphrase_protected")))
     if doc.get("key_fingerprint") != key.fingerprint:
         raise InputError(f"{path}: key_fingerprint: does not match the key in the file (the file was altered)")
     return key
@@ -247,92 +272,30 @@ def load_public_key(path: str | os.PathLike) -> PublicKeyInfo:
         raise InputError(f"{path}: public_key_pem: cannot be read ({exc})") from None
     if not isinstance(public, Ed25519PublicKey):
         raise InputError(f"{path}: public_key_pem: not an Ed25519 key (got {type(public).__name__})")
-    info = PublicKeyInfo(str(doc.get("signer_name", "")), public.public_bytes(*_RAW))
+    info = PublicKeyInfo(_fold(doc.get("signer_name", "")), public.public_bytes(*_RAW))
     if doc.get("key_fingerprint") != info.fingerprint:
         raise InputError(f"{path}: key_fingerprint: does not match the key in the file (the file was altered)")
     return info
 
 
-# ----------------------------------------------------------- sign-off record
-
-
-def make_signoff_record(
-    *,
-    signer_name: str,
-    key_fingerprint: str,
-    signed_at_utc: str,
-    meaning: str,
-    comment: str,
-    batch_id: str,
-    report_sha256: str,
-    results_sha256: Mapping[str, str],
-) -> dict:
-    """The sign-off record as a plain dict (what :func:`canonical_record_bytes` serialises).
-
-    ``results_sha256`` maps each part's key in the batch to the SHA-256 of its
-    stored result JSON.
-
-    Raises
-    ------
-    InputError
-        For a meaning other than those in :data:`MEANINGS`.
-    """
-    if meaning not in MEANINGS:
-        raise InputError(f"--meaning: unknown meaning (got {meaning!r}, allowed {', '.join(MEANINGS)})")
-    return {
-        "format": RECORD_FORMAT,
-        "signer_name": signer_name,
-        "key_fingerprint": key_fingerprint,
-        "signed_at_utc": signed_at_utc,
-        "meaning": meaning,
-        "comment": comment,
-        "batch_id": batch_id,
-        "report_sha256": report_sha256,
-        "results_sha256": dict(results_sha256),
-    }
-
-
-def canonical_record_bytes(record: Mapping[str, Any]) -> bytes:
-    """The one byte string a record is signed as: JSON, sorted keys, no spaces, UTF-8.
-
-    Only strings, integers, lists and objects are allowed, so that the bytes
-    never depend on how a float is printed.
-    """
-    _check_canonical_value(record, "record")
-    return json.dumps(record, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False).encode(
-        "utf-8"
-    )
-
-
-def _check_canonical_value(value: Any, where: str) -> None:
-    if isinstance(value, Mapping):
-        for k, v in value.items():
-            if not isinstance(k, str):
-                raise ValueError(f"{where}: keys must be strings (got {k!r})")
-            _check_canonical_value(v, f"{where}.{k}")
-    elif isinstance(value, (list, tuple)):
-        for i, v in enumerate(value):
-            _check_canonical_value(v, f"{where}[{i}]")
-    elif isinstance(value, bool) or value is None or isinstance(value, (str, int)):
-        return
-    else:
-        raise ValueError(f"{where}: only strings, integers, lists and objects are signed (got {type(value).__name__})")
+# ------------------------------------------------------------------- records
 
 
 def sign_record(key: SigningKey, record: Mapping[str, Any]) -> bytes:
-    """Sign a record with ``key``; the record must name this key and its signer."""
+    """Sign a record with ``key``; the record must name this key's fingerprint."""
     if record.get("key_fingerprint") != key.fingerprint:
         raise ValueError("record.key_fingerprint does not belong to the signing key")
-    if record.get("signer_name") != key.signer_name:
-        raise ValueError("record.signer_name is not the name held with the signing key")
-    return key.sign(canonical_record_bytes(record))
+    return key.sign(canonical_bytes(record))
 
 
 def verify_record(public_key_raw: bytes, record: Mapping[str, Any], signature: bytes) -> bool:
     """True when the signature holds over the record and the record names this key."""
-    if record.get("key_fingerprint") != key_fingerprint(public_key_raw):
+    try:
+        if record.get("key_fingerprint") != key_fingerprint(public_key_raw):
+            return False
+        return verify_signature(public_key_raw, canonical_bytes(record), signature)
+    except (ValueError, TypeError):
         return False
-    return verify_signature(public_key_raw, canonical_record_bytes(record), signature)
 
 
 def passphrase_from_env(variable: str | None) -> bytes | None:

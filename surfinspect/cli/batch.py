@@ -24,6 +24,7 @@ from typing import Iterator
 from ..archive import store as archive
 from ..results import EXIT_INPUT_ERROR
 from ..station import batch
+from ._keys import open_key
 from .console import Console
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
@@ -44,6 +45,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
         "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+    )
+    parser.add_argument(
+        "--station-key",
+        metavar="KEYFILE",
+        help="the station's private key (enrolled with role station): signs the chain head when the batch closes",
+    )
+    parser.add_argument(
+        "--passphrase-env", metavar="VAR", help="environment variable holding the station key's passphrase"
     )
 
 
@@ -116,6 +125,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         operator=args.operator,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
+        station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
     progress = _Progress(console)
     try:

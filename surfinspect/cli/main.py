@@ -14,6 +14,7 @@ import sys
 from typing import Sequence
 
 from .._version import __version__
+from ..archive.backend import IndexBusy, IndexDamaged
 from ..errors import InputError
 from ..results import EXIT_INPUT_ERROR
 from .console import Console
@@ -22,7 +23,22 @@ from .console import Console
 DEBUG_ENV = "SURFINSPECT_DEBUG"
 
 #: Sub-commands in the order ``--help`` lists them.
-COMMANDS = ("inspect", "check", "demo", "batch", "keygen", "sign", "verify", "show", "target", "bias", "gauge")
+COMMANDS = (
+    "inspect",
+    "check",
+    "demo",
+    "batch",
+    "keygen",
+    "owner",
+    "signers",
+    "sign",
+    "disposition",
+    "verify",
+    "show",
+    "target",
+    "bias",
+    "gauge",
+)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -69,6 +85,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except InputError as exc:
         for line in exc.problems:
             console.error(line)
+        return EXIT_INPUT_ERROR
+    except (IndexDamaged, IndexBusy) as exc:  # an archive index that cannot be read or written
+        console.error(f"archive index: {exc} (`surfinspect verify --archive DIR` names what is wrong)")
         return EXIT_INPUT_ERROR
     except OSError as exc:
         # an output that cannot be written (a file where a folder is wanted, no permission, disk

@@ -1,4 +1,4 @@
-"""``surfinspect show``: list an archive's batches, their verdict counts and sign-off state.
+"""``surfinspect show``: list an archive's batches, their verdict counts, sign-offs and dispositions.
 
 With ``--batch-id ID --out DIR`` it also copies that batch's files out of the
 archive under readable names (the archive keeps them as objects named by
@@ -123,3 +123,12 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
         )
     else:
         console.info("not signed off")
+    dispositions = arc.dispositions(batch_id)
+    if dispositions:
+        console.table(
+            ["part", "#", "disposition", "by", "decided (UTC)", "comment"],
+            [
+                [d.part_key, d.disposition_no, d.decision, d.signer_name, d.decided_at_utc, d.comment]
+                for d in dispositions
+            ],
+        )

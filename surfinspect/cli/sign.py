@@ -1,5 +1,7 @@
 """``surfinspect sign``: sign a finished batch off with a meaning, into the archive.
 
+The key must be enrolled in the archive's signer register (which gives the
+printed name), not revoked and not a station's; the archive must verify.
 Every input and output is checked before the signature is made: a command
 that fails leaves no sign-off behind.
 """
@@ -10,23 +12,28 @@ import argparse
 import shlex
 from pathlib import Path
 
-from ..archive import signing
+from ..archive import signatures
 from ..archive import store as archive
 from ..fsutil import write_bytes_atomic
 from ..station import batch
 from ._checks import check_output_file
+from ._keys import add_key_arguments, open_key
 from .console import Console
 
-HELP = "sign a finished batch off (approved, rejected or reviewed) and store the signed report"
+HELP = f"sign a finished batch off ({', '.join(signatures.MEANINGS)}) and store the signed report"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
-    parser.add_argument("--key", required=True, metavar="KEYFILE", help="the signer's private key file (from keygen)")
-    parser.add_argument("--meaning", required=True, choices=signing.MEANINGS, help="what the signature means")
+    add_key_arguments(parser, "--key", "the signer's private key file (enrolled in the archive's register)")
+    parser.add_argument(
+        "--meaning",
+        required=True,
+        choices=signatures.MEANINGS,
+        help="released: may go on as judged; withheld: held back; examined: read and checked, no release decision",
+    )
     parser.add_argument("--comment", default="", metavar="TEXT", help="a comment kept in the signed record")
-    parser.add_argument("--passphrase-env", metavar="VAR", help="environment variable holding the key's passphrase")
     parser.add_argument("--out", metavar="PDF", help="also write the signed report to this .pdf file")
 
 
@@ -37,8 +44,10 @@ def run(args: argparse.Namespace, console: Console) -> int:
         out = Path(args.out)
     with archive.Archive(args.archive) as arc:
         arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
-        key = signing.load_signing_key(args.key, passphrase=signing.passphrase_from_env(args.passphrase_env))
-        row = archive.sign_batch(
+        key = open_key(args.key, args.passphrase_env, "--key")
+        if not key.protected:
+            console.warn(f"{args.key}: a person's key without a passphrase; anyone who copies the file can sign")
+        row = signatures.sign_batch(
             arc,
             args.batch_id,
             key,
@@ -49,6 +58,10 @@ def run(args: argparse.Namespace, console: Console) -> int:
         edition = arc.object_path(row.signed_report_sha256)
         if out is not None:
             write_bytes_atomic(out, edition.read_bytes())
+    if key.label and key.label != row.signer_name:
+        console.warn(
+            f"{args.key}: the key file calls its holder {key.label!r}; signed as {row.signer_name!r} (register)"
+        )
     console.info(
         f"batch {row.batch_id}: sign-off #{row.signoff_no}, {row.meaning} by {row.signer_name} at {row.signed_at_utc}"
     )

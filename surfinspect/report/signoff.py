@@ -5,9 +5,7 @@ from __future__ import annotations
 from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
-from ..results import (
-    SignOff,
-)
+from ..results import SIGNOFF_MEANINGS, SignOff
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
 
 _SIGNOFF_LINE = 14.5
@@ -33,6 +31,8 @@ def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
         ("Record SHA-256", signoff.record_sha256 or "—", "Courier"),
         ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", "Courier"),
     ]
+    if signoff.chain_head:
+        rows.append(("Audit chain head", f"event {signoff.chain_head}", "Courier"))
     if comment:
         for k, line in enumerate(simpleSplit(comment, "Helvetica", _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
             rows.append(("Comment" if k == 0 else "", line, "Helvetica"))
@@ -72,7 +72,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
             c.setDash([])
             if label == "Meaning":
                 c.setFont("Helvetica", 6.5)
-                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, "approved / rejected / reviewed")
+                c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, " / ".join(SIGNOFF_MEANINGS))
         else:
             size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE
             c.setFont(font, size)

@@ -53,6 +53,7 @@ import cv2
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, write_bytes_atomic
 from ..inputs import env_limit, escape_text
@@ -103,6 +104,7 @@ class BatchConfig:
     operator: str | None = None
     recursive: bool = False
     out_dir: Path | None = None
+    station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
 
 
 @dataclass(frozen=True)
@@ -225,6 +227,10 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
+        if config.station_key is not None:  # refused before any work, not at the close
+            arc.register().require_signer(
+                config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
+            )
         # a refused entry is not read at all: it has no hash, and its record says why
         hashed = {f.key: (None, f.refusal) if f.refusal else _hash_file(f.path) for f in images}
         plan = arc.start_batch(
@@ -249,7 +255,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
-            batch, interruption = _finish(arc, config.batch_id)
+            batch, interruption = _finish(arc, config.batch_id, config.station_key)
         if config.out_dir is not None:
             export_batch(arc, config.batch_id, config.out_dir)
         parts = tuple(arc.parts(config.batch_id))
@@ -404,14 +410,20 @@ def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:
     return results.exit_code(verdicts)
 
 
-def _finish(arc: archive_mod.Archive, batch_id: str) -> tuple[archive_mod.BatchRow, str | None]:
+def _finish(
+    arc: archive_mod.Archive, batch_id: str, station_key: SigningKey | None = None
+) -> tuple[archive_mod.BatchRow, str | None]:
     """Write the batch report and CSV and close the batch; (batch row, why it could not be finished or None)."""
     generated_at = archive_mod.utc_now()
     report, interruption = _render_report_in_own_process(arc, batch_id, generated_at)
     if report is None:
         return arc.batch(batch_id), interruption
     batch = arc.finish_batch(
-        batch_id, report_pdf=report, regions_csv=regions_csv(arc, batch_id), report_generated_at=generated_at
+        batch_id,
+        report_pdf=report,
+        regions_csv=regions_csv(arc, batch_id),
+        report_generated_at=generated_at,
+        station_key=station_key,
     )
     return batch, None
 

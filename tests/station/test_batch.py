@@ -20,6 +20,7 @@ import pytest
 
 from surfinspect.archive import PartRow, signing
 from surfinspect.archive import store as arc
+from surfinspect.archive.verify import verify
 from surfinspect.cli import main
 from surfinspect.errors import InputError
 from surfinspect.measure import synth
@@ -93,7 +94,7 @@ def test_batch_end_to_end(panels, tmp_path):
     assert json.loads((out / "LW-220-broken.json").read_text())["schema"] == arc.ERROR_SCHEMA
     assert (out / "LW-220-002.overlay.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert not (out / "LW-220-broken.overlay.png").exists()
-    assert arc.verify(tmp_path / "archive") == []
+    assert verify(tmp_path / "archive") == []
 
     # the CSV holds every region as the part JSON holds it (same rounding), and the error part
     rows = list(csv.DictReader(io.StringIO((out / "regions.csv").read_text())))
@@ -134,7 +135,7 @@ def test_killed_worker_then_rerun_records_every_part_once(panels, tmp_path, monk
     assert {p.part_key: p.verdict for p in second.parts} == EXPECTED
     inspected = _inspected_events(tmp_path / "archive")
     assert sorted(inspected) == sorted(EXPECTED)  # every part exactly once
-    assert arc.verify(tmp_path / "archive") == []
+    assert verify(tmp_path / "archive") == []
     # a finished batch run again inspects nothing
     third = batch.run_batch(_config(panels, tmp_path))
     assert third.was_finished and third.inspected_now == 0 and third.exit_code == 1
@@ -218,7 +219,8 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     key = tmp_path / "lindqvist.key"
     monkeypatch.setenv("SIGN_PASS", "grain runs up")
     assert main(["-q", "keygen", "--name", "Kari Lindqvist", "--out", str(key), "--passphrase-env", "SIGN_PASS"]) == 0
-    assert main(["sign", "--archive", str(root), "--batch-id", "NOPE", "--key", str(key), "--meaning", "approved"]) == 2
+    _enrol(root, tmp_path, key, "Kari Lindqvist")
+    assert main(["sign", "--archive", str(root), "--batch-id", "NOPE", "--key", str(key), "--meaning", "released"]) == 2
     assert "no batch 'NOPE' in this archive" in capsys.readouterr().err
     signed_pdf = tmp_path / "signed.pdf"
     assert (
@@ -233,7 +235,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
                 "--key",
                 str(key),
                 "--meaning",
-                "rejected",
+                "withheld",
                 "--comment",
                 "two panels off grain",
                 "--passphrase-env",
@@ -252,7 +254,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     fingerprint = signing.load_signing_key(key, passphrase=b"grain runs up").fingerprint
     pypdf = pytest.importorskip("pypdf")
     signed_text = pypdf.PdfReader(signed_pdf).pages[0].extract_text()
-    for shown in ("Kari Lindqvist", "rejected", fingerprint, s.signed_at_utc):
+    for shown in ("Kari Lindqvist", "WITHHELD", fingerprint, s.signed_at_utc):
         assert shown in signed_text
     assert "NOT SIGNED" in pypdf.PdfReader(io.BytesIO(unsigned)).pages[0].extract_text()
 
@@ -261,7 +263,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     assert "intact" in capsys.readouterr().out
     assert main(["show", "--archive", str(root)]) == 0
     listing = capsys.readouterr().out
-    assert "B1" in listing and "rejected by Kari Lindqvist" in listing
+    assert "B1" in listing and "withheld by Kari Lindqvist" in listing
     assert main(["show", "--archive", str(root), "--batch-id", "B1"]) == 0
     assert "LW-220-broken.png  error" in capsys.readouterr().out
 
@@ -337,7 +339,7 @@ def test_recursive_rerun_takes_no_output_or_archive_file_as_a_part(tmp_path, cap
     assert main(["-q", *args, "--batch-id", "R2"]) == 0
     with arc.Archive(archive) as a:
         assert [p.part_key for p in a.parts("R2")] == ["LW-220-000.png", "LW-220-001.png", "line-2/LW-220-002.png"]
-    assert arc.verify(archive) == []
+    assert verify(archive) == []
 
 
 def test_discover_images_ignores_exclusions_that_are_not_below_the_folder(tmp_path):
@@ -383,18 +385,29 @@ def test_archive_or_out_that_cannot_be_used_exits_2_and_writes_nothing(panels, t
     assert main(["-q", "verify", "--archive", str(good)]) == 0
 
 
+def _enrol(root, tmp_path, key, name, *passphrase):
+    """Give the archive an owner and enrol ``key``'s public half under ``name`` (the owner key is unencrypted)."""
+    owner = tmp_path / "owner.key"
+    if not owner.exists():
+        assert main(["-q", "keygen", "--out", str(owner), "--no-passphrase"]) == 0
+        assert main(["-q", "owner", "init", "--archive", str(root), "--name", "M. QUALITY", "--key", str(owner)]) == 0
+    add = ["signers", "add", "--archive", str(root), "--pub", f"{key}.pub", "--name", name, "--role", "inspector"]
+    assert main(["-q", *add, "--by", str(owner)]) == 0
+
+
 def _signed_setup(panels, tmp_path, monkeypatch):
     root = tmp_path / "archive"
     assert main(["-q", *_batch_args(panels, root, "B1")]) == 1
     key = tmp_path / "berg.key"
-    assert main(["-q", "keygen", "--name", "Anna Berg", "--out", str(key)]) == 0
+    assert main(["-q", "keygen", "--name", "Anna Berg", "--out", str(key), "--no-passphrase"]) == 0
+    _enrol(root, tmp_path, key, "Anna Berg")
     return root, key
 
 
 def test_sign_checks_out_before_signing(panels, tmp_path, capsys, monkeypatch):
     root, key = _signed_setup(panels, tmp_path, monkeypatch)
     (tmp_path / "adir").mkdir()
-    sign = ["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "approved"]
+    sign = ["sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "released"]
     with arc.Archive(root) as a:
         events_before = a.chain_head()
     for out, says in [
@@ -434,7 +447,7 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
                 "--key",
                 str(key),
                 "--meaning",
-                "rejected",
+                "withheld",
                 "--comment",
                 comment,
             ]
@@ -460,6 +473,8 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
     text = " ".join(pypdf.PdfReader(copies / "report.signed-1.pdf").pages[0].extract_text().split())
     assert "???? 2 panels off grain" in text and "characters outside Latin-1 shown as ?" in text
     assert f"Covers report SHA-256 {report_sha}" in text
+    record = json.loads(s.record_json)  # the signed record's chain head, printed: an anchor on paper
+    assert f"Audit chain head event {record['audit_events']} {record['audit_head_sha256']}" in text
     assert main(["show", "--archive", str(root), "--out", str(copies)]) == 2
     assert "--out: needs --batch-id" in _one_error_line(capsys)
     assert main(["-q", "verify", "--archive", str(root)]) == 0
@@ -551,4 +566,4 @@ def test_stopped_batch_leaves_no_process_and_a_rerun_finishes_each_part_once(ten
         assert proc.returncode == -signal.SIGKILL
     assert main(["-q", *args]) == 0
     assert sorted(_inspected_events(root)) == sorted(p.name for p in folder.glob("*.png"))  # each exactly once
-    assert arc.verify(root) == []
+    assert verify(root) == []

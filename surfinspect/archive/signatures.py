@@ -1,0 +1,332 @@
+"""Signed acts on an archive: set its owner, enrol and revoke signers, sign batches off, record dispositions.
+
+Each act checks the key against the signer register (never the key file) for
+the printed name, refuses a key that is not enrolled, is revoked or has the
+wrong role, verifies the archive first (nothing is signed over a tampered
+index), and stores its signed record together with a signed chain head.
+
+Sign-off record (``surfinspect.signoff-record/2``, canonical JSON signed by
+the signer's key) binds, per 21 CFR Part 11 §11.50 and §11.70: the printed
+name and key fingerprint (with the register entry that enrolled the key),
+the meaning, the UTC time, the hash of the exact report edition signed
+(``report_sha256``: the batch report as stored, which the signer reviewed),
+the hash of the batch's index content (``batch_content_sha256``), every
+part's result hash, and the audit chain head at that moment. The signed
+edition of the PDF, which prints the record's hash, is then bound by the
+signer's signature over the next chain head.
+
+Meanings (:data:`surfinspect.results.SIGNOFF_MEANINGS`) share no word with
+the part or region verdicts: ``released`` (the batch may go on as judged),
+``withheld`` (the batch is held back), ``examined`` (read and checked, no
+release decision). Dispositions of a doubtful part: ``use-as-is``,
+``rework``, ``scrap``, ``re-inspect``.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+from ..errors import InputError
+from ..fsutil import sha256_bytes
+from ..results import SIGNOFF_MEANINGS, SignOff
+from . import chain, signing
+from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
+from .register import OWNER_ROLE, check_printed_text, entry_record
+from .schema import DispositionRow, RegisterRow, SignoffRow
+from .store import ERROR_VERDICT, Archive, utc_now
+
+__all__ = [
+    "MEANINGS",
+    "DECISIONS",
+    "SIGNOFF_FORMAT",
+    "DISPOSITION_FORMAT",
+    "CLOCK_ALLOWANCE_S",
+    "parse_utc",
+    "time_problem",
+    "init_owner",
+    "enrol_signer",
+    "revoke_signer",
+    "sign_batch",
+    "record_disposition",
+]
+
+MEANINGS = SIGNOFF_MEANINGS
+DECISIONS = ("use-as-is", "rework", "scrap", "re-inspect")
+SIGNOFF_FORMAT = "surfinspect.signoff-record/2"
+DISPOSITION_FORMAT = "surfinspect.disposition-record/1"
+
+
+def _require_intact(archive: Archive, what: str, batch_id: str | None = None) -> None:
+    """Refuse to sign over a problem: the chain, every index row, the register and the signed heads are
+    checked whole, and the files, results and signatures of ``batch_id`` (none when it is None)."""
+    from .verify import verify_archive  # the verifier checks signed acts: imported when used
+
+    report = verify_archive(archive, batch_id, shared_only=batch_id is None)
+    if report.problems:
+        more = f" (and {len(report.problems) - 1} more)" if len(report.problems) > 1 else ""
+        raise InputError(
+            f"{archive.root}: {what} refused: the archive does not verify: {report.problems[0]}{more}; "
+            "run `surfinspect verify` and have the findings cleared first"
+        )
+
+
+# ------------------------------------------------------------------ register
+
+
+def _register_entry(archive, owner_key, *, action, subject_fp, subject_pub, name, role, reason) -> RegisterRow:
+    register = archive.register()
+    events, head = archive.chain_head()
+    at = utc_now()
+    record = entry_record(
+        archive_id=archive.archive_id,
+        entry_no=register.next_entry_no,
+        action=action,
+        key_fingerprint=subject_fp,
+        public_key_hex=subject_pub,
+        printed_name=name,
+        role=role,
+        reason=reason,
+        recorded_at_utc=at,
+        by_fingerprint=owner_key.fingerprint,
+        audit_events=events,
+        audit_head_sha256=head,
+    )
+    signature = owner_key.sign(chain.canonical_bytes(record))
+    columns = {f: record[f] for f in RegisterRow.__dataclass_fields__ if f in record}
+    row = RegisterRow(
+        **columns, record_json=chain.canonical_bytes(record).decode("utf-8"), signature_hex=signature.hex()
+    )
+    archive.add_register_entry(row, owner_key, (events, head))
+    return row
+
+
+def init_owner(archive: Archive, owner_key: signing.SigningKey, printed_name: str) -> RegisterRow:
+    """Give the archive its owner, once: a self-signed register entry."""
+    name = check_printed_text("--name", printed_name)
+    owner = archive.register().owner
+    if owner is not None:
+        raise InputError(
+            f"{archive.root}: the archive already has an owner ({owner.printed_name}, key {owner.key_fingerprint[:16]}…, "
+            f"since {owner.enrolled_at_utc}); the owner is set once"
+        )
+    _require_intact(archive, "setting the owner")
+    pub = owner_key.public_key_raw.hex()
+    return _register_entry(
+        archive,
+        owner_key,
+        action="owner",
+        subject_fp=owner_key.fingerprint,
+        subject_pub=pub,
+        name=name,
+        role=OWNER_ROLE,
+        reason="",
+    )
+
+
+def enrol_signer(
+    archive: Archive, owner_key: signing.SigningKey, public: signing.PublicKeyInfo, printed_name: str, role: str
+) -> RegisterRow:
+    """Enrol a person's or a station's public key under a printed name and role, signed by the owner."""
+    name = check_printed_text("--name", printed_name)
+    role = check_printed_text("--role", role, max_len=40)
+    register = archive.register()
+    register.require_owner(owner_key.fingerprint, "--by")
+    if register.key_holder(public.fingerprint) is not None:
+        holder = register.key_holder(public.fingerprint)
+        state = "revoked" if holder.revoked_at_utc else "enrolled"
+        raise InputError(
+            f"--pub: this key ({public.fingerprint[:16]}…) is already {state} for {holder.printed_name}; "
+            "a key is enrolled once (make a new key with keygen)"
+        )
+    same_name = [s for s in register.signers.values() if s.printed_name == name and s.revoked_at_utc is None]
+    if same_name:
+        raise InputError(
+            f"--name: {name!r} is already enrolled with key {same_name[0].key_fingerprint[:16]}…; a printed name "
+            "belongs to one signer (revoke the old key first, or tell the two apart)"
+        )
+    _require_intact(archive, "enrolment")
+    return _register_entry(
+        archive,
+        owner_key,
+        action="enrol",
+        subject_fp=public.fingerprint,
+        subject_pub=public.public_key_raw.hex(),
+        name=name,
+        role=role,
+        reason="",
+    )
+
+
+def revoke_signer(archive: Archive, owner_key: signing.SigningKey, fingerprint: str, reason: str) -> RegisterRow:
+    """Withdraw an enrolled key from now on (what it signed before stays valid), signed by the owner."""
+    register = archive.register()
+    register.require_owner(owner_key.fingerprint, "--by")
+    matches = (
+        [s for fp, s in register.signers.items() if fp.startswith(fingerprint.lower())] if len(fingerprint) >= 8 else []
+    )
+    if len(matches) != 1:
+        raise InputError(
+            f"--key-fingerprint: {fingerprint!r} names {len(matches)} enrolled key(s) (allowed: 8 or more leading hex "
+            "digits of exactly one enrolled key; `surfinspect signers list` shows them)"
+        )
+    signer = matches[0]
+    if signer.revoked_at_utc is not None:
+        raise InputError(
+            f"--key-fingerprint: the key of {signer.printed_name} was already revoked at {signer.revoked_at_utc}"
+        )
+    _require_intact(archive, "revocation")
+    return _register_entry(
+        archive,
+        owner_key,
+        action="revoke",
+        subject_fp=signer.key_fingerprint,
+        subject_pub=signer.public_key_hex,
+        name=signer.printed_name,
+        role=signer.role,
+        reason=" ".join(reason.split()),
+    )
+
+
+# ------------------------------------------------------------------ sign-off
+
+
+def sign_batch(
+    archive: Archive,
+    batch_id: str,
+    key: signing.SigningKey,
+    *,
+    meaning: str,
+    comment: str = "",
+    render_edition: Callable[[SignOff], bytes],
+    signed_at_utc: str | None = None,
+) -> SignoffRow:
+    """Sign a finished batch and store the signed edition of its report.
+
+    ``render_edition`` receives the :class:`SignOff` to print in the report's
+    sign-off block and returns the PDF bytes.
+
+    Raises
+    ------
+    InputError
+        For an unknown or unfinished batch, an unknown meaning, a key that
+        is not enrolled or is revoked or a station's, a time that is not a
+        real one, or an archive that does not verify.
+    """
+    batch = archive.batch(batch_id)
+    if not batch.is_finished:
+        raise InputError(
+            f"--batch-id: batch {batch_id!r} is not finished (no batch report yet); run the batch again to finish it"
+        )
+    if meaning not in MEANINGS:
+        raise InputError(f"--meaning: unknown meaning (got {meaning!r}, allowed {', '.join(MEANINGS)})")
+    at = signed_at_utc or utc_now()
+    signer = archive.register().require_signer(key.fingerprint, at, "--key", station_allowed=False)
+    problem = time_problem(at, not_before=batch.finished_at)
+    if problem:
+        raise InputError(f"signed_at_utc: {problem}")
+    _require_intact(archive, "signing", batch_id)
+    events, head = archive.chain_head()
+    number = 1 + len(archive.signoffs(batch_id))
+    record = {
+        "format": SIGNOFF_FORMAT,
+        "archive_id": archive.archive_id,
+        "batch_id": batch_id,
+        "signoff_no": number,
+        "signer_name": signer.printed_name,
+        "key_fingerprint": key.fingerprint,
+        "register_entry": signer.entry_no,
+        "meaning": meaning,
+        "signed_at_utc": at,
+        "comment": " ".join(comment.split()),
+        "report_sha256": batch.report_sha256,
+        "batch_content_sha256": archive.batch_content_sha256(batch_id),
+        "results_sha256": archive.results_sha256(batch_id),
+        "audit_events": events,
+        "audit_head_sha256": head,
+    }
+    record_bytes = chain.canonical_bytes(record)
+    signature = signing.sign_record(key, record)
+    signoff = SignOff(
+        signer_name=signer.printed_name,
+        meaning=meaning,
+        signed_at_utc=at,
+        key_fingerprint=key.fingerprint,
+        comment=record["comment"],
+        record_sha256=chain.canonical_sha256(record),
+        report_sha256=batch.report_sha256,
+        chain_head=f"{events} {head}",
+    )
+    edition = render_edition(signoff)
+    row = SignoffRow(
+        batch_id=batch_id,
+        signoff_no=number,
+        signer_name=signer.printed_name,
+        key_fingerprint=key.fingerprint,
+        meaning=meaning,
+        signed_at_utc=at,
+        comment=record["comment"],
+        record_json=record_bytes.decode("utf-8"),
+        record_sha256=signoff.record_sha256,
+        signature_hex=signature.hex(),
+        signed_report_sha256=sha256_bytes(edition),
+    )
+    return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
+
+
+def record_disposition(
+    archive: Archive, batch_id: str, part_key: str, key: signing.SigningKey, *, decision: str, comment: str = ""
+) -> DispositionRow:
+    """Record what is to become of a rejected, doubtful or uninspected part, signed by an enrolled person.
+
+    Raises
+    ------
+    InputError
+        For an unknown batch or part, an accepted or pending part, an unknown
+        decision, a key that may not sign, or an archive that does not verify.
+    """
+    if decision not in DECISIONS:
+        raise InputError(f"--decision: unknown decision (got {decision!r}, allowed {', '.join(DECISIONS)})")
+    archive.batch(batch_id)
+    part = archive.part(batch_id, part_key)
+    if part.verdict not in ("reject", "review", ERROR_VERDICT):
+        raise InputError(
+            f"--part: part {part_key!r} of batch {batch_id!r} is {part.verdict or 'not inspected yet'}; "
+            "a disposition is for a part judged reject or review, or one that could not be inspected"
+        )
+    at = utc_now()
+    signer = archive.register().require_signer(key.fingerprint, at, "--key", station_allowed=False)
+    _require_intact(archive, "the disposition", batch_id)
+    events, head = archive.chain_head()
+    number = 1 + len([d for d in archive.dispositions(batch_id) if d.part_key == part_key])
+    record = {
+        "format": DISPOSITION_FORMAT,
+        "archive_id": archive.archive_id,
+        "batch_id": batch_id,
+        "part_key": part_key,
+        "disposition_no": number,
+        "decision": decision,
+        "part_verdict": part.verdict,
+        "result_sha256": part.result_sha256,
+        "signer_name": signer.printed_name,
+        "key_fingerprint": key.fingerprint,
+        "register_entry": signer.entry_no,
+        "decided_at_utc": at,
+        "comment": " ".join(comment.split()),
+        "audit_events": events,
+        "audit_head_sha256": head,
+    }
+    row = DispositionRow(
+        batch_id=batch_id,
+        part_key=part_key,
+        disposition_no=number,
+        decision=decision,
+        signer_name=signer.printed_name,
+        key_fingerprint=key.fingerprint,
+        decided_at_utc=at,
+        comment=record["comment"],
+        record_json=chain.canonical_bytes(record).decode("utf-8"),
+        record_sha256=chain.canonical_sha256(record),
+        signature_hex=signing.sign_record(key, record).hex(),
+    )
+    archive.add_disposition(row, key=key, expected_head=(events, head))
+    return row

@@ -1,0 +1,168 @@
+"""The SQLite index backend: one file in the archive folder, embedded, nothing to start.
+
+Every write is one transaction taken with ``BEGIN IMMEDIATE`` (writers queue
+behind a busy timeout instead of failing on a lock upgrade), so two processes
+can write the same archive and a crash never leaves half a record. Table and
+column names come only from :mod:`.schema`, never from data, and are checked
+against it before they are put into a statement.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import sqlite3
+from pathlib import Path
+from typing import Any, Iterator, Sequence
+
+from .backend import IndexBackend, IndexBusy, IndexDamaged, Row
+from .schema import TABLE_BY_NAME, TABLES, Table
+
+__all__ = ["SQLiteBackend", "INDEX_NAME", "BUSY_TIMEOUT_S"]
+
+INDEX_NAME = "index.sqlite"
+BUSY_TIMEOUT_S = 60.0
+
+
+def _ddl(table: Table) -> str:
+    cols = []
+    for c in table.columns:
+        decl = f"{c.name} {c.type}"
+        if not c.nullable:
+            decl += " NOT NULL"
+        if c.unique:
+            decl += " UNIQUE"
+        cols.append(decl)
+    cols.append(f"PRIMARY KEY ({', '.join(table.primary_key)})")
+    return f"CREATE TABLE IF NOT EXISTS {table.name} ({', '.join(cols)})"
+
+
+def _table(name: str) -> Table:
+    if name not in TABLE_BY_NAME:
+        raise ValueError(f"unknown table {name!r}")
+    return TABLE_BY_NAME[name]
+
+
+def _checked(table: Table, names) -> list[str]:
+    bad = [n for n in names if n not in table.column_names]
+    if bad:
+        raise ValueError(f"table {table.name!r} has no column(s) {', '.join(map(repr, bad))}")
+    return list(names)
+
+
+def _where(table: Table, where: Row | None) -> tuple[str, list]:
+    if not where:
+        return "", []
+    names = _checked(table, where)
+    return " WHERE " + " AND ".join(f"{n} IS ?" for n in names), [where[n] for n in names]
+
+
+@contextlib.contextmanager
+def _translated() -> Iterator[None]:
+    """sqlite3's errors as the backend's own: busy/read-only apart from damage."""
+    try:
+        yield
+    except sqlite3.OperationalError as exc:
+        text = str(exc)
+        if "locked" in text or "readonly" in text or "read-only" in text:
+            raise IndexBusy(text) from None
+        raise IndexDamaged(text) from None
+    except sqlite3.DatabaseError as exc:  # malformed image, not a database, constraint broken by hand
+        raise IndexDamaged(str(exc)) from None
+    except UnicodeDecodeError as exc:  # a text value whose bytes were damaged
+        raise IndexDamaged(f"a text value is not UTF-8 ({exc.reason} at byte {exc.start})") from None
+
+
+class SQLiteBackend(IndexBackend):
+    """The index in ``DIR/index.sqlite``."""
+
+    def __init__(self, root: str | Path):
+        self.path = Path(root) / INDEX_NAME
+        self.location = str(self.path)
+        with _translated():
+            self._db = sqlite3.connect(self.path, timeout=BUSY_TIMEOUT_S, isolation_level=None)
+            self._db.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
+
+    def exists(self) -> bool:
+        # sqlite makes the file before its first write: an empty file holds nothing yet
+        return self.path.is_file() and self.path.stat().st_size > 0
+
+    def create_schema(self) -> None:
+        with self.write():
+            for table in TABLES:
+                self._db.execute(_ddl(table))
+
+    @contextlib.contextmanager
+    def write(self) -> Iterator[None]:
+        with _translated():
+            self._db.execute("BEGIN IMMEDIATE")
+        try:
+            yield
+        except BaseException:
+            with contextlib.suppress(sqlite3.Error):
+                self._db.execute("ROLLBACK")
+            raise
+        with _translated():
+            self._db.execute("COMMIT")
+
+    def insert(self, table: str, row: Row) -> None:
+        t = _table(table)
+        names = _checked(t, row)
+        marks = ", ".join("?" for _ in names)
+        with _translated():
+            self._db.execute(f"INSERT INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names])
+
+    def insert_ignore(self, table: str, row: Row) -> bool:
+        t = _table(table)
+        names = _checked(t, row)
+        marks = ", ".join("?" for _ in names)
+        with _translated():
+            cur = self._db.execute(
+                f"INSERT OR IGNORE INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names]
+            )
+        return cur.rowcount == 1
+
+    def update(self, table: str, key: Row, values: Row) -> int:
+        t = _table(table)
+        names = _checked(t, values)
+        clause, params = _where(t, key)
+        sets = ", ".join(f"{n} = ?" for n in names)
+        with _translated():
+            cur = self._db.execute(f"UPDATE {t.name} SET {sets}{clause}", [values[n] for n in names] + params)
+        return cur.rowcount
+
+    def select(
+        self, table: str, where: Row | None = None, *, order_by: Sequence[str] = (), columns: Sequence[str] = ()
+    ) -> list[dict[str, Any]]:
+        t = _table(table)
+        names = _checked(t, columns or t.column_names)
+        clause, params = _where(t, where)
+        order = f" ORDER BY {', '.join(_checked(t, order_by))}" if order_by else ""
+        with _translated():
+            cur = self._db.execute(f"SELECT {', '.join(names)} FROM {t.name}{clause}{order}", params)
+            return [dict(zip(names, row)) for row in cur.fetchall()]
+
+    def max_value(self, table: str, column: str, where: Row | None = None) -> Any:
+        t = _table(table)
+        (name,) = _checked(t, [column])
+        clause, params = _where(t, where)
+        with _translated():
+            return self._db.execute(f"SELECT MAX({name}) FROM {t.name}{clause}", params).fetchone()[0]
+
+    def columns_found(self) -> dict[str, tuple[str, ...]]:
+        with _translated():
+            names = [r[0] for r in self._db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+            found = {}
+            for name in names:
+                quoted = name.replace('"', '""')
+                found[name] = tuple(r[1] for r in self._db.execute(f'PRAGMA table_info("{quoted}")'))
+        return found
+
+    def integrity_problems(self) -> list[str]:
+        try:
+            rows = self._db.execute("PRAGMA integrity_check").fetchall()
+        except (sqlite3.DatabaseError, UnicodeDecodeError) as exc:
+            return [str(exc)]
+        return [r[0] for r in rows if r[0] != "ok"]
+
+    def close(self) -> None:
+        self._db.close()
