@@ -22,6 +22,7 @@ from pathlib import Path
 from typing import Iterator
 
 from ..archive import store as archive
+from ..archive.backend import IndexBusy, IndexDamaged
 from ..results import EXIT_INPUT_ERROR
 from ..station import batch
 from ._keys import open_key
@@ -138,7 +139,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
             "run again with the same --batch-id to finish"
         )
         return 128 + stop.signum
-    except (OSError, sqlite3.Error) as exc:  # the archive cannot be written: a full disk, a lost mount
+    except (OSError, sqlite3.Error, IndexDamaged, IndexBusy) as exc:  # the archive cannot be written: a full disk
         progress.close()
         console.error(
             f"batch {args.batch_id}: stopped: {_write_failure(exc)}; {_recorded(progress)}; "

@@ -18,6 +18,7 @@ import pytest
 from fuzzing import header_bomb_png
 
 from surfinspect.archive import store as arc
+from surfinspect.archive.objects import OBJECTS_DIR
 from surfinspect.cli import main
 from surfinspect.errors import InputError
 from surfinspect.measure import synth
@@ -92,7 +93,7 @@ def test_hostile_batch_judges_the_good_part_and_records_the_rest(hostile_folder,
     for key, words in expected.items():
         assert words in reasons[key], (key, reasons[key])
     # nothing the links point at went into the archive, and stored files are not world-readable
-    stored = [p for p in (root / arc.OBJECTS_DIR).rglob("*") if p.is_file()]
+    stored = [p for p in (root / OBJECTS_DIR).rglob("*") if p.is_file()]
     assert stored and all(p.read_bytes() != secret.read_bytes() for p in stored)
     assert all(not p.stat().st_mode & 0o004 for p in stored)
     # one line per part on the console: a newline in a name does not start a line of its own
