@@ -40,8 +40,9 @@ def run(recipe: Path, folder: Path, archive: Path, jobs: int) -> dict:
         [sys.executable, "-c", CHILD, str(recipe), str(folder), str(archive), str(jobs)],
         capture_output=True,
         text=True,
-        check=True,
     )
+    if done.returncode != 0:
+        raise SystemExit(f"the batch failed (exit {done.returncode}):\n{done.stderr[-3000:]}")
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
