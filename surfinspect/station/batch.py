@@ -168,7 +168,9 @@ def _exit_with_batch(batch_alive) -> None:
     os._exit(_EXIT_PARENT_GONE)
 
 
-def _inspect_one(position: int, path: str, name: str, scratch: str, exit_at: str | None, hold_from: str | None) -> dict:
+def _inspect_one(
+    position: int, part_key: str, path: str, name: str, scratch: str, exit_at: str | None, hold_from: str | None
+) -> dict:
     """Inspect one part into ``scratch``; returns a short message: the outputs' file names, or the error."""
     if exit_at == str(position + 1):
         os._exit(70)
@@ -177,7 +179,7 @@ def _inspect_one(position: int, path: str, name: str, scratch: str, exit_at: str
     # the same read-inspect-write as ``inspect``, into the parent's scratch folder (one sub-folder per part)
     out = Path(scratch) / str(position)
     out.mkdir()
-    outcome, _ = inspect_path(path, _worker_recipe, out, name, follow_symlinks=False)
+    outcome, _ = inspect_path(path, _worker_recipe, out, name, follow_symlinks=False, name=part_key)
     if outcome.error is not None:
         # in bytes, so that the whole message stays one atomic pipe write (PIPE_BUF is 4096 on Linux)
         error = outcome.error.encode("utf-8")[:_ERROR_BYTES].decode("utf-8", "ignore")
@@ -346,7 +348,7 @@ def _inspect_pending(
             try:
                 waiting = {
                     pool.submit(
-                        _inspect_one, position, str(recorder.paths[key]), names[key], scratch, exit_at, hold_from
+                        _inspect_one, position, key, str(recorder.paths[key]), names[key], scratch, exit_at, hold_from
                     ): position
                     for position, key in tasks
                 }

@@ -33,6 +33,7 @@ __all__ = [
     "PartOutcome",
     "MAX_NAME_BYTES",
     "output_stems",
+    "part_names",
     "inspect_path",
     "find_images",
     "run_exit_code",
@@ -45,11 +46,12 @@ class PartOutcome:
     """One image's outcome: a result, or the input error that stopped it."""
 
     path: str
-    stem: str
+    stem: str  # the name of its output files (JSON, overlay)
     result: PartResult | None = None
     error: str | None = None
     json_path: str | None = None
     overlay_path: str | None = None
+    name: str = ""  # the part's name in every output (see part_names)
 
 
 def output_stems(paths: Sequence[str | Path]) -> list[str]:
@@ -64,6 +66,23 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
     return out
 
 
+def part_names(paths: Sequence[str | Path]) -> list[str]:
+    """A part's name in every output: its image's file name, with as many of its folders as tell it apart.
+
+    Two images that share a file name (from different folders) are named by their paths from the
+    first folder where they differ (``line-1/lw-220-0001.png``, ``line-2/lw-220-0001.png``), so that
+    nobody takes one panel for the other.
+    """
+    parts = [Path(p).parts for p in paths]
+    names = []
+    for mine in parts:
+        depth = 1
+        while depth < len(mine) and any(o != mine and o[-depth:] == mine[-depth:] for o in parts):
+            depth += 1
+        names.append("/".join(mine[-depth:]))
+    return names
+
+
 def inspect_path(
     path: str | Path,
     recipe: Recipe,
@@ -72,13 +91,16 @@ def inspect_path(
     *,
     keep_pixels: bool = False,
     follow_symlinks: bool = True,
+    name: str | None = None,
 ) -> tuple[PartOutcome, np.ndarray | None]:
     """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically.
 
+    ``name`` is the part's name in the result (default: the image's file name).
     An input error (an unreadable, damaged or oversized image, a region outside
     it, too little memory for it) becomes the outcome's ``error``; an output
     that cannot be written (a full disk) raises ``OSError``.
     """
+    name = name or Path(path).name
     from ..report.overlay import write_overlay_png
 
     try:
@@ -89,7 +111,7 @@ def inspect_path(
                 f"(got {size} bytes, allowed at most {MAX_NAME_BYTES}); rename the file"
             )
         loaded = read_image(path, follow_symlinks=follow_symlinks)
-        result = inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
+        result = inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
@@ -100,9 +122,9 @@ def inspect_path(
         # a recipe problem found on this image (a region outside it) must say which image
         if str(path) not in text and escape_text(str(path)) not in text:
             text = f"{escape_text(str(path))}: {text}"
-        return PartOutcome(path=str(path), stem=stem, error=text), None
+        return PartOutcome(path=str(path), stem=stem, error=text, name=name), None
     outcome = PartOutcome(
-        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
+        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name
     )
     return outcome, (loaded.pixels if keep_pixels else None)
 
