@@ -21,6 +21,7 @@ from .inputs import escape_text
 
 __all__ = [
     "Map",
+    "Problems",
     "Seq",
     "compose_mapping",
     "describe",
@@ -192,6 +193,30 @@ def describe(value: Any) -> str:
     else:
         text = escape_text(str(value)[:200])
     return text if len(text) <= 60 else text[:57] + "..."
+
+
+class Problems:
+    """Problems found in one file, each ``file:line: key.path: text``, raised all at once."""
+
+    #: Most problems listed; a count of the rest follows.
+    SHOWN = 50
+
+    def __init__(self, source: str):
+        self.source = source
+        self.items: list[tuple[int, str]] = []
+        self.notices: list[str] = []
+
+    def add(self, line: int, path: str, text: str) -> None:
+        self.items.append((line, f"{self.source}:{line}: {path}: {text}"))
+
+    def raise_if_any(self) -> None:
+        if not self.items:
+            return
+        lines = [text for _, text in sorted(self.items, key=lambda t: t[0])]
+        shown = self.SHOWN
+        if len(lines) > shown:
+            lines = lines[:shown] + [f"{self.source}: ... and {len(lines) - shown} more problems"]
+        raise RecipeError(lines[0] if len(lines) == 1 else f"{len(self.items)} problems in {self.source}", lines)
 
 
 def compose_mapping(text: str, source: str, problems: Any) -> "Map":

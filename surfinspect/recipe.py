@@ -17,6 +17,7 @@ from typing import Any, Callable
 
 from . import _safe_yaml
 from ._safe_yaml import Map as _Map
+from ._safe_yaml import Problems as _Problems
 from ._safe_yaml import describe as _describe
 from .errors import InputError, RecipeError
 from .inputs import read_regular_file, text_problem
@@ -82,7 +83,6 @@ LIMITS = {
     "recipe_name_chars": 120,
     "region_name_chars": 80,
     "description_chars": 4000,
-    "problems_shown": 50,
 }
 
 #: Keys renamed since: old name -> new name. The old name still loads, with a one-line notice.
@@ -173,25 +173,6 @@ class Recipe:
 
 
 # ------------------------------------------------------------------ loading
-
-
-class _Problems:
-    def __init__(self, source: str):
-        self.source = source
-        self.items: list[tuple[int, str]] = []
-        self.notices: list[str] = []
-
-    def add(self, line: int, path: str, text: str) -> None:
-        self.items.append((line, f"{self.source}:{line}: {path}: {text}"))
-
-    def raise_if_any(self) -> None:
-        if not self.items:
-            return
-        lines = [text for _, text in sorted(self.items, key=lambda t: t[0])]
-        shown = LIMITS["problems_shown"]
-        if len(lines) > shown:
-            lines = lines[:shown] + [f"{self.source}: ... and {len(lines) - shown} more problems"]
-        raise RecipeError(lines[0] if len(lines) == 1 else f"{len(self.items)} problems in {self.source}", lines)
 
 
 def _is_number(v: Any) -> bool:
