@@ -16,20 +16,20 @@ import argparse
 import contextlib
 import shlex
 import signal
-import sqlite3
 import threading
 from pathlib import Path
 from typing import Iterator
 
 from .._lazy import module
+from ..errors import EXIT_INPUT_ERROR
 from ..fsutil import OutputFolder
-from ..results import EXIT_INPUT_ERROR
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
 from .console import Console
 
 archive = module("surfinspect.archive.store")
 backend = module("surfinspect.archive.backend")
+sqlite3 = module("sqlite3")
 batch = module("surfinspect.station.batch")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
