@@ -33,6 +33,7 @@ COMMANDS = (
     "check",
     "demo",
     "batch",
+    "watch",
     "keygen",
     "owner",
     "owner-certificate",

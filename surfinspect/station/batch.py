@@ -47,7 +47,7 @@ from concurrent.futures import TimeoutError as FutureTimeout  # builtin TimeoutE
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Sequence
+from typing import Callable, Iterable, Sequence
 
 import cv2
 
@@ -74,6 +74,9 @@ __all__ = [
     "TEST_HOLD_FROM_PART_ENV",
     "discover_images",
     "run_batch",
+    "open_batch",
+    "check_station_key",
+    "archive_inspected",
     "batch_exit_code",
     "regions_csv",
     "render_batch_report",
@@ -229,21 +232,10 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
-        if config.station_key is not None:  # refused before any work, not at the close
-            arc.register().require_signer(
-                config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
-            )
+        check_station_key(arc, config.station_key)
         # a refused entry is not read at all: it has no hash, and its record says why
         hashed = {f.key: (None, f.refusal) if f.refusal else _hash_file(f.path) for f in images}
-        plan = arc.start_batch(
-            config.batch_id,
-            recipe_name=recipe.name,
-            recipe_revision=recipe.revision,
-            recipe_path=recipe.path,
-            recipe_sha256=recipe.sha256,
-            parts=[(f.key, hashed[f.key][0]) for f in images],
-            operator=config.operator,
-        )
+        plan = open_batch(arc, config.batch_id, recipe, [(f.key, hashed[f.key][0]) for f in images], config.operator)
         paths = {f.key: f.path for f in images}
         recorder = _Recorder(arc, config.batch_id, paths, {k: h for k, (h, _) in hashed.items()}, plan, on_part)
         tasks = []
@@ -273,6 +265,69 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     )
 
 
+def check_station_key(arc: archive_mod.Archive, station_key: SigningKey | None) -> None:
+    """Refuse, before any work, a station key the archive's register does not let sign a batch close."""
+    if station_key is not None:
+        arc.register().require_signer(
+            station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
+        )
+
+
+def open_batch(
+    arc: archive_mod.Archive,
+    batch_id: str,
+    recipe: Recipe,
+    parts: Sequence[tuple[str, str | None]],
+    operator: str | None = None,
+) -> archive_mod.BatchPlan:
+    """Open the batch of ``parts`` (part key, image SHA-256 or None) judged with ``recipe``, or find it to resume."""
+    return arc.start_batch(
+        batch_id,
+        recipe_name=recipe.name,
+        recipe_revision=recipe.revision,
+        recipe_path=recipe.path,
+        recipe_sha256=recipe.sha256,
+        parts=parts,
+        operator=operator,
+    )
+
+
+def archive_inspected(
+    arc: archive_mod.Archive,
+    batch_id: str,
+    recipe: Recipe,
+    parts: Sequence[tuple[str, Path, str | None]],
+    outputs: Iterable[dict],
+    *,
+    operator: str | None = None,
+    station_key: SigningKey | None = None,
+) -> archive_mod.BatchRow:
+    """Record parts inspected elsewhere (by ``watch``) exactly as ``batch`` records its own, then close the batch.
+
+    ``parts``: (part key, image file, image SHA-256 or None) in batch order; ``outputs``: one output per
+    part as :func:`_inspect_one` returns it. Parts recorded by an interrupted close are skipped; the
+    report and CSV are written (the close signed with ``station_key``) as at the end of :func:`run_batch`.
+    """
+    plan = open_batch(arc, batch_id, recipe, [(key, sha) for key, _, sha in parts], operator)
+    recorder = _Recorder(arc, batch_id, {k: p for k, p, _ in parts}, {k: sha for k, _, sha in parts}, plan, None)
+    pending = set(plan.pending)
+    for out in outputs:
+        key = out["part_key"]
+        if key not in pending:
+            continue
+        if "error" in out:
+            recorder.error(key, out["error"])
+        else:
+            recorder.record_result(key, out["result_json"], out["overlay_png"])
+    batch = arc.batch(batch_id)
+    if batch.is_finished:
+        return batch
+    batch, interruption = _finish(arc, batch_id, station_key)
+    if interruption is not None:
+        raise InputError(f"batch {batch_id}: not closed: {interruption}")
+    return batch
+
+
 class _Recorder:
     """Records each part in the archive as its outcome arrives, and tells ``on_part``."""
 
@@ -299,6 +354,10 @@ class _Recorder:
         result_json = Path(out["result_json"]).read_bytes()
         overlay_png = Path(out["overlay_png"]).read_bytes()
         shutil.rmtree(Path(out["result_json"]).parent, ignore_errors=True)
+        self.record_result(key, result_json, overlay_png)
+
+    def record_result(self, key: str, result_json: bytes, overlay_png: bytes) -> None:
+        """Record a part's result and overlay (an error instead when its image changed since it was hashed)."""
         if json.loads(result_json)["image"]["sha256"] != self.hashes[key]:
             self.error(key, f"{self.paths[key]}: the file changed while the batch ran")
         else:

@@ -18,7 +18,7 @@ from ..errors import InputError
 from ..fsutil import write_text_atomic
 from ..inputs import escape_text
 from ..measure.engine import inspect_image
-from ..measure.imaging import IMAGE_SUFFIXES, read_image
+from ..measure.imaging import IMAGE_SUFFIXES, LoadedImage, read_image
 from ..recipe import Recipe
 from ..results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
 
@@ -35,6 +35,8 @@ __all__ = [
     "output_stems",
     "part_names",
     "inspect_path",
+    "judge_path",
+    "part_error_text",
     "find_images",
     "run_exit_code",
     "write_part_report",
@@ -64,6 +66,20 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
         seen[stem] = n + 1
         out.append(stem if n == 0 else f"{stem}-{n + 1}")
     return out
+
+
+def judge_path(
+    path: str | Path, recipe: Recipe, name: str, *, follow_symlinks: bool = True
+) -> tuple[LoadedImage, PartResult]:
+    """Read one image and inspect it (no file is written); raises InputError as :func:`read_image` and the engine."""
+    loaded = read_image(path, follow_symlinks=follow_symlinks)
+    return loaded, inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
+
+
+def part_error_text(exc: InputError, path: str | Path) -> str:
+    """The one-line reason a part was not inspected; a recipe problem found on an image (a region outside it) names it."""
+    text = str(exc)
+    return text if str(path) in text or escape_text(str(path)) in text else f"{escape_text(str(path))}: {text}"
 
 
 def part_names(paths: Sequence[str | Path]) -> list[str]:
@@ -110,19 +126,16 @@ def inspect_path(
                 f"{escape_text(str(path))}: the file name is too long for its outputs "
                 f"(got {size} bytes, allowed at most {MAX_NAME_BYTES}); rename the file"
             )
-        loaded = read_image(path, follow_symlinks=follow_symlinks)
-        result = inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
+        loaded, result = judge_path(path, recipe, name, follow_symlinks=follow_symlinks)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
     except (InputError, MemoryError) as exc:
-        text = str(exc) if isinstance(exc, InputError) else "not enough memory to inspect this image"
-        # a recipe problem found on this image (a region outside it) must say which image
-        if str(path) not in text and escape_text(str(path)) not in text:
-            text = f"{escape_text(str(path))}: {text}"
-        return PartOutcome(path=str(path), stem=stem, error=text, name=name), None
+        if isinstance(exc, MemoryError):
+            exc = InputError("not enough memory to inspect this image")
+        return PartOutcome(path=str(path), stem=stem, error=part_error_text(exc, path), name=name), None
     outcome = PartOutcome(
         path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name
     )
