@@ -15,9 +15,13 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Callable
 
-import yaml
-
-from .errors import RecipeError
+from . import _safe_yaml
+from ._recipe_reader import _is_number, _join, _not_a_number, _Reader
+from ._safe_yaml import Map as _Map
+from ._safe_yaml import Problems as _Problems
+from ._safe_yaml import describe as _describe
+from .errors import InputError, RecipeError
+from .inputs import read_regular_file
 
 __all__ = ["LayPattern", "Shape", "Region", "Recipe", "load_recipe", "parse_recipe"]
 
@@ -71,6 +75,20 @@ REGION_DEFAULTS: dict[str, Any] = {
 }
 
 SHAPE_KEYS = ("rect", "polygon", "circle", "annulus")
+
+#: Bounds on what a recipe may hold (see the README, "Limits"). Coordinates and sizes are in
+#: recipe units (pixels, or mm with pixel_size_mm); a 200-megapixel image is ~15000 px a side.
+LIMITS = {
+    "coordinate": 1_000_000.0,  # |x|, |y|, sizes and radii
+    "revision": 2**31 - 1,
+    "pixel_size_mm": (1e-6, 100.0),
+    "regions": 1000,
+    "excludes": 100,
+    "polygon_points": 10_000,
+    "recipe_name_chars": 120,
+    "region_name_chars": 80,
+    "description_chars": 4000,
+}
 
 #: Keys renamed since: old name -> new name. The old name still loads, with a one-line notice.
 RENAMED_KEYS = {"max_defect_fraction": "max_deviating_fraction"}
@@ -167,108 +185,6 @@ class Recipe:
 # ------------------------------------------------------------------ loading
 
 
-class _Problems:
-    def __init__(self, source: str):
-        self.source = source
-        self.items: list[tuple[int, str]] = []
-        self.notices: list[str] = []
-
-    def add(self, line: int, path: str, text: str) -> None:
-        self.items.append((line, f"{self.source}:{line}: {path}: {text}"))
-
-
-def _to_python(node: yaml.Node, problems: _Problems, path: str) -> Any:
-    """Convert a composed YAML node to Python values, keeping line numbers.
-
-    Mappings become :class:`_Map` (a dict that remembers each key's line).
-    """
-    if isinstance(node, yaml.MappingNode):
-        out = _Map(node.start_mark.line + 1)
-        for key_node, value_node in node.value:
-            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else str(key_node.value)
-            sub = f"{path}.{key}" if path else key
-            if key in out:
-                problems.add(key_node.start_mark.line + 1, sub, "key given twice")
-            out[key] = _to_python(value_node, problems, sub)
-            out.lines[key] = key_node.start_mark.line + 1
-        return out
-    if isinstance(node, yaml.SequenceNode):
-        seq = _Seq(_to_python(v, problems, f"{path}[{i}]") for i, v in enumerate(node.value))
-        seq.line = node.start_mark.line + 1
-        seq.lines = [v.start_mark.line + 1 for v in node.value]
-        return seq
-    return yaml.SafeLoader.construct_object(_constructor(), node)
-
-
-class _Map(dict):
-    def __init__(self, line: int):
-        super().__init__()
-        self.line = line
-        self.lines: dict[str, int] = {}
-
-    def line_of(self, key: str) -> int:
-        return self.lines.get(key, self.line)
-
-
-class _Seq(list):
-    line = 0
-    lines: list[int] = []
-
-
-def _constructor() -> yaml.SafeLoader:
-    return yaml.SafeLoader("")
-
-
-def _describe(value: Any) -> str:
-    text = repr(value) if isinstance(value, str) else str(value)
-    return text if len(text) <= 60 else text[:57] + "..."
-
-
-def _is_number(v: Any) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-
-
-class _Reader:
-    """Typed field access that records problems instead of raising."""
-
-    def __init__(self, problems: _Problems):
-        self.p = problems
-
-    def unknown(self, m: _Map, allowed: tuple[str, ...], path: str) -> None:
-        for key in m:
-            if key not in allowed:
-                self.p.add(m.line_of(key), _join(path, key), f"unknown key (allowed: {', '.join(allowed)})")
-
-    def number(self, m: _Map, key: str, path: str, *, lo=None, hi=None, lo_open=False, integer=False):
-        v = m[key]
-        where = _join(path, key)
-        if integer and not (isinstance(v, int) and not isinstance(v, bool)):
-            self.p.add(m.line_of(key), where, f"must be a whole number (got {_describe(v)})")
-            return None
-        if not _is_number(v):
-            self.p.add(m.line_of(key), where, f"must be a number (got {_describe(v)})")
-            return None
-        bad_lo = lo is not None and (v <= lo if lo_open else v < lo)
-        bad_hi = hi is not None and v > hi
-        if bad_lo or bad_hi:
-            lo_text = "" if lo is None else (f"> {lo}" if lo_open else f">= {lo}")
-            hi_text = "" if hi is None else f"<= {hi}"
-            allowed = " and ".join(t for t in (lo_text, hi_text) if t)
-            self.p.add(m.line_of(key), where, f"out of range (got {_describe(v)}, allowed {allowed})")
-            return None
-        return float(v) if not integer else int(v)
-
-    def numbers(self, value: Any, line: int, where: str, count: int | None, what: str):
-        if not isinstance(value, list) or (count is not None and len(value) != count):
-            n = f"{count} numbers" if count is not None else "a list of numbers"
-            self.p.add(line, where, f"must be {n} {what} (got {_describe(value)})")
-            return None
-        if not all(_is_number(v) for v in value):
-            self.p.add(line, where, f"must hold numbers only (got {_describe(value)})")
-            return None
-        return tuple(float(v) for v in value)
-
-
 def _rename_old_keys(r: _Reader, m: _Map, path: str) -> None:
     """Read keys under their old names (:data:`RENAMED_KEYS`) as the new ones, with a notice each."""
     for old, new in RENAMED_KEYS.items():
@@ -282,10 +198,6 @@ def _rename_old_keys(r: _Reader, m: _Map, path: str) -> None:
         m[new] = m.pop(old)
         m.lines[new] = line
         r.p.notices.append(f"{r.p.source}:{line}: {_join(path, old)}: old key name, read as {new} (rename it)")
-
-
-def _join(path: str, key: str) -> str:
-    return f"{path}.{key}" if path else key
 
 
 def _parse_shape(r: _Reader, m: _Map, path: str, *, allow_annulus: bool) -> Shape | None:
@@ -305,8 +217,10 @@ def _parse_shape(r: _Reader, m: _Map, path: str, *, allow_annulus: bool) -> Shap
             r.p.add(line, where, f"width and height must be > 0 (got {list(value)})")
             return None
     elif kind == "polygon":
-        if not isinstance(value, list) or len(value) < 3:
-            r.p.add(line, where, f"must be a list of at least 3 [x, y] points (got {_describe(value)})")
+        most = LIMITS["polygon_points"]
+        if not isinstance(value, list) or not 3 <= len(value) <= most:
+            got = f"{len(value)} points" if isinstance(value, list) else _describe(value)
+            r.p.add(line, where, f"must be a list of 3 to {most} [x, y] points (got {got})")
             return None
         pts = [r.numbers(pt, line, f"{where}[{i}]", 2, "[x, y]") for i, pt in enumerate(value)]
         if any(p is None for p in pts):
@@ -352,29 +266,18 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
 }
 
 
-def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, line: int) -> Region | None:
-    if not isinstance(m, _Map):
-        r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
-        return None
-    n_before = len(r.p.items)
-    name = m.get("name")
-    if not isinstance(name, str) or not name.strip():
-        r.p.add(m.line, _join(path, "name"), f"every region needs a name (got {_describe(name)})")
-        name = None
-    elif name in names:
-        r.p.add(m.line_of("name"), _join(path, "name"), f"region name {name!r} is used twice")
-    else:
-        names.add(name)
-    if name:
-        path = f"{path}({name})"
-    _rename_old_keys(r, m, path)
-    r.unknown(m, _REGION_KEYS, path)
-    shape = _parse_shape(r, m, path, allow_annulus=True)
+def _parse_excludes(r: _Reader, m: _Map, path: str) -> list[Shape]:
+    """A region's ``exclude`` shapes (problems recorded for bad ones)."""
     excludes: list[Shape] = []
     if "exclude" in m:
         ex = m["exclude"]
-        if not isinstance(ex, list):
-            r.p.add(m.line_of("exclude"), _join(path, "exclude"), f"must be a list of shapes (got {_describe(ex)})")
+        if not isinstance(ex, list) or len(ex) > LIMITS["excludes"]:
+            got = f"{len(ex)} shapes" if isinstance(ex, list) else _describe(ex)
+            r.p.add(
+                m.line_of("exclude"),
+                _join(path, "exclude"),
+                f"must be a list of at most {LIMITS['excludes']} shapes (got {got})",
+            )
         else:
             for i, item in enumerate(ex):
                 where = f"{_join(path, 'exclude')}[{i}]"
@@ -389,13 +292,11 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 s = _parse_shape(r, item, where, allow_annulus=False)
                 if s is not None:
                     excludes.append(s)
+    return excludes
 
-    params = dict(defaults)
-    for key, rule in _PARAM_RULES.items():
-        if key in m:
-            params[key] = rule(r, m, key, path)
 
-    # lay pattern and angles
+def _parse_lay(r: _Reader, m: _Map, path: str, params: dict) -> tuple[LayPattern, tuple[float, ...]] | None:
+    """The region's lay pattern and expected angles; None for an unknown ``lay`` spelling."""
     pattern, fixed = LayPattern.DIRECTIONAL, None
     if "lay" in m:
         spelled = m["lay"]
@@ -406,7 +307,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 _join(path, "lay"),
                 f"unknown lay pattern (got {_describe(spelled)}, allowed {allowed})",
             )
-            return None  # what lay_deg must be depends on the pattern: nothing more to check
+            return None
         pattern, fixed = LAY_SPELLINGS[spelled]
     lay_deg: tuple[float, ...] = ()
     where = _join(path, "lay_deg")
@@ -427,7 +328,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
                 "missing: a directional region needs lay_deg (allowed 0 <= lay_deg < 180), or give lay: multidirectional, circular, ...",
             )
         elif not _is_number(raw):
-            r.p.add(m.line_of("lay_deg"), where, f"must be a number (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
+            r.p.add(m.line_of("lay_deg"), where, f"{_not_a_number(raw)[:-1]}, allowed 0 <= lay_deg < 180)")
         elif not (0 <= raw < 180):
             r.p.add(m.line_of("lay_deg"), where, f"out of range (got {_describe(raw)}, allowed 0 <= lay_deg < 180)")
         else:
@@ -450,6 +351,39 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         r.p.add(
             m.line_of("lay_deg"), where, f"not used with lay {m['lay']!r} (got {_describe(raw)}, allowed: leave it out)"
         )
+    return pattern, lay_deg
+
+
+def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, line: int) -> Region | None:
+    if not isinstance(m, _Map):
+        r.p.add(line, path, f"must be a mapping of region keys such as name, rect, lay_deg (got {_describe(m)})")
+        return None
+    n_before = len(r.p.items)
+    if "name" not in m:
+        r.p.add(m.line, _join(path, "name"), "missing: every region needs a name")
+    name = r.text(m, "name", path, max_chars=LIMITS["region_name_chars"]) if "name" in m else None
+    if name is None:
+        pass
+    elif name in names:
+        r.p.add(m.line_of("name"), _join(path, "name"), f"region name {name!r} is used twice")
+    else:
+        names.add(name)
+    if name:
+        path = f"{path}({name})"
+    _rename_old_keys(r, m, path)
+    r.unknown(m, _REGION_KEYS, path)
+    shape = _parse_shape(r, m, path, allow_annulus=True)
+    excludes = _parse_excludes(r, m, path)
+
+    params = dict(defaults)
+    for key, rule in _PARAM_RULES.items():
+        if key in m:
+            params[key] = rule(r, m, key, path)
+
+    lay = _parse_lay(r, m, path, params)
+    if lay is None:
+        return None  # what lay_deg must be depends on the pattern: nothing more to check
+    pattern, lay_deg = lay
 
     centre = None
     if "centre" in m:
@@ -493,31 +427,25 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         Listing every problem found, each ``file:line: key: what is wrong``.
     """
     problems = _Problems(source)
-    try:
-        nodes = list(yaml.compose_all(text, Loader=yaml.SafeLoader))
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        line = mark.line + 1 if mark else 0
-        what = getattr(exc, "problem", None) or str(exc).splitlines()[0]
-        raise RecipeError(f"{source}:{line}: not valid YAML: {what}") from None
-    if len(nodes) != 1 or not isinstance(nodes[0], yaml.MappingNode):
-        raise RecipeError(f"{source}:1: recipe: the file must hold one mapping with keys recipe, revision, regions")
-    doc = _to_python(nodes[0], problems, "")
-    r = _Reader(problems)
+    doc = _safe_yaml.compose_mapping(text, source, problems)
+    r = _Reader(problems, coordinate_limit=LIMITS["coordinate"])
     r.unknown(doc, _TOP_KEYS, "")
 
-    name = doc.get("recipe")
-    if not isinstance(name, str) or not name.strip():
-        problems.add(doc.line_of("recipe"), "recipe", f"needs a name (got {_describe(name)})")
-    revision = r.number(doc, "revision", "", lo=0, integer=True) if "revision" in doc else None
-    if "revision" not in doc:
-        problems.add(doc.line, "revision", "missing (allowed a whole number >= 0)")
+    name = r.text(doc, "recipe", "", max_chars=LIMITS["recipe_name_chars"])
+    revision = None
+    if "revision" in doc:
+        revision = r.number(doc, "revision", "", lo=0, hi=LIMITS["revision"], integer=True)
+    else:
+        problems.add(doc.line, "revision", f"missing (allowed a whole number from 0 to {LIMITS['revision']})")
     datum = doc.get("datum", "image")
     if datum not in DATUMS:
         problems.add(
             doc.line_of("datum"), "datum", f"unknown datum (got {_describe(datum)}, allowed {', '.join(DATUMS)})"
         )
-    pixel_size = r.number(doc, "pixel_size_mm", "", lo=0, lo_open=True) if "pixel_size_mm" in doc else None
+    pixel_size = None
+    if "pixel_size_mm" in doc:
+        lo, hi = LIMITS["pixel_size_mm"]
+        pixel_size = r.number(doc, "pixel_size_mm", "", lo=lo, hi=hi)
     camera_rotation = 0.0
     if "camera_rotation_deg" in doc:
         if datum != "image":
@@ -528,9 +456,11 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
             )
         camera_rotation = r.number(doc, "camera_rotation_deg", "", lo=-45, hi=45) or 0.0
     saturation = r.number(doc, "saturation_level", "", lo=0, hi=1, lo_open=True) if "saturation_level" in doc else 1.0
-    description = doc.get("description", "")
-    if not isinstance(description, str):
-        problems.add(doc.line_of("description"), "description", f"must be text (got {_describe(description)})")
+    description = ""
+    if "description" in doc:
+        description = r.text(
+            doc, "description", "", max_chars=LIMITS["description_chars"], allow="\n\t", required=False
+        )
 
     defaults = dict(REGION_DEFAULTS)
     if "defaults" in doc:
@@ -548,10 +478,10 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
 
     regions: list[Region] = []
     raw_regions = doc.get("regions")
-    if not isinstance(raw_regions, list) or not raw_regions:
-        problems.add(
-            doc.line_of("regions"), "regions", f"needs a list of at least one region (got {_describe(raw_regions)})"
-        )
+    most = LIMITS["regions"]
+    if not isinstance(raw_regions, list) or not 1 <= len(raw_regions) <= most:
+        got = f"{len(raw_regions)} regions" if isinstance(raw_regions, list) else _describe(raw_regions)
+        problems.add(doc.line_of("regions"), "regions", f"needs a list of 1 to {most} regions (got {got})")
     else:
         names: set[str] = set()
         for i, item in enumerate(raw_regions):
@@ -559,9 +489,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
             if reg is not None:
                 regions.append(reg)
 
-    if problems.items:
-        lines = [text for _, text in sorted(problems.items, key=lambda t: t[0])]
-        raise RecipeError(lines[0] if len(lines) == 1 else f"{len(lines)} problems in {source}", lines)
+    problems.raise_if_any()
 
     return Recipe(
         name=name.strip(),
@@ -571,7 +499,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         pixel_size_mm=pixel_size,
         camera_rotation_deg=float(camera_rotation),
         saturation_level=1.0 if saturation is None else float(saturation),
-        description=description,
+        description=description or "",
         path=source,
         sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
         notices=tuple(problems.notices),
@@ -588,9 +516,11 @@ def load_recipe(path: str | Path) -> Recipe:
     """
     path = Path(path)
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        raise RecipeError(f"{path}: cannot read recipe ({exc.strerror or exc})") from None
+        data = read_regular_file(path, "recipe", max_bytes=_safe_yaml.MAX_RECIPE_BYTES)
+    except RecipeError:
+        raise
+    except InputError as exc:
+        raise RecipeError(str(exc)) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError:

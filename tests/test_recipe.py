@@ -91,13 +91,16 @@ regions:
     [
         (("lay_deg: 90", "lay_deg: ninety"), r"regions\[0\]\(face\)\.lay_deg: must be a number \(got 'ninety'"),
         (("rect: [10, 10, 100, 200]", "rect: [10, 10]"), r"rect: must be 4 numbers \[x, y, w, h\]"),
-        (("revision: 3", "revision: -1"), r"revision: out of range \(got -1, allowed >= 0\)"),
+        (("revision: 3", "revision: -1"), r"revision: out of range \(got -1, allowed >= 0 and <= 2147483647\)"),
         (
             ("  tolerance_deg: 2.5", "  tolerance_deg: 0"),
             r"defaults\.tolerance_deg: out of range \(got 0, allowed > 0 and <= 45\)",
         ),
         (("lay: C", "lay: C\n    lay_deg: 10"), r"regions\[1\]\(pad\)\.lay_deg: not used with lay 'C'"),
-        (("datum: image", "datum: image\npixel_size_mm: 0"), r"pixel_size_mm: out of range \(got 0, allowed > 0\)"),
+        (
+            ("datum: image", "datum: image\npixel_size_mm: 0"),
+            r"pixel_size_mm: out of range \(got 0, allowed >= 1e-06 and <= 100\)",
+        ),
     ],
 )
 def test_field_errors_name_the_field_and_allowed_values(change, message):
@@ -118,7 +121,7 @@ def test_not_yaml_and_not_a_mapping():
 
 
 def test_missing_file_is_an_input_error(tmp_path: Path):
-    with pytest.raises(RecipeError, match=r"nope.yaml: cannot read recipe"):
+    with pytest.raises(RecipeError, match=r"nope.yaml: recipe not found"):
         load_recipe(tmp_path / "nope.yaml")
 
 
@@ -158,6 +161,117 @@ def test_crossed_directions_must_be_told_apart_by_the_tolerance():
     with pytest.raises(RecipeError, match="differ by more than twice"):
         parse_recipe(text.replace("[10, 14]", "[178, 2]"), "x.yaml")
     assert parse_recipe(text.replace("[10, 14]", "[10, 100]")).regions[0].lay_deg == (10.0, 100.0)
+
+
+# ------------------------------------------------------------------ hostile recipes
+
+BILLION_LAUGHS = "\n".join(
+    [
+        'a: &a ["lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol"]',
+        *(f"{c}: &{c} [{', '.join([f'*{p}'] * 9)}]" for p, c in zip("abcdefgh", "bcdefghi")),
+    ]
+)
+
+
+def test_billion_laughs_is_refused_fast(tmp_path: Path):
+    import time
+
+    assert 300 < len(BILLION_LAUGHS.encode()) < 600  # 9**9 "lol"s if expanded
+    start = time.perf_counter()
+    with pytest.raises(RecipeError, match=r"17 problems in laughs.yaml") as info:
+        parse_recipe(BILLION_LAUGHS, "laughs.yaml")
+    assert info.value.problems[0] == "laughs.yaml:1: recipe: anchors are not allowed (got &a; write the value out)"
+    assert time.perf_counter() - start < 1.0
+    assert any("aliases are not allowed (got *a" in p for p in info.value.problems)
+    assert len(info.value.problems) <= 51  # at most 50 shown, and a count of the rest
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ("recipe: !foo x\n", r"1: recipe: YAML tags are not allowed \(got !foo"),
+        ("recipe: !!python/name:os.system x\n", r"1: recipe: YAML tags are not allowed \(got tag:yaml.org,2002:python"),
+        ("recipe: x\nrevision: &r 1\n", r"2: recipe: anchors are not allowed"),
+        (
+            "a: " + "[" * 50 + "]" * 50 + "\n",
+            r"1: recipe: nested too deep \(got more than 10 levels, allowed at most 10\)",
+        ),
+    ],
+)
+def test_tags_anchors_and_deep_nesting_are_refused(text, message):
+    with pytest.raises(RecipeError, match=message):
+        parse_recipe(text, "bad.yaml")
+
+
+def test_a_recipe_over_1_mb_is_refused_before_parsing(tmp_path: Path):
+    big = tmp_path / "big.yaml"
+    big.write_text(GOOD + "#" * 1_000_001)
+    with pytest.raises(RecipeError, match=r"big.yaml: recipe is too large \(got \d+ bytes, allowed at most 1000000\)"):
+        load_recipe(big)
+    with pytest.raises(RecipeError, match=r"mem.yaml:1: recipe: file too large \(got \d+ bytes, allowed at most"):
+        parse_recipe(GOOD + "#" * 1_000_001, "mem.yaml")
+
+
+def test_a_fifo_is_refused_without_hanging(tmp_path: Path):
+    import os
+
+    fifo = tmp_path / "r.yaml"
+    os.mkfifo(fifo)
+    with pytest.raises(RecipeError, match=r"r.yaml: recipe is a FIFO \(named pipe\); refused"):
+        load_recipe(fifo)
+
+
+@pytest.mark.parametrize(
+    "change, message",
+    [
+        # YAML 1.1 reads 1:30 as 1*60 + 30 = 90 (YAML 1.1 int and float types, "sexagesimal")
+        (("lay_deg: 90", "lay_deg: 1:30"), r"lay_deg: '1:30' is read by YAML 1.1 as a base-60 number"),
+        (("tolerance_deg: 1", "tolerance_deg: on"), r"tolerance_deg: 'on' is read by YAML 1.1 as true/false"),
+        (("name: pad", "name: no"), r"name: 'no' is read by YAML 1.1 as true/false"),
+        (("revision: 3", "revision: 017"), r"revision: '017' is read by YAML 1.1 as an octal number"),
+        (("revision: 3", "revision: 0o17"), r"revision: '0o17' is an octal number in YAML 1.2 but text in YAML 1.1"),
+        (("revision: 3", "revision: 0x1F"), r"revision: '0x1F' is a hexadecimal or binary number"),
+        (("revision: 3", "revision: 1_000"), r"revision: '1_000' is read by YAML 1.1 as a number with its '_' dropped"),
+        (
+            ("lay_deg: 90", "lay_deg: 9e1"),
+            r"lay_deg: must be a number \(got '9e1'; YAML 1.1 reads '9e1' as text: write 90.0",
+        ),
+        (("lay_deg: 90", "lay_deg: .nan"), r"lay_deg: must be a finite number \(got nan"),
+        (
+            ("revision: 3", "revision: 99999999999999999999999"),
+            r"revision: out of range \(got 99999999999999999999999, allowed >= 0 and <= 2147483647\)",
+        ),
+        (
+            ("datum: image", "datum: image\npixel_size_mm: 1.0e+308"),
+            r"pixel_size_mm: out of range \(got 1e\+308, allowed >= 1e-06 and <= 100\)",
+        ),
+        (
+            ("[10, 10, 100, 200]", "[10, 10, 1.0e+300, 200]"),
+            r"rect: out of range \(got \[10, 10, 1e\+300, 200\], allowed -1e\+06 to 1e\+06\)",
+        ),
+        (
+            ("[10, 10, 100, 200]", "[10, 10, 10000000000000000000000, 200]"),
+            r"rect: out of range \(got \[10, 10, 10000000000000000000000, 200\], allowed -1e\+06 to 1e\+06\)",
+        ),
+        (("name: pad", 'name: "pad\\u202e"'), r"name: holds a bidirectional-override character U\+202E at position 4"),
+        (("name: pad", 'name: "pa\\x00d"'), r"name: holds a control or unassigned character U\+0000 at position 3"),
+        (("name: pad", "name: " + "p" * 81), r"name: too long \(got 81 characters, allowed at most 80\)"),
+        (("recipe: lw-220-wall-panel", 'recipe: "lw\\a"'), r"recipe: holds a control or unassigned character U\+0007"),
+        (("datum: image", "datum: image\ndescription: 2001-13-45"), r"description: cannot read the value '2001-13-45'"),
+    ],
+)
+def test_yaml_surprises_and_absurd_values_are_named_with_the_allowed_range(change, message):
+    problems = _problems(GOOD.replace(*change, 1))
+    assert any(__import__("re").search(message, p) for p in problems), problems
+    assert all(p.startswith("bad.yaml:") for p in problems)
+
+
+def test_quoted_words_and_multiline_descriptions_are_fine():
+    text = GOOD.replace("name: pad", "name: 'no'").replace(
+        "datum: image", "datum: image\ndescription: |\n  two lines\n  of text\n"
+    )
+    r = parse_recipe(text, "ok.yaml")
+    assert r.regions[1].name == "no" and r.description == "two lines\nof text\n"
 
 
 # ---------------------------------------------------------------- renamed keys

@@ -19,7 +19,7 @@ from ..fsutil import atomic_path, sha256_bytes, sha256_file
 __all__ = ["ObjectStore", "OBJECTS_DIR", "OBJECT_MODE"]
 
 OBJECTS_DIR = "objects"
-OBJECT_MODE = 0o444
+OBJECT_MODE = 0o440  # read-only, and not readable by other users: images are customer data
 
 
 class ObjectStore:

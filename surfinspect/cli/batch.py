@@ -1,8 +1,10 @@
 """``surfinspect batch``: inspect a folder of images in parallel into the archive.
 
-Exit code: 1 when any part is rejected, else 3 when any part needs review, has
-an unreadable image or was not recorded (the batch stopped), else 0; 2 for an
-input error that stops the whole batch (see :mod:`surfinspect.station.batch`).
+Exit code: 1 when any part is rejected, else 3 when any part needs review or
+was not inspected (an unreadable, refused or damaged file), else 0; 2 for an
+input error that stops the whole batch and for a batch that stopped before
+every part was recorded (a worker that ended, a full disk: the reason is
+printed; run again to finish). See :mod:`surfinspect.station.batch`.
 Stopped by a signal (Ctrl-C, SIGTERM, SIGHUP), the batch ends its worker
 processes and exits with 128 + the signal number, as a shell reports a
 process killed by that signal: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP.
@@ -19,12 +21,15 @@ from pathlib import Path
 from typing import Callable, Iterator
 
 from .._lazy import module
+from ..errors import EXIT_INPUT_ERROR
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
 from .console import Console
 
 archive = module("surfinspect.archive.store")
+backend = module("surfinspect.archive.backend")
+sqlite3 = module("sqlite3")
 batch = module("surfinspect.station.batch")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
@@ -83,7 +88,7 @@ class _Progress:
             self.bar.n = done.done
             self.bar.set_postfix_str(f"{done.part_key}: {done.verdict}", refresh=True)
         else:
-            note = f" ({done.error})" if done.error else ""
+            note = f" ({_reason(done.part_key, done.error)})" if done.error else ""
             self.console.info(f"[{done.done}/{done.total}] {done.part_key}: {done.verdict}{note}")
 
     def close(self) -> None:
@@ -157,13 +162,23 @@ def run(args: argparse.Namespace, console: Console) -> int:
             outcome = batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
         progress.close()  # the bar's last line first, then the message
-        done = progress.last
-        recorded = f"{done.done} of {done.total} part(s) recorded" if done else "no part recorded in this run"
         console.error(
-            f"batch {args.batch_id}: interrupted ({signal.Signals(stop.signum).name}); {recorded}; "
+            f"batch {args.batch_id}: interrupted ({signal.Signals(stop.signum).name}); {_recorded(progress)}; "
             "run again with the same --batch-id to finish"
         )
         return 128 + stop.signum
+    except (
+        OSError,
+        sqlite3.Error,
+        backend.IndexDamaged,
+        backend.IndexBusy,
+    ) as exc:  # the archive cannot be written: a full disk
+        progress.close()
+        console.error(
+            f"batch {args.batch_id}: stopped: {_write_failure(exc)}; {_recorded(progress)}; "
+            "free the space and run again with the same --batch-id to finish"
+        )
+        return EXIT_INPUT_ERROR
     finally:
         progress.close()
         written = folder.finish() if folder is not None else []
@@ -179,7 +194,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if not args.recursive:
         _say_what_sub_folders_hold(args, console)
     for key, message in outcome.errors:
-        console.warn(f"{key}: {archive.ERROR_VERDICT}: {message}")
+        console.warn(f"{key}: {archive.ERROR_VERDICT}: {_reason(key, message)}")
     if outcome.interruption:
         console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
     elif written:
@@ -187,6 +202,22 @@ def run(args: argparse.Namespace, console: Console) -> int:
     else:
         _say_where_the_report_is(args, console)
     return outcome.exit_code
+
+
+def _reason(key: str, message: str) -> str:
+    """An error record's message without the part key it starts with (the line names the part already)."""
+    return message[len(key) + 2 :] if message.startswith(f"{key}: ") else message
+
+
+def _recorded(progress: _Progress) -> str:
+    done = progress.last
+    return f"{done.done} of {done.total} part(s) recorded" if done else "no part recorded in this run"
+
+
+def _write_failure(exc: BaseException) -> str:
+    if isinstance(exc, OSError):
+        return f"cannot write {exc.filename or 'the archive'} ({exc.strerror or exc})"
+    return f"cannot write the archive index ({exc})"
 
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
@@ -208,7 +239,8 @@ def _say_what_sub_folders_hold(args: argparse.Namespace, console: Console) -> No
 
     own = [Path(args.archive)] + ([Path(args.out)] if args.out else [])
     try:
-        below = [key for key, _ in batch.discover_images(Path(args.folder), recursive=True, exclude=own) if "/" in key]
+        found = batch.discover_images(Path(args.folder), recursive=True, exclude=own)
+        below = [f.key for f in found if "/" in f.key]
     except InputError:
         return
     if below:

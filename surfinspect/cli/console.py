@@ -1,9 +1,17 @@
-"""All terminal output of the command line goes through here."""
+"""All terminal output of the command line goes through here.
+
+Every line is printed with its control and bidirectional-override characters
+escaped (:func:`surfinspect.inputs.escape_text`): a file name holding a newline
+or an escape sequence cannot add lines or rewrite the terminal. A message is
+one line; print several lines with several calls.
+"""
 
 from __future__ import annotations
 
 import sys
 from typing import Sequence, TextIO
+
+from ..inputs import escape_text
 
 
 class Console:
@@ -21,21 +29,21 @@ class Console:
 
     def info(self, text: str) -> None:
         if not self.quiet:
-            print(text, file=self.out, flush=True)
+            print(escape_text(text), file=self.out, flush=True)
 
     def error(self, text: str) -> None:
         self._end_status()
-        print(f"surfinspect: error: {text}", file=self.err, flush=True)
+        print(f"surfinspect: error: {escape_text(text)}", file=self.err, flush=True)
 
     def warn(self, text: str) -> None:
         self._end_status()
-        print(f"surfinspect: warning: {text}", file=self.err, flush=True)
+        print(f"surfinspect: warning: {escape_text(text)}", file=self.err, flush=True)
 
     def note(self, text: str) -> None:
         """A message for the person at the terminal, on stderr (where stdout carries records)."""
         if not self.quiet:
             self._end_status()
-            print(text, file=self.err, flush=True)
+            print(escape_text(text), file=self.err, flush=True)
 
     def record(self, line: str) -> None:
         """One machine-readable line on stdout, flushed at once (JSON lines for scripts)."""
@@ -45,7 +53,7 @@ class Console:
         """A live status line on stderr, rewritten in place; only on a terminal."""
         if self.quiet or not self.is_terminal:
             return
-        self.err.write("\r" + text + "\x1b[K")
+        self.err.write("\r" + escape_text(text) + "\x1b[K")
         self.err.flush()
         self._status_shown = bool(text)
 
@@ -58,13 +66,13 @@ class Console:
         """Something to act on later that does not stop the run (an old recipe key name, ...)."""
         if not self.quiet:
             self._end_status()
-            print(f"surfinspect: notice: {text}", file=self.err, flush=True)
+            print(f"surfinspect: notice: {escape_text(text)}", file=self.err, flush=True)
 
     def table(self, header: Sequence[str], rows: Sequence[Sequence[object]]) -> None:
         """Print a left-aligned text table; numbers right-aligned."""
         if self.quiet:
             return
-        cells = [[str(h) for h in header]] + [["" if c is None else str(c) for c in r] for r in rows]
+        cells = [[str(h) for h in header]] + [["" if c is None else escape_text(str(c)) for c in r] for r in rows]
         widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
         numeric = [
             all(_looks_numeric(r[i]) for r in cells[1:] if r[i]) and any(r[i] for r in cells[1:])

@@ -79,7 +79,8 @@ def _run_scenario(project: Path, parts_dir: Path, out: Path, console: Console) -
                 console.error(o.error)
             outcomes.append(o)
             pixels.append(px)
-        console.info(f"\n{recipe.name} (revision {recipe.revision}):")
+        console.info("")
+        console.info(f"{recipe.name} (revision {recipe.revision}):")
         print_results(console, outcomes)
         done = [(o.result, px) for o, px in zip(outcomes, pixels) if o.result is not None]
         if done:

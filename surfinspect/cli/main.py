@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from typing import Sequence
 
@@ -22,6 +23,9 @@ from .._version import __version__
 from ..archive.backend import IndexBusy, IndexDamaged
 from ..errors import EXIT_INPUT_ERROR, InputError
 from .console import Console
+
+#: Environment variable: when set, an internal error shows its traceback instead of one line.
+DEBUG_ENV = "SURFINSPECT_DEBUG"
 
 #: Sub-commands in the order ``--help`` lists them.
 COMMANDS = (
@@ -106,6 +110,14 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         console.error("interrupted")
         return 130
+    except Exception as exc:  # a bug: never a traceback that exits 1, which would read as "rejected"
+        if os.environ.get(DEBUG_ENV):
+            raise
+        console.error(
+            f"internal error, not a verdict ({type(exc).__name__}: {exc}); "
+            f"please report it with the command that was run (set {DEBUG_ENV}=1 for the traceback)"
+        )
+        return EXIT_INPUT_ERROR
 
 
 if __name__ == "__main__":  # pragma: no cover

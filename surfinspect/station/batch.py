@@ -10,48 +10,66 @@ to the images it was started with.
 
 Outcome per part: accept, reject or review as the engine decides, or
 ``error`` when the image cannot be read (reported with the reason, counted,
-listed, never dropped). The exit code is that of ``inspect`` over the parts,
-with an error or a part not yet inspected counting as "needs review": 1 when
-any part is rejected, else 3 when any part needs review, has an error or is
-still missing, else 0. (2, an input error, is kept for problems that stop the
-whole batch: a bad recipe, a missing folder, a batch id bound to other images.)
+listed, never dropped). A folder entry is refused without being read, and
+recorded as not inspected with the reason, when its name is not valid UTF-8,
+holds a control character or is longer than :data:`MAX_NAME_BYTES`, when it
+is a symbolic link leading out of the batch folder, a FIFO, a device or a
+socket, or when it is larger than the image size limit (see
+:mod:`surfinspect.measure.imaging`). Such parts never stop the batch: it is
+finished with the parts that could be judged.
+
+The exit code is that of ``inspect`` over the parts, with an error counting as
+"needs review": 1 when any part is rejected, else 3 when any part needs review
+or has an error, else 0. 2 is kept for problems that stop the whole batch: a
+bad recipe, a missing folder, a batch id bound to other images, and a batch
+that stopped before every part was recorded (a worker that ended abruptly or
+made no progress for :data:`PART_TIMEOUT_ENV` seconds, a full disk): run the
+same command again to finish it.
+
+Worker processes send the parent only a few hundred bytes per part (where
+their outputs are, or the error), well under the size a pipe writes at once,
+so a worker that dies cannot leave the parent waiting for the rest of a
+message; the outputs travel through files in a scratch folder the parent owns.
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 import multiprocessing
 import os
+import shutil
 import signal
 import tempfile
 import threading
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures import TimeoutError as FutureTimeout  # builtin TimeoutError from 3.11 on, not on 3.10
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
-from datetime import datetime
-from pathlib import Path, PurePosixPath
+from pathlib import Path
 from typing import Callable, Iterable, Sequence
 
 import cv2
-import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
 from ..archive.signing import SigningKey
 from ..errors import InputError
-from ..fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
-from ..measure.imaging import read_image
+from ..fsutil import ensure_output_dir, write_bytes_atomic
+from ..inputs import env_limit, escape_text
 from ..recipe import Recipe, load_recipe
-from ..results import PartVerdict, SignOff
-from .runner import find_images, inspect_path, output_stems
+from ..results import EXIT_INPUT_ERROR, PartVerdict
+from .batch_outputs import CSV_COLUMNS, export_batch, regions_csv, render_batch_report
+from .intake import MAX_NAME_BYTES, FoundPart, _hash_file, discover_images
+from .runner import inspect_path, output_stems
 
 __all__ = [
     "BatchConfig",
     "BatchOutcome",
     "PartDone",
+    "FoundPart",
+    "MAX_NAME_BYTES",
+    "PART_TIMEOUT_ENV",
     "TEST_EXIT_AT_PART_ENV",
     "TEST_HOLD_FROM_PART_ENV",
     "discover_images",
@@ -63,6 +81,7 @@ __all__ = [
     "regions_csv",
     "render_batch_report",
     "export_batch",
+    "CSV_COLUMNS",
 ]
 
 #: Test hook: when set to N, the worker that takes the batch's N-th part (1-based) ends abruptly.
@@ -72,25 +91,10 @@ TEST_HOLD_FROM_PART_ENV = "SURFINSPECT_TEST_HOLD_FROM_PART"
 _TEST_HOLD_S = 60.0
 #: Exit status of a worker that ends because the batch process is gone.
 _EXIT_PARENT_GONE = 75
-
-CSV_COLUMNS = (
-    "batch_id",
-    "part",
-    "image_sha256",
-    "part_verdict",
-    "region",
-    "lay_pattern",
-    "expected_lay_deg",
-    "tolerance_deg",
-    "lay_deg",
-    "deviation_deg",
-    "uncertainty_deg",
-    "coherence",
-    "deviating_area_fraction",
-    "patches",
-    "region_verdict",
-    "reasons",
-)
+#: Environment variable: seconds the batch waits for the next part from its workers (default 600)
+#: before it stops, ends them and exits 2.
+PART_TIMEOUT_ENV = "SURFINSPECT_PART_TIMEOUT_S"
+_ERROR_BYTES = 2000  # an error sent back by a worker stays a short message
 
 
 @dataclass(frozen=True)
@@ -137,43 +141,6 @@ class BatchOutcome:
         return [(p.part_key, p.error or "") for p in self.parts if p.verdict == archive_mod.ERROR_VERDICT]
 
 
-# ------------------------------------------------------------------ planning
-
-
-def discover_images(
-    folder: str | os.PathLike, *, recursive: bool = False, exclude: Sequence[str | os.PathLike] = ()
-) -> list[tuple[str, Path]]:
-    """Image files in ``folder`` as (part key, path), sorted; the key is the path below ``folder``, '/'-separated.
-
-    Overlays this tool wrote (``*.overlay.png``) are never parts, nor is
-    anything under an ``exclude`` folder that lies inside ``folder`` (the
-    batch's own ``--out`` and ``--archive``); an ``exclude`` folder that is
-    ``folder`` itself or lies outside it is ignored.
-
-    Raises
-    ------
-    InputError
-        When the folder is missing or holds no image.
-    """
-    folder = Path(folder)
-    inside = [e for e in exclude if _strictly_inside(Path(e), folder)]
-    found = find_images(folder, recursive=recursive, exclude=inside)
-    return [(PurePosixPath(*p.relative_to(folder).parts).as_posix(), p) for p in found]
-
-
-def _strictly_inside(path: Path, folder: Path) -> bool:
-    path, folder = path.resolve(), folder.resolve()
-    return path != folder and path.is_relative_to(folder)
-
-
-def _hash_file(path: Path) -> tuple[str | None, str | None]:
-    """(SHA-256, None), or (None, why) for a file whose bytes cannot be read."""
-    try:
-        return sha256_file(path), None
-    except OSError as exc:
-        return None, f"{path}: cannot read the file ({exc.strerror or exc})"
-
-
 # ------------------------------------------------------------------- workers
 
 _worker_recipe: Recipe | None = None
@@ -205,22 +172,22 @@ def _exit_with_batch(batch_alive) -> None:
 
 
 def _inspect_one(
-    position: int, part_key: str, path: str, name: str, exit_at: str | None, hold_from: str | None
+    position: int, part_key: str, path: str, name: str, scratch: str, exit_at: str | None, hold_from: str | None
 ) -> dict:
+    """Inspect one part into ``scratch``; returns a short message: the outputs' file names, or the error."""
     if exit_at == str(position + 1):
         os._exit(70)
     if hold_from is not None and position + 1 >= int(hold_from):
         time.sleep(_TEST_HOLD_S)
-    # the same read-inspect-write as ``inspect``, into a scratch folder whose files go back to the parent
-    with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
-        outcome, _ = inspect_path(path, _worker_recipe, tmp, name, name=part_key)
-        if outcome.error is not None:
-            return {"part_key": part_key, "error": outcome.error}
-        return {
-            "part_key": part_key,
-            "result_json": Path(outcome.json_path).read_bytes(),
-            "overlay_png": Path(outcome.overlay_path).read_bytes(),
-        }
+    # the same read-inspect-write as ``inspect``, into the parent's scratch folder (one sub-folder per part)
+    out = Path(scratch) / str(position)
+    out.mkdir()
+    outcome, _ = inspect_path(path, _worker_recipe, out, name, follow_symlinks=False, name=part_key)
+    if outcome.error is not None:
+        # in bytes, so that the whole message stays one atomic pipe write (PIPE_BUF is 4096 on Linux)
+        error = outcome.error.encode("utf-8")[:_ERROR_BYTES].decode("utf-8", "ignore")
+        return {"position": position, "error": error}
+    return {"position": position, "result_json": outcome.json_path, "overlay_png": outcome.overlay_path}
 
 
 def _pool_context() -> multiprocessing.context.BaseContext:
@@ -252,6 +219,8 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     InputError
         For a bad recipe, a missing or empty folder, an invalid batch id, a
         batch id bound to other images or recipe, or ``jobs`` < 1.
+    OSError, sqlite3.Error
+        When the archive cannot be written (a full disk); what was recorded stays, the rest is pending.
     """
     if config.jobs is not None and config.jobs < 1:
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
@@ -264,21 +233,23 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         ensure_output_dir(config.out_dir, "--out")
     with archive_mod.Archive(config.archive_dir, create=True) as arc:
         check_station_key(arc, config.station_key)
-        hashed = {key: _hash_file(path) for key, path in images}
-        plan = open_batch(arc, config.batch_id, recipe, [(key, hashed[key][0]) for key, _ in images], config.operator)
-        recorder = _Recorder(arc, config.batch_id, dict(images), {k: h for k, (h, _) in hashed.items()}, plan, on_part)
+        # a refused entry is not read at all: it has no hash, and its record says why
+        hashed = {f.key: (None, f.refusal) if f.refusal else _hash_file(f.path) for f in images}
+        plan = open_batch(arc, config.batch_id, recipe, [(f.key, hashed[f.key][0]) for f in images], config.operator)
+        paths = {f.key: f.path for f in images}
+        recorder = _Recorder(arc, config.batch_id, paths, {k: h for k, (h, _) in hashed.items()}, plan, on_part)
         tasks = []
-        for position, (key, _) in enumerate(images):
-            if key not in plan.pending:
+        for position, found in enumerate(images):
+            if found.key not in plan.pending:
                 continue
-            if hashed[key][0] is None:
-                recorder.error(key, hashed[key][1])
+            if hashed[found.key][0] is None:
+                recorder.error(found.key, hashed[found.key][1])
             else:
-                tasks.append((position, key))
+                tasks.append((position, found.key))
         interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
-            batch = _finish(arc, config.batch_id, config.station_key)
+            batch, interruption = _finish(arc, config.batch_id, config.station_key)
         if config.out_dir is not None:
             export_batch(arc, config.batch_id, config.out_dir)
         parts = tuple(arc.parts(config.batch_id))
@@ -290,7 +261,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         inspected_now=recorder.recorded,
         finished=batch.is_finished,
         interruption=interruption,
-        exit_code=batch_exit_code(parts),
+        exit_code=EXIT_INPUT_ERROR if interruption else batch_exit_code(parts),
     )
 
 
@@ -341,10 +312,20 @@ def archive_inspected(
     recorder = _Recorder(arc, batch_id, {k: p for k, p, _ in parts}, {k: sha for k, _, sha in parts}, plan, None)
     pending = set(plan.pending)
     for out in outputs:
-        if out["part_key"] in pending:
-            recorder.worker_output(out)
+        key = out["part_key"]
+        if key not in pending:
+            continue
+        if "error" in out:
+            recorder.error(key, out["error"])
+        else:
+            recorder.record_result(key, out["result_json"], out["overlay_png"])
     batch = arc.batch(batch_id)
-    return batch if batch.is_finished else _finish(arc, batch_id, station_key)
+    if batch.is_finished:
+        return batch
+    batch, interruption = _finish(arc, batch_id, station_key)
+    if interruption is not None:
+        raise InputError(f"batch {batch_id}: not closed: {interruption}")
+    return batch
 
 
 class _Recorder:
@@ -357,18 +338,30 @@ class _Recorder:
         self.recorded = 0
 
     def error(self, key: str, message: str) -> None:
+        """Record a part as not inspected, with the reason (prefixed by its key when the text does not name it)."""
         # the part's name within the batch folder, not this station's full path, goes into the record
-        message = message.replace(str(self.paths[key]), key)
+        where = str(self.paths[key])
+        message = message.replace(where, key).replace(escape_text(where), key)
+        if not message.startswith(key):
+            message = f"{key}: {message}"
         self._record(key, archive_mod.error_record_json(key, self.hashes[key], message), None)
 
-    def worker_output(self, out: dict) -> None:
-        key = out["part_key"]
+    def worker_output(self, key: str, out: dict) -> None:
+        """Record what a worker sent for part ``key``: an error, or the result and overlay files it wrote."""
         if "error" in out:
             self.error(key, out["error"])
-        elif json.loads(out["result_json"])["image"]["sha256"] != self.hashes[key]:
+            return
+        result_json = Path(out["result_json"]).read_bytes()
+        overlay_png = Path(out["overlay_png"]).read_bytes()
+        shutil.rmtree(Path(out["result_json"]).parent, ignore_errors=True)
+        self.record_result(key, result_json, overlay_png)
+
+    def record_result(self, key: str, result_json: bytes, overlay_png: bytes) -> None:
+        """Record a part's result and overlay (an error instead when its image changed since it was hashed)."""
+        if json.loads(result_json)["image"]["sha256"] != self.hashes[key]:
             self.error(key, f"{self.paths[key]}: the file changed while the batch ran")
         else:
-            self._record(key, out["result_json"], out["overlay_png"])
+            self._record(key, result_json, overlay_png)
 
     def _record(self, key: str, result_json: bytes, overlay_png: bytes | None) -> None:
         image_path = self.paths[key] if self.hashes[key] else None
@@ -395,11 +388,14 @@ def _inspect_pending(
     cores = os.cpu_count() or 1
     jobs = min(jobs or cores, len(tasks))
     names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
+    keys = dict(tasks)
     # the hooks are read here: forkserver workers do not see the environment of later runs
     exit_at = os.environ.get(TEST_EXIT_AT_PART_ENV)
     hold_from = os.environ.get(TEST_HOLD_FROM_PART_ENV)
+    timeout_s = env_limit(PART_TIMEOUT_ENV, 600.0, lo=1.0, hi=1e6)
     context = _pool_context()
     batch_alive, batch_alive_writer = context.Pipe(duplex=False)
+    scratch = tempfile.mkdtemp(prefix="surfinspect-batch-")
     lost = 0
     try:
         with ProcessPoolExecutor(
@@ -409,21 +405,35 @@ def _inspect_pending(
             initargs=(recipe, max(1, cores // jobs), batch_alive),
         ) as pool:
             try:
-                futures = [
-                    pool.submit(_inspect_one, position, key, str(recorder.paths[key]), names[key], exit_at, hold_from)
+                waiting = {
+                    pool.submit(
+                        _inspect_one, position, key, str(recorder.paths[key]), names[key], scratch, exit_at, hold_from
+                    ): position
                     for position, key in tasks
-                ]
-                for future in as_completed(futures):
-                    try:
-                        recorder.worker_output(future.result())
-                    except BrokenProcessPool:
-                        lost += 1
+                }
+                while waiting:
+                    done, _ = wait(waiting, timeout=timeout_s, return_when=FIRST_COMPLETED)
+                    if not done:
+                        _terminate_workers(pool)
+                        return (
+                            f"no part finished within {timeout_s:g} s ({PART_TIMEOUT_ENV}); the workers were "
+                            f"stopped and {len(waiting)} part(s) were not recorded (run the same command again)"
+                        )
+                    for future in done:
+                        position = waiting.pop(future)
+                        try:
+                            out = future.result()
+                        except BrokenProcessPool:
+                            lost += 1
+                            continue
+                        recorder.worker_output(keys[position], out)
             except BaseException:
                 _terminate_workers(pool)
                 raise
     finally:
         batch_alive.close()
         batch_alive_writer.close()
+        shutil.rmtree(scratch, ignore_errors=True)
     if lost:
         return (
             f"a worker process ended abruptly; {lost} part(s) were not recorded "
@@ -461,139 +471,49 @@ def batch_exit_code(parts: Sequence[archive_mod.PartRow]) -> int:
     return results.exit_code(verdicts)
 
 
-def _finish(arc: archive_mod.Archive, batch_id: str, station_key: SigningKey | None = None) -> archive_mod.BatchRow:
+def _finish(
+    arc: archive_mod.Archive, batch_id: str, station_key: SigningKey | None = None
+) -> tuple[archive_mod.BatchRow, str | None]:
+    """Write the batch report and CSV and close the batch; (batch row, why it could not be finished or None)."""
     generated_at = archive_mod.utc_now()
-    report = render_batch_report(arc, batch_id, generated_at=generated_at)
-    return arc.finish_batch(
+    report, interruption = _render_report_in_own_process(arc, batch_id, generated_at)
+    if report is None:
+        return arc.batch(batch_id), interruption
+    batch = arc.finish_batch(
         batch_id,
         report_pdf=report,
         regions_csv=regions_csv(arc, batch_id),
         report_generated_at=generated_at,
         station_key=station_key,
     )
+    return batch, None
 
 
-# ------------------------------------------------------------------- outputs
+def _render_report_file(archive_dir: str, batch_id: str, generated_at: str, out: str) -> None:
+    with archive_mod.Archive(archive_dir) as arc:
+        write_bytes_atomic(out, render_batch_report(arc, batch_id, generated_at=generated_at))
 
 
-def _stored_parts(arc: archive_mod.Archive, batch_id: str):
-    """(row, stored result dict) for every recorded part, in batch order."""
-    return [(p, arc.read_result(p)) for p in arc.parts(batch_id) if p.result_sha256]
+def _render_report_in_own_process(
+    arc: archive_mod.Archive, batch_id: str, generated_at: str
+) -> tuple[bytes | None, str | None]:
+    """The batch report's bytes, rendered in a process of its own; (None, why) when that process fails.
 
-
-def _csv_value(v) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, list):
-        return " ".join(_csv_value(x) for x in v)
-    return str(v)
-
-
-def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
-    """One CSV row per region of every part (one row for a part with an error or no region).
-
-    Figures are written as the part's JSON holds them (same rounding);
-    lists (expected lays of crossed lay) are space-separated.
+    Every part's picture and page is held while a report is made; in a
+    process of its own that memory is given back when it ends, so the batch
+    process stays the same size for 30 parts or 3000. The wait is bounded
+    like a part's (:data:`PART_TIMEOUT_ENV`).
     """
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(CSV_COLUMNS)
-    for part, result in _stored_parts(arc, batch_id):
-        head = [batch_id, part.part_key, part.image_sha256 or "", part.verdict]
-        regions = result.get("regions") or []
-        if not regions:
-            reason = result.get("error") or "; ".join(result.get("reasons", []))
-            writer.writerow(head + [""] * (len(CSV_COLUMNS) - len(head) - 1) + [reason])
-        for r in regions:
-            writer.writerow(
-                head
-                + [
-                    r["name"],
-                    r.get("lay_pattern", ""),
-                    _csv_value(r["expected_lay_deg"]),
-                    _csv_value(r["tolerance_deg"]),
-                    _csv_value(r["lay_deg"]),
-                    _csv_value(r["deviation_deg"]),
-                    _csv_value(r["uncertainty_deg"]),
-                    _csv_value(r["coherence"]),
-                    _csv_value(r["deviating_area_fraction"]),
-                    len(r["patches"]),
-                    r["verdict"],
-                    "; ".join(r["reasons"]),
-                ]
-            )
-    return buf.getvalue().encode("utf-8")
-
-
-def render_batch_report(
-    arc: archive_mod.Archive, batch_id: str, *, signoff: SignOff | None = None, generated_at: str | None = None
-) -> bytes:
-    """The batch PDF report from what the archive holds (signed edition when ``signoff`` is given).
-
-    Pictures are read from the archived images (the bytes that were
-    inspected), as 8-bit grey to keep the memory of a large batch down. Parts
-    whose image could not be read are counted on the summary and listed with their reasons.
-    The signed edition is rendered with the unsigned report's own generation
-    time, so that the two differ only in the sign-off block.
-
-    Raises
-    ------
-    InputError
-        When no part of the batch could be inspected (there is nothing to report).
-    """
-    from ..report.pdf import NotInspected, render_report
-
-    batch = arc.batch(batch_id)
-    stored = _stored_parts(arc, batch_id)
-    judged = [(p, r) for p, r in stored if p.verdict != archive_mod.ERROR_VERDICT]
-    failed = [
-        (p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT
-    ]
-    if not judged:
-        raise InputError(
-            f"batch {batch_id!r}: none of its {len(stored)} image(s) could be inspected; no report is made"
-        )
-    stamp = generated_at or batch.report_generated_at
-    return render_report(
-        [results.part_from_dict(r) for _, r in judged],
-        [_picture_uint8(arc.object_path(p.image_sha256)) for p, _ in judged],
-        report_id=batch_id,
-        operator=batch.operator,
-        station=batch.station,
-        generated_at=None if stamp is None else datetime.fromisoformat(stamp.replace("Z", "+00:00")),
-        signoff=signoff,
-        batch_stats=True,
-        not_inspected=[NotInspected(key, sha, error) for key, sha, error in failed],
-    )
-
-
-def _picture_uint8(path: Path) -> np.ndarray:
-    pixels = read_image(path).pixels
-    return np.clip(np.rint(pixels * 255.0), 0, 255).astype(np.uint8)
-
-
-def export_batch(arc: archive_mod.Archive, batch_id: str, out_dir: str | os.PathLike) -> list[Path]:
-    """Copy a batch's files from the archive to ``out_dir`` under readable names.
-
-    Per part ``NAME.json`` (result or error record) and ``NAME.overlay.png``;
-    for the batch ``report.pdf``, ``regions.csv`` and ``report.signed-N.pdf``
-    for each sign-off. Returns the paths written.
-    """
-    out = Path(out_dir)
-    parts = arc.parts(batch_id)
-    names = dict(zip((p.part_key for p in parts), output_stems([p.part_key for p in parts])))
-    files: list[tuple[Path, str]] = []
-    for p in parts:
-        if p.result_sha256:
-            files.append((out / f"{names[p.part_key]}.json", p.result_sha256))
-        if p.overlay_sha256:
-            files.append((out / f"{names[p.part_key]}.overlay.png", p.overlay_sha256))
-    batch = arc.batch(batch_id)
-    if batch.report_sha256:
-        files.append((out / "report.pdf", batch.report_sha256))
-        files.append((out / "regions.csv", batch.regions_csv_sha256))
-    for s in arc.signoffs(batch_id):
-        files.append((out / f"report.signed-{s.signoff_no}.pdf", s.signed_report_sha256))
-    for path, sha in files:
-        write_bytes_atomic(path, arc.read_object(sha))
-    return [path for path, _ in files]
+    timeout_s = env_limit(PART_TIMEOUT_ENV, 600.0, lo=1.0, hi=1e6)
+    with tempfile.TemporaryDirectory(prefix="surfinspect-report-") as tmp:
+        out = Path(tmp) / "report.pdf"
+        with ProcessPoolExecutor(max_workers=1, mp_context=_pool_context()) as pool:
+            future = pool.submit(_render_report_file, str(arc.root), batch_id, generated_at, str(out))
+            try:
+                future.result(timeout=timeout_s)
+            except BrokenProcessPool:
+                return None, "the process writing the batch report ended abruptly (run the same command again)"
+            except FutureTimeout:
+                _terminate_workers(pool)
+                return None, f"the batch report was not written within {timeout_s:g} s ({PART_TIMEOUT_ENV})"
+        return out.read_bytes(), None

@@ -16,16 +16,22 @@ import numpy as np
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
+from ..inputs import escape_text
 from ..measure.engine import inspect_image
 from ..measure.imaging import IMAGE_SUFFIXES, LoadedImage, read_image
 from ..recipe import Recipe
 from ..results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
 
+#: Longest name (each folder or file name, in UTF-8 bytes) a part may have. Its outputs add
+#: ".overlay.png" and an atomic write's temporary name ~25 bytes more, within the usual 255-byte
+#: limit of a file system's names.
+MAX_NAME_BYTES = 200
 #: Long side of the overlay PNG, px: a full-size overlay of a 12 MP brushed photo is ~25 MB.
 OVERLAY_MAX_SIDE = 2000
 
 __all__ = [
     "PartOutcome",
+    "MAX_NAME_BYTES",
     "output_stems",
     "part_names",
     "inspect_path",
@@ -62,16 +68,18 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
     return out
 
 
-def judge_path(path: str | Path, recipe: Recipe, name: str) -> tuple[LoadedImage, PartResult]:
+def judge_path(
+    path: str | Path, recipe: Recipe, name: str, *, follow_symlinks: bool = True
+) -> tuple[LoadedImage, PartResult]:
     """Read one image and inspect it (no file is written); raises InputError as :func:`read_image` and the engine."""
-    loaded = read_image(path)
+    loaded = read_image(path, follow_symlinks=follow_symlinks)
     return loaded, inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
 
 
 def part_error_text(exc: InputError, path: str | Path) -> str:
     """The one-line reason a part was not inspected; a recipe problem found on an image (a region outside it) names it."""
     text = str(exc)
-    return text if str(path) in text else f"{path}: {text}"
+    return text if str(path) in text or escape_text(str(path)) in text else f"{escape_text(str(path))}: {text}"
 
 
 def part_names(paths: Sequence[str | Path]) -> list[str]:
@@ -98,23 +106,35 @@ def inspect_path(
     stem: str,
     *,
     keep_pixels: bool = False,
+    follow_symlinks: bool = True,
     name: str | None = None,
 ) -> tuple[PartOutcome, np.ndarray | None]:
     """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically.
 
     ``name`` is the part's name in the result (default: the image's file name).
+    An input error (an unreadable, damaged or oversized image, a region outside
+    it, too little memory for it) becomes the outcome's ``error``; an output
+    that cannot be written (a full disk) raises ``OSError``.
     """
     name = name or Path(path).name
     from ..report.overlay import write_overlay_png
 
     try:
-        loaded, result = judge_path(path, recipe, name)
+        size = len(stem.encode("utf-8", "surrogateescape"))
+        if size > MAX_NAME_BYTES:
+            raise InputError(
+                f"{escape_text(str(path))}: the file name is too long for its outputs "
+                f"(got {size} bytes, allowed at most {MAX_NAME_BYTES}); rename the file"
+            )
+        loaded, result = judge_path(path, recipe, name, follow_symlinks=follow_symlinks)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
-    except InputError as exc:
+    except (InputError, MemoryError) as exc:
+        if isinstance(exc, MemoryError):
+            exc = InputError("not enough memory to inspect this image")
         return PartOutcome(path=str(path), stem=stem, error=part_error_text(exc, path), name=name), None
     outcome = PartOutcome(
         path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name

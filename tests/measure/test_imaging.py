@@ -97,3 +97,110 @@ def test_jpeg_exif_orientation_is_applied(tmp_path: Path):
     loaded = read_image(p).pixels
     assert loaded.shape == seen.shape == (90, 60)
     assert np.abs(loaded - seen).max() < 2 / 255
+
+
+# ------------------------------------------------------------------ hostile files
+
+
+def test_a_header_bomb_is_refused_before_decoding(tmp_path: Path):
+    import time
+
+    from fuzzing import header_bomb_png
+
+    bomb = tmp_path / "bomb.png"
+    bomb.write_bytes(header_bomb_png())
+    start = time.perf_counter()
+    with pytest.raises(
+        InputError,
+        match=r"bomb.png: image too large \(header declares 60000x60000 = 3600.0 MP, allowed at most 200 MP; set SURFINSPECT_MAX_MEGAPIXELS",
+    ):
+        read_image(bomb)
+    assert time.perf_counter() - start < 1.0  # 3.6 GB of pixels were never allocated
+
+
+def test_the_pixel_budget_is_configurable(tmp_path: Path, grey, monkeypatch):
+    p = tmp_path / "part.png"
+    cv2.imwrite(str(p), synth.to_uint8(grey))
+    monkeypatch.setenv("SURFINSPECT_MAX_MEGAPIXELS", "0.005")  # 5000 px < 64 x 80
+    with pytest.raises(
+        InputError, match=r"part.png: image too large \(header declares 80x64 = 0.0 MP, allowed at most 0.005 MP"
+    ):
+        read_image(p)
+    monkeypatch.setenv("SURFINSPECT_MAX_MEGAPIXELS", "lots")
+    with pytest.raises(
+        InputError,
+        match=r"SURFINSPECT_MAX_MEGAPIXELS: not a usable limit \(got 'lots', allowed a number from 0.001 to 10000\)",
+    ):
+        read_image(p)
+    monkeypatch.setenv("SURFINSPECT_MAX_MEGAPIXELS", "1")
+    assert read_image(p).info.width == 80
+
+
+@pytest.mark.parametrize("progressive", [False, True])
+def test_a_jpeg_cut_short_and_closed_with_an_end_marker_is_refused(tmp_path: Path, progressive):
+    image = synth.to_uint8(synth.brushed_panel((600, 800), 30.0, seed=2))
+    params = [cv2.IMWRITE_JPEG_PROGRESSIVE, 1] if progressive else []
+    ok, data = cv2.imencode(".jpg", image, params)
+    data = data.tobytes()
+    cut = data[: len(data) // 4] + b"\xff\xd9"
+    # the check must matter: OpenCV alone decodes this file, filling the missing rows with grey
+    filled = cv2.imdecode(np.frombuffer(cut, np.uint8), cv2.IMREAD_GRAYSCALE)
+    assert filled is not None and filled.shape == (600, 800)
+    if not progressive:  # a progressive file shows its early, coarse scans instead
+        assert np.ptp(filled[-100:]) <= 2
+    p = tmp_path / "cut.jpg"
+    p.write_bytes(cut)
+    with pytest.raises(
+        InputError,
+        match=r"cut.jpg: image file is damaged or truncated \(the decoder reports: Corrupt JPEG data: premature end of data segment\)",
+    ):
+        read_image(p)
+
+
+def test_damaged_png_and_truncated_tiff_are_refused(tmp_path: Path, grey):
+    ok, png = cv2.imencode(".png", synth.to_uint8(grey))
+    png = bytearray(png.tobytes())
+    idat = png.find(b"IDAT")
+    png[idat + 20] ^= 0x5A  # one byte of the compressed data: its chunk's CRC no longer matches
+    p = tmp_path / "flip.png"
+    p.write_bytes(bytes(png))
+    with pytest.raises(InputError, match=r"flip.png: (image file is damaged|not a readable image)"):
+        read_image(p)
+    ok, tif = cv2.imencode(".tif", synth.to_uint8(grey))
+    t = tmp_path / "cut.tif"
+    t.write_bytes(tif.tobytes()[: len(tif) // 2])
+    with pytest.raises(InputError, match=r"cut.tif: (image file is damaged|not a readable image)"):
+        read_image(t)
+
+
+def test_only_regular_files_are_read(tmp_path: Path, grey):
+    import os
+
+    fifo = tmp_path / "fifo.png"
+    os.mkfifo(fifo)
+    with pytest.raises(
+        InputError, match=r"fifo.png: image file is a FIFO \(named pipe\); refused \(allowed: regular files\)"
+    ):
+        read_image(fifo)  # opened non-blocking: no writer, no hang
+    zero = tmp_path / "zero.png"
+    os.symlink("/dev/zero", zero)
+    with pytest.raises(InputError, match=r"zero.png: image file is a device; refused"):
+        read_image(zero)
+    good = tmp_path / "good.png"
+    cv2.imwrite(str(good), synth.to_uint8(grey))
+    link = tmp_path / "link.png"
+    os.symlink(good, link)
+    assert read_image(link).info.width == 80
+    with pytest.raises(InputError, match=r"link.png: image file is a symbolic link; refused"):
+        read_image(link, follow_symlinks=False)
+
+
+def test_a_file_over_the_size_limit_is_not_read(tmp_path: Path, grey, monkeypatch):
+    p = tmp_path / "part.png"
+    cv2.imwrite(str(p), synth.to_uint8(grey))
+    monkeypatch.setenv("SURFINSPECT_MAX_IMAGE_MB", "0.001")
+    with pytest.raises(
+        InputError,
+        match=r"part.png: image file is too large \(got \d+ bytes, allowed at most 1000; set SURFINSPECT_MAX_IMAGE_MB",
+    ):
+        read_image(p)

@@ -172,10 +172,10 @@ def test_discover_images_keys_are_paths_below_the_folder(tmp_path):
     for rel in ["b.png", "a.TIF", "sub/a.png", "c.txt"]:
         (tmp_path / rel).parent.mkdir(parents=True, exist_ok=True)
         (tmp_path / rel).write_bytes(b"x")
-    assert [k for k, _ in batch.discover_images(tmp_path)] == ["a.TIF", "b.png"]
+    assert [f.key for f in batch.discover_images(tmp_path)] == ["a.TIF", "b.png"]
     found = batch.discover_images(tmp_path, recursive=True)
-    assert [k for k, _ in found] == ["a.TIF", "b.png", "sub/a.png"]
-    assert found[2][1] == tmp_path / "sub" / "a.png"
+    assert [f.key for f in found] == ["a.TIF", "b.png", "sub/a.png"]
+    assert found[2].path == tmp_path / "sub" / "a.png" and found[2].refusal is None
 
 
 def _row(verdict):
@@ -351,7 +351,7 @@ def test_discover_images_ignores_exclusions_that_are_not_below_the_folder(tmp_pa
         (tmp_path / rel).write_bytes(b"x")
 
     def keys(*exclude):
-        return [k for k, _ in batch.discover_images(tmp_path / "in", recursive=True, exclude=exclude)]
+        return [f.key for f in batch.discover_images(tmp_path / "in", recursive=True, exclude=exclude)]
 
     assert keys(tmp_path / "in" / "out") == ["a.png"]
     # outputs written into the image folder itself, or beside it, exclude nothing
