@@ -34,6 +34,7 @@ COMMANDS = (
     "target",
     "bias",
     "gauge",
+    "review",
 )
 
 
