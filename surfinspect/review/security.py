@@ -50,8 +50,9 @@ class Csrf:
 class BodyLimit:
     """ASGI middleware: refuse (413) a request whose body is over ``limit`` bytes, declared or streamed.
 
-    A declared length over the limit is refused before a byte is read; a body
-    streamed without a length is cut off at the limit.
+    A declared length over the limit is refused before a byte is read; any
+    other body is read whole (at most ``limit`` bytes) before the application
+    sees it, so no handler ever meets a cut-off request.
     """
 
     def __init__(self, app: ASGIApp, limit: int = MAX_BODY_BYTES):
@@ -59,32 +60,34 @@ class BodyLimit:
         self.limit = limit
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
+        if scope["type"] != "http" or scope["method"] in ("GET", "HEAD"):
             await self.app(scope, receive, send)
             return
         declared = dict(scope["headers"]).get(b"content-length")
         if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
             await _plain(send, 413, "The request is larger than this station accepts.")
             return
-        seen = 0
-
-        async def limited() -> Message:
-            nonlocal seen
+        body = bytearray()
+        while True:
             message = await receive()
-            if message["type"] == "http.request":
-                seen += len(message.get("body", b""))
-                if seen > self.limit:
-                    raise TooLarge()
-            return message
+            if message["type"] != "http.request":
+                return  # the client went away
+            body += message.get("body", b"")
+            if len(body) > self.limit:
+                await _plain(send, 413, "The request is larger than this station accepts.")
+                return
+            if not message.get("more_body", False):
+                break
+        sent = False
 
-        try:
-            await self.app(scope, limited, send)
-        except TooLarge:
-            await _plain(send, 413, "The request is larger than this station accepts.")
+        async def replay() -> Message:
+            nonlocal sent
+            if sent:
+                return await receive()
+            sent = True
+            return {"type": "http.request", "body": bytes(body), "more_body": False}
 
-
-class TooLarge(Exception):
-    """A streamed request body went over the limit."""
+        await self.app(scope, replay, send)
 
 
 async def _plain(send: Send, status: int, sentence: str) -> None:
