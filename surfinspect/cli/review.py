@@ -18,7 +18,9 @@ HELP = "serve the review station: look at batches and parts in a browser, record
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
-    parser.add_argument("--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1: this computer only)")
+    parser.add_argument(
+        "--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1: this computer only)"
+    )
     parser.add_argument("--port", type=int, default=8750, help="port to listen on (default 8750)")
     parser.add_argument("--read-only", action="store_true", help="browse only: no dispositions, no sign-off")
     parser.add_argument(
@@ -49,6 +51,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
             f"serving on {args.host}: anyone who can reach it can browse; every disposition and sign-off needs an "
             "enrolled key and its passphrase. Use it on a trusted plant network only (the connection is not encrypted)."
         )
-    console.info(f"review station for {root} ({batches} batch(es)) at http://{args.host}:{args.port}/ - Ctrl-C stops it")
+    console.info(
+        f"review station for {root} ({batches} batch(es)) at http://{args.host}:{args.port}/ - Ctrl-C stops it"
+    )
     serve(config, args.host, args.port)
     return 0

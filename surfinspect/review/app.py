@@ -197,7 +197,9 @@ class _Views:
             s = next((s for s in arc.signoffs(b.batch_id) if s.signoff_no == number), None)
             if s is None:
                 raise HTTPException(404, f"Batch {b.batch_id} has no sign-off number {number}.")
-            return self._object(arc, s.signed_report_sha256, "application/pdf", f"{b.batch_id}.report.signed-{number}.pdf")
+            return self._object(
+                arc, s.signed_report_sha256, "application/pdf", f"{b.batch_id}.report.signed-{number}.pdf"
+            )
 
     def regions_csv(self, request: Request) -> Response:
         with self._open() as arc:
@@ -260,7 +262,12 @@ class _Views:
                     passphrase=fields.get("passphrase", ""),
                 )
                 row = actions.record_disposition(
-                    arc, p.batch_id, p.part_key, key, decision=fields.get("decision", ""), comment=fields.get("comment", "")
+                    arc,
+                    p.batch_id,
+                    p.part_key,
+                    key,
+                    decision=fields.get("decision", ""),
+                    comment=fields.get("comment", ""),
                 )
             except InputError as exc:
                 return self._refused(request, arc, p, exc, fields)

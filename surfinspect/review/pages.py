@@ -87,7 +87,9 @@ def part_cards(arc: archive.Archive, batch_id: str) -> list[PartCard]:
     for p in arc.parts(batch_id):
         regions = by_part.get(p.part_key, [])
         devs = [abs(r["deviation_deg"]) for r in regions if r.get("deviation_deg") is not None]
-        cards.append(PartCard(p, p.verdict or "pending", max(devs) if devs else None, regions, disp.get(p.part_key, [])))
+        cards.append(
+            PartCard(p, p.verdict or "pending", max(devs) if devs else None, regions, disp.get(p.part_key, []))
+        )
     return cards
 
 

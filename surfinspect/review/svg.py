@@ -99,7 +99,7 @@ def control_chart_svg(
 
     ``verdicts`` holds each plotted value's part verdict (its mark's shape and colour).
     """
-    left, right, top, bottom = 56.0, 12.0, 22.0, 24.0
+    left, right, top, bottom = 104.0, 12.0, 22.0, 24.0
     vals = list(chart.values)
     finite = [v for v in vals if math.isfinite(v)]
     lines = [chart.center, chart.ucl, chart.lcl] + ([tolerance, -tolerance] if tolerance is not None else [])

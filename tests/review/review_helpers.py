@@ -53,7 +53,10 @@ def build_demo_archive(base: Path) -> DemoArchive:
     owner_dir.mkdir()
     env = {"RV_PASS": PASSPHRASE, "RV_OWNER": OWNER_PASSPHRASE}
     recipe = str(ROOT / "recipes" / "lw-220-wall-panel.yaml")
-    assert run_cli(["-q", "batch", recipe, str(images), "--archive", str(archive), "--batch-id", BATCH_ID, "--jobs", "2"]) == 1
+    assert (
+        run_cli(["-q", "batch", recipe, str(images), "--archive", str(archive), "--batch-id", BATCH_ID, "--jobs", "2"])
+        == 1
+    )
     owner_key = owner_dir / "qm.key"
     assert run_cli(["-q", "keygen", "--out", str(owner_key), "--passphrase-env", "RV_OWNER"], env=env) == 0
     assert run_cli(["-q", "owner", "init", "--archive", str(archive), "--name", "M. QUALITY", "--key", str(owner_key),

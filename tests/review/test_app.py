@@ -3,11 +3,9 @@
 from __future__ import annotations
 
 import re
-import subprocess
-import sys
 
 import pytest
-from review_helpers import PASSPHRASE
+from review_helpers import PASSPHRASE, run_cli
 from starlette.testclient import TestClient
 
 from surfinspect.archive import store
@@ -50,7 +48,13 @@ def test_batches_page_lists_the_batch_with_counts_and_sign_off_state(ro, demo_ar
 
 @pytest.mark.parametrize(
     "query, found",
-    [("q=lw-220", True), ("q=LW-220-demo", True), ("q=cp-14", False), ("from=2000-01-01", True), ("to=2000-01-01", False)],
+    [
+        ("q=lw-220", True),
+        ("q=LW-220-demo", True),
+        ("q=cp-14", False),
+        ("from=2000-01-01", True),
+        ("to=2000-01-01", False),
+    ],
 )
 def test_batches_search_by_id_recipe_and_date(ro, demo_archive, query, found):
     r = ro.get(f"/?{query}")
@@ -125,7 +129,7 @@ def test_part_page_shows_regions_rose_patches_and_neighbours(ro, demo_archive):
 def test_unknown_ids_and_traversal_are_404_pages_with_a_sentence(ro, path):
     r = ro.get(path)
     assert r.status_code == 404
-    assert "Traceback" not in r.text and "<p class=\"sentence\">" in r.text
+    assert "Traceback" not in r.text and '<p class="sentence">' in r.text
 
 
 def test_a_server_error_is_a_sentence_not_a_traceback(demo_archive, tmp_path):
@@ -158,8 +162,7 @@ def test_disposition_recorded_through_the_archive_and_verify_passes(demo_archive
     with store.Archive(demo.root) as arc:
         (d,) = arc.dispositions(demo.batch_id)
     assert (d.decision, d.comment, d.signer_name) == ("rework", "grain runs 8 deg off; rebrush", "R. OSTERMANN")
-    verify = subprocess.run([sys.executable, "-m", "surfinspect", "verify", "--archive", str(demo.root)], capture_output=True)
-    assert verify.returncode == 0, verify.stdout + verify.stderr
+    assert run_cli(["-q", "verify", "--archive", str(demo.root)]) == 0
 
 
 @pytest.mark.parametrize(
@@ -189,8 +192,7 @@ def test_an_unenrolled_uploaded_key_is_refused(demo_archive, tmp_path):
     demo = demo_archive.copy(tmp_path)
     pos = positions(demo, "reject")[0]
     stranger = tmp_path / "stranger.key"
-    assert subprocess.run([sys.executable, "-m", "surfinspect", "-q", "keygen", "--out", str(stranger),
-                           "--passphrase-env", "P"], env={"P": "x" * 12, "PATH": ""}).returncode == 0  # fmt: skip
+    assert run_cli(["-q", "keygen", "--out", str(stranger), "--passphrase-env", "P"], env={"P": "x" * 12}) == 0
     with client_for(demo) as c:
         form = {**disposition_form(c, demo, pos), "key": "", "passphrase": "x" * 12}
         r = c.post(
@@ -255,7 +257,7 @@ def test_read_only_station_offers_no_forms_and_refuses_posts(demo_archive):
     with client_for(demo_archive, read_only=True) as c:
         pos = positions(demo_archive, "reject")[0]
         page = c.get(f"/batch/{demo_archive.batch_id}/part/{pos}").text
-        assert "<form method=\"post\"" not in page
+        assert '<form method="post"' not in page
         r = c.post(f"/batch/{demo_archive.batch_id}/part/{pos}/disposition", data={"decision": "scrap"})
     assert r.status_code == 403 and "read-only" in r.text
 
