@@ -29,7 +29,7 @@ from ..archive import store as archive
 from ..errors import InputError
 from ..results import CAUTION
 from . import actions, media, pages
-from .security import CSRF_FIELD, SESSION_COOKIE, BodyLimit, Csrf, SecurityHeaders
+from .security import CSRF_FIELD, SESSION_COOKIE, BodyLimit, Csrf, FailureThrottle, SecurityHeaders
 
 HERE = Path(__file__).parent
 _BATCH_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
@@ -80,6 +80,10 @@ class _Views:
         self.config = config
         self.templates = templates
         self.csrf = csrf
+        self.throttle = FailureThrottle()
+        # on another address than loopback the station's key folder is not offered: each act is done with
+        # the person's own key file, uploaded with the form, and its passphrase
+        self.key_dir = None if config.remote else config.key_dir
 
     # -- plumbing
 
@@ -167,7 +171,7 @@ class _Views:
             "charts": charts,
             "chart_notes": notes,
             "signoffs": arc.signoffs(row.batch_id),
-            "keys": [] if self.config.read_only else actions.folder_keys(arc, self.config.key_dir),
+            "keys": [] if self.config.read_only else actions.folder_keys(arc, self.key_dir),
             "dispositions": [d for c in cards for d in c.dispositions],
         }
 
@@ -175,7 +179,7 @@ class _Views:
         with self._open() as arc:
             row = self._part(arc, request)
             view = pages.part_view(arc, row.batch_id, row.position)
-            keys = [] if self.config.read_only else actions.folder_keys(arc, self.config.key_dir)
+            keys = [] if self.config.read_only else actions.folder_keys(arc, self.key_dir)
             batch = arc.batch(row.batch_id)
         number = _done_number(request, "d")
         d = next((d for d in view.card.dispositions if d.disposition_no == number), None)
@@ -239,10 +243,26 @@ class _Views:
             raise HTTPException(400, "The form could not be read.") from None
         if not self.csrf.valid(request.cookies.get(SESSION_COOKIE), str(form.get(CSRF_FIELD) or "")):
             raise HTTPException(403, "The form is out of date or did not come from this station; reload the page.")
+        if self.throttle.blocked(_client(request)):
+            raise HTTPException(429, "Too many failed key attempts from this computer; wait a few minutes.")
         upload = form.get("key_file")
         data = await upload.read(actions.MAX_KEY_BYTES + 1) if hasattr(upload, "read") else None
         fields = {k: str(v) for k, v in form.items() if isinstance(v, str)}
         return fields, data or None
+
+    def _open_key(self, request: Request, arc: archive.Archive, fields: dict, upload: bytes | None):
+        """The signer's key, opened with the passphrase typed; a failed attempt counts against the address."""
+        try:
+            return actions.open_key(
+                arc,
+                self.key_dir,
+                fingerprint=fields.get("key", ""),
+                upload=upload,
+                passphrase=fields.get("passphrase", ""),
+            )
+        except InputError:
+            self.throttle.failed(_client(request))
+            raise
 
     async def disposition(self, request: Request) -> Response:
         fields, upload = await self._checked_form(request)
@@ -254,13 +274,7 @@ class _Views:
         with self._open() as arc:
             p = self._part(arc, request)
             try:
-                key = actions.open_key(
-                    arc,
-                    self.config.key_dir,
-                    fingerprint=fields.get("key", ""),
-                    upload=upload,
-                    passphrase=fields.get("passphrase", ""),
-                )
+                key = self._open_key(request, arc, fields, upload)
                 row = actions.record_disposition(
                     arc,
                     p.batch_id,
@@ -276,7 +290,7 @@ class _Views:
 
     def _refused(self, request, arc, p, exc, fields) -> Response:
         view = pages.part_view(arc, p.batch_id, p.position)
-        keys = actions.folder_keys(arc, self.config.key_dir)
+        keys = actions.folder_keys(arc, self.key_dir)
         context: dict = {
             "batch": arc.batch(p.batch_id),
             "view": view,
@@ -296,13 +310,7 @@ class _Views:
         with self._open() as arc:
             b = self._batch(arc, request)
             try:
-                key = actions.open_key(
-                    arc,
-                    self.config.key_dir,
-                    fingerprint=fields.get("key", ""),
-                    upload=upload,
-                    passphrase=fields.get("passphrase", ""),
-                )
+                key = self._open_key(request, arc, fields, upload)
                 row = actions.sign_batch(
                     arc, b.batch_id, key, meaning=fields.get("meaning", ""), comment=fields.get("comment", "")
                 )
@@ -339,6 +347,10 @@ def _default_phrase(status: int) -> str:
         return HTTPStatus(status).phrase
     except ValueError:
         return ""
+
+
+def _client(request: Request) -> str:
+    return request.client.host if request.client else "unknown"
 
 
 def _done_number(request: Request, letter: str) -> int | None:

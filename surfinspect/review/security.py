@@ -123,3 +123,31 @@ class SecurityHeaders:
             await send(message)
 
         await self.app(scope, receive, with_headers)
+
+
+class FailureThrottle:
+    """Refuse further key attempts from an address after ``limit`` failed ones within ``window_s`` seconds.
+
+    A guessed passphrase costs one request; this keeps guessing slow (common
+    practice, no source: a handful of tries per few minutes, as a login form).
+    """
+
+    def __init__(self, limit: int = 5, window_s: float = 300.0, clock=None):
+        import time
+
+        self.limit = limit
+        self.window_s = window_s
+        self._clock = clock or time.monotonic
+        self._failures: dict[str, list[float]] = {}
+
+    def _recent(self, who: str) -> list[float]:
+        now = self._clock()
+        kept = [t for t in self._failures.get(who, []) if now - t < self.window_s]
+        self._failures[who] = kept
+        return kept
+
+    def blocked(self, who: str) -> bool:
+        return len(self._recent(who)) >= self.limit
+
+    def failed(self, who: str) -> None:
+        self._recent(who).append(self._clock())

@@ -280,9 +280,58 @@ def test_methods_not_allowed_are_pages(ro, demo_archive):
     assert r.status_code == 405 and "Traceback" not in r.text
 
 
+def test_is_loopback():
+    from surfinspect.review.server import is_loopback
+
+    assert all(is_loopback(h) for h in ("127.0.0.1", "127.1.2.3", "::1", "localhost"))
+    assert not any(is_loopback(h) for h in ("0.0.0.0", "192.168.1.20", "::", "station-7"))
+
+
 def test_cli_refuses_a_folder_that_is_not_an_archive(tmp_path, capsys):
     from surfinspect.cli.main import main
 
     assert main(["review", "--archive", str(tmp_path / "none")]) == 2
     assert "not a surfinspect archive" in capsys.readouterr().err
     assert main(["review", "--archive", str(tmp_path), "--port", "0"]) == 2
+
+
+def test_failed_key_attempts_are_throttled_per_address(demo_archive, tmp_path):
+    demo = demo_archive.copy(tmp_path)
+    pos = positions(demo, "reject")[0]
+    with client_for(demo) as c:
+        form = {**disposition_form(c, demo, pos), "passphrase": "guess"}
+        codes = [c.post(f"/batch/{demo.batch_id}/part/{pos}/disposition", data=form).status_code for _ in range(6)]
+        right = c.post(f"/batch/{demo.batch_id}/part/{pos}/disposition", data={**form, "passphrase": PASSPHRASE})
+    assert codes == [400] * 5 + [429]
+    assert right.status_code == 429  # even the right passphrase waits out the window
+    with store.Archive(demo.root) as arc:
+        assert arc.dispositions(demo.batch_id) == []
+
+
+def test_throttle_window_expires():
+    from surfinspect.review.security import FailureThrottle
+
+    now = [0.0]
+    t = FailureThrottle(limit=2, window_s=10.0, clock=lambda: now[0])
+    t.failed("a")
+    t.failed("a")
+    assert t.blocked("a") and not t.blocked("b")
+    now[0] = 10.5
+    assert not t.blocked("a")
+
+
+def test_on_another_address_the_key_folder_is_not_offered(demo_archive, tmp_path):
+    demo = demo_archive.copy(tmp_path)
+    pos = positions(demo, "reject")[0]
+    with client_for(demo, remote=True) as c:
+        page = c.get(f"/batch/{demo.batch_id}/part/{pos}").text
+        assert 'name="key_file"' in page and "<select" not in page
+        form = {**disposition_form(c, demo, pos), "passphrase": PASSPHRASE}  # a folder key's fingerprint
+        r = c.post(f"/batch/{demo.batch_id}/part/{pos}/disposition", data=form)
+        assert r.status_code == 400 and "upload your key file" in r.text
+        uploaded = c.post(
+            f"/batch/{demo.batch_id}/part/{pos}/disposition",
+            data={**form, "key": ""},
+            files={"key_file": ("inspector.key", (demo.keys / "inspector.key").read_bytes())},
+        )
+    assert uploaded.status_code == 200 and "Recorded: disposition #1" in uploaded.text
