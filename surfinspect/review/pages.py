@@ -151,11 +151,15 @@ class PartView:
 
 def part_view(arc: archive.Archive, batch_id: str, position: int) -> PartView | None:
     """The part at ``position`` of the batch (None when there is none), with its neighbours."""
-    cards = part_cards(arc, batch_id)
-    index = next((i for i, c in enumerate(cards) if c.row.position == position), None)
+    rows = arc.parts(batch_id)  # the neighbours need the part rows only
+    index = next((i for i, p in enumerate(rows) if p.position == position), None)
     if index is None:
         return None
-    card = cards[index]
+    row = rows[index]
+    regions_rows = arc.regions(batch_id, row.part_key)
+    devs = [abs(r["deviation_deg"]) for r in regions_rows if r.get("deviation_deg") is not None]
+    own = [d for d in arc.dispositions(batch_id) if d.part_key == row.part_key]
+    card = PartCard(row, row.verdict or "pending", max(devs) if devs else None, regions_rows, own)
     result = arc.read_result(card.row) if card.row.result_sha256 else {}
     regions, patches = [], []
     for reg in result.get("regions", []):
@@ -173,8 +177,8 @@ def part_view(arc: archive.Archive, batch_id: str, position: int) -> PartView | 
             patches.append({**p, "number": number, "region": reg["name"]})
             view["patch_numbers"].append(number)
         regions.append(view)
-    prev_position = cards[index - 1].row.position if index > 0 else None
-    next_position = cards[index + 1].row.position if index + 1 < len(cards) else None
+    prev_position = rows[index - 1].position if index > 0 else None
+    next_position = rows[index + 1].position if index + 1 < len(rows) else None
     return PartView(card, result, prev_position, next_position, regions, patches)
 
 
