@@ -129,7 +129,9 @@ def control_chart_svg(
         out.append(_hline(left, width - right, py(value), css, f"{word} {value:.3f}{unit}"))
     if tolerance is not None:
         for value in (tolerance, -tolerance):
-            out.append(_hline(left, width - right, py(value), "chart-tolerance", f"tol {value:+g}{unit}"))
+            out.append(
+                _hline(left, width - right, py(value), "chart-tolerance", f"tolerance {value:+g}{unit}", inside=True)
+            )
     runs: list[list[str]] = [[]]
     for i, v in enumerate(vals):  # a missing value (no texture) is a gap in the line
         if math.isfinite(v):
@@ -150,8 +152,10 @@ def control_chart_svg(
     return "".join(out)
 
 
-def _hline(x0: float, x1: float, y: float, css: str, label: str) -> str:
+def _hline(x0: float, x1: float, y: float, css: str, label: str, *, inside: bool = False) -> str:
+    """A horizontal line, labelled left of the frame (control lines) or inside it at the right (tolerances)."""
+    at = f'x="{_f(x1 - 4)}" y="{_f(y - 3)}"' if inside else f'x="{_f(x0 - 4)}" y="{_f(y + 3)}"'
     return (
         f'<line x1="{_f(x0)}" y1="{_f(y)}" x2="{_f(x1)}" y2="{_f(y)}" class="{css}"/>'
-        f'<text x="{_f(x0 - 4)}" y="{_f(y + 3)}" class="chart-axis end">{escape(label)}</text>'
+        f'<text {at} class="chart-axis end">{escape(label)}</text>'
     )

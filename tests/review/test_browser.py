@@ -86,6 +86,8 @@ def test_the_inspectors_round(station):
     assert driver.title.startswith(f"Batch {demo.batch_id}")
     wait_for_pictures(driver)
     driver.save_screenshot(str(shots / "2-batch.png"))
+    driver.execute_script("document.getElementById('stats-h').scrollIntoView()")
+    driver.save_screenshot(str(shots / "2b-batch-statistics.png"))
     assert unnamed_controls(driver) == []
     by_css(driver, 'a[aria-label^="only rejected"]').click()
     cards = all_css(driver, "li.card")
@@ -173,7 +175,7 @@ def test_wrong_passphrase_records_nothing_and_a_forged_post_is_refused(station):
     Select(by_css(driver, "#sign-key")).select_by_index(1)
     by_css(driver, "#sign-passphrase").send_keys("not the passphrase")
     by_css(driver, "#signoff button[type=submit]").click()
-    assert "passphrase is wrong" in by_css(driver, "p.error").text
+    assert "passphrase is wrong" in by_css(driver, "p.error[role=alert]").text
     assert by_css(driver, "#sign-passphrase").get_attribute("value") == ""  # never sent back
     driver.save_screenshot(str(shots / "7-wrong-passphrase.png"))
     status = driver.execute_async_script(
