@@ -335,3 +335,34 @@ def test_on_another_address_the_key_folder_is_not_offered(demo_archive, tmp_path
             files={"key_file": ("inspector.key", (demo.keys / "inspector.key").read_bytes())},
         )
     assert uploaded.status_code == 200 and "Recorded: disposition #1" in uploaded.text
+
+
+def test_the_review_command_serves_and_stops_on_ctrl_c(demo_archive):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    import urllib.request
+
+    from browser_helpers import free_port
+
+    port = free_port()
+    cmd = [sys.executable, "-m", "surfinspect", "review", "--archive", str(demo_archive.root), "--port", str(port)]
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env={**os.environ})
+    try:
+        deadline, page = time.monotonic() + 60, None
+        while page is None and time.monotonic() < deadline and proc.poll() is None:
+            try:
+                page = urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=5).read().decode()
+            except OSError:
+                time.sleep(0.2)
+        assert page is not None and demo_archive.batch_id in page
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.communicate()
+    assert proc.returncode == 0, err
+    assert f"http://127.0.0.1:{port}/" in out.decode()

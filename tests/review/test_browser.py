@@ -164,6 +164,26 @@ def test_keys_move_between_parts_and_zoom(station):
     assert float(viewer.get_attribute("data-scale")) != pytest.approx(before, rel=0.01)
 
 
+def test_wheel_zooms_at_the_pointer_and_drag_pans(station):
+    from selenium.webdriver.common.action_chains import ActionChains
+    from selenium.webdriver.common.actions.wheel_input import ScrollOrigin
+
+    demo, url, driver, _ = station
+    driver.get(f"{url}/batch/{demo.batch_id}/part/3")
+    viewer = by_css(driver, "#viewer")
+    fitted = float(viewer.get_attribute("data-scale"))
+    ActionChains(driver).scroll_from_origin(ScrollOrigin.from_element(viewer), 0, -120).perform()
+    assert float(viewer.get_attribute("data-scale")) == pytest.approx(fitted * 1.25, rel=0.01)
+    stage = by_css(driver, "#stage")
+    before = stage.value_of_css_property("transform")
+    ActionChains(driver).click_and_hold(viewer).move_by_offset(-80, -60).release().perform()
+    assert stage.value_of_css_property("transform") != before
+    # the part page's controls in Tab order: the zoom buttons come before the picture, the patches after
+    names = tab_order(driver, 12)
+    assert names.index("zoom in (key +)") < names.index("fit the picture (key 0)")
+    assert any(n.startswith("photo of lw-220-0004.png") for n in names)
+
+
 def test_wrong_passphrase_records_nothing_and_a_forged_post_is_refused(station):
     from selenium.webdriver.support.ui import Select
 
