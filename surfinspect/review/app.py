@@ -16,6 +16,7 @@ from pathlib import Path
 
 import jinja2
 from starlette.applications import Starlette
+from starlette.concurrency import run_in_threadpool
 from starlette.exceptions import HTTPException
 from starlette.middleware import Middleware
 from starlette.requests import Request
@@ -265,10 +266,12 @@ class _Views:
             raise
 
     async def disposition(self, request: Request) -> Response:
-        fields, upload = await self._checked_form(request)
-        from starlette.concurrency import run_in_threadpool
+        return await self._act(request, self._disposition)
 
-        return await run_in_threadpool(self._disposition, request, fields, upload)
+    async def _act(self, request: Request, do) -> Response:
+        """Check the form (CSRF, throttle), then do the act in a worker thread (it hashes, signs, renders)."""
+        fields, upload = await self._checked_form(request)
+        return await run_in_threadpool(do, request, fields, upload)
 
     def _disposition(self, request: Request, fields: dict, upload: bytes | None) -> Response:
         with self._open() as arc:
@@ -301,10 +304,7 @@ class _Views:
         return self.render(request, "part.html", context, status=400)
 
     async def signoff(self, request: Request) -> Response:
-        fields, upload = await self._checked_form(request)
-        from starlette.concurrency import run_in_threadpool
-
-        return await run_in_threadpool(self._signoff, request, fields, upload)
+        return await self._act(request, self._signoff)
 
     def _signoff(self, request: Request, fields: dict, upload: bytes | None) -> Response:
         with self._open() as arc:

@@ -58,6 +58,18 @@ def unnamed_controls(driver) -> list[str]:
     return out
 
 
+def fill_act(driver, choice: str, value: str, prefix: str, comment: str, passphrase: str) -> None:
+    """Fill a disposition or sign-off form as a person would (the folder key, typed passphrase) and send it."""
+    from selenium.webdriver.support.ui import Select
+
+    by_css(driver, f'input[name="{choice}"][value="{value}"]').click()
+    if comment:
+        by_css(driver, f"#{prefix}comment").send_keys(comment)
+    Select(by_css(driver, f"#{prefix}key")).select_by_index(1)
+    by_css(driver, f"#{prefix}passphrase").send_keys(passphrase)
+    by_css(driver, f"#{prefix}passphrase").submit()
+
+
 def tab_order(driver, steps: int) -> list[str]:
     """Accessible names of the first ``steps`` elements Tab reaches on a freshly loaded page."""
     from selenium.webdriver.common.action_chains import ActionChains
@@ -73,7 +85,6 @@ def tab_order(driver, steps: int) -> list[str]:
 
 def test_the_inspectors_round(station):
     from selenium.webdriver.common.action_chains import ActionChains
-    from selenium.webdriver.support.ui import Select
 
     demo, url, driver, shots = station
     driver.get(url + "/")
@@ -110,20 +121,12 @@ def test_the_inspectors_round(station):
     driver.save_screenshot(str(shots / "3-part-zoomed.png"))
     assert unnamed_controls(driver) == []
 
-    by_css(driver, 'input[name="decision"][value="rework"]').click()
-    by_css(driver, "#disp-comment").send_keys("grain 8 deg off over the whole face; rebrush")
-    Select(by_css(driver, "#disp-key")).select_by_index(1)
-    by_css(driver, "#disp-passphrase").send_keys(PASSPHRASE)
-    by_css(driver, "form.act button[type=submit]").click()
+    fill_act(driver, "decision", "rework", "disp-", "grain 8 deg off over the whole face; rebrush", PASSPHRASE)
     assert "Recorded: disposition #1, rework by R. OSTERMANN" in by_css(driver, ".notice").text
     driver.save_screenshot(str(shots / "4-part-disposed.png"))
 
     driver.get(f"{url}/batch/{demo.batch_id}")
-    by_css(driver, 'input[name="meaning"][value="withheld"]').click()
-    by_css(driver, "#sign-comment").send_keys("two rejects: rework ordered")
-    Select(by_css(driver, "#sign-key")).select_by_index(1)
-    by_css(driver, "#sign-passphrase").send_keys(PASSPHRASE)
-    by_css(driver, "#signoff button[type=submit]").click()
+    fill_act(driver, "meaning", "withheld", "sign-", "two rejects: rework ordered", PASSPHRASE)
     assert "Recorded: sign-off #1, withheld by R. OSTERMANN" in by_css(driver, ".notice").text
     driver.save_screenshot(str(shots / "5-batch-signed.png"))
     driver.get(url + "/")
@@ -185,16 +188,11 @@ def test_wheel_zooms_at_the_pointer_and_drag_pans(station):
 
 
 def test_wrong_passphrase_records_nothing_and_a_forged_post_is_refused(station):
-    from selenium.webdriver.support.ui import Select
-
     demo, url, driver, shots = station
     with store.Archive(demo.root) as arc:
         before = arc.chain_head()
     driver.get(f"{url}/batch/{demo.batch_id}")
-    by_css(driver, 'input[name="meaning"][value="released"]').click()
-    Select(by_css(driver, "#sign-key")).select_by_index(1)
-    by_css(driver, "#sign-passphrase").send_keys("not the passphrase")
-    by_css(driver, "#signoff button[type=submit]").click()
+    fill_act(driver, "meaning", "released", "sign-", "", "not the passphrase")
     assert "passphrase is wrong" in by_css(driver, "p.error[role=alert]").text
     assert by_css(driver, "#sign-passphrase").get_attribute("value") == ""  # never sent back
     driver.save_screenshot(str(shots / "7-wrong-passphrase.png"))
