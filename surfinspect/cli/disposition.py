@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures
-from ..archive import store as archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
-HELP = f"record a signed disposition ({', '.join(signatures.DECISIONS)}) of a rejected or doubtful part"
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
+
+HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a part judged reject or review, or not-inspected"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

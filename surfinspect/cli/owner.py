@@ -9,10 +9,12 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures
-from ..archive import store as archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
+
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
 
 HELP = "give an archive its owner once (the key that enrols and revokes signers)"
 

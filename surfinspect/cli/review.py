@@ -9,9 +9,11 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from ..archive import store as archive
+from .._lazy import module
 from ..errors import InputError
 from .console import Console
+
+archive = module("surfinspect.archive.store")
 
 HELP = "serve the review station: look at batches and parts in a browser, record dispositions, sign off"
 

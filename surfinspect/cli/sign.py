@@ -12,15 +12,17 @@ import argparse
 import shlex
 from pathlib import Path
 
-from ..archive import signatures
-from ..archive import store as archive
+from .._lazy import module
 from ..fsutil import write_bytes_atomic
-from ..station import batch
 from ._checks import check_output_file
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
-HELP = f"sign a finished batch off ({', '.join(signatures.MEANINGS)}) and store the signed report"
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
+batch = module("surfinspect.station.batch")
+
+HELP = "sign a finished batch off (released, withheld or examined) and store the signed report"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

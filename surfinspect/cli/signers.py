@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures, signing
-from ..archive import store as archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
+
+signatures = module("surfinspect.archive.signatures")
+signing = module("surfinspect.archive.signing")
+archive = module("surfinspect.archive.store")
 
 HELP = "enrol, revoke and list the keys that may sign in an archive"
 

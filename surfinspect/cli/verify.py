@@ -9,13 +9,15 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import legacy_v1
-from ..archive import store as archive
-from ..archive import verify as verifier
+from .._lazy import module
 from ..archive.backend import IndexBusy, IndexDamaged
 from ..errors import InputError
 from ..fsutil import check_output_file
 from .console import Console
+
+legacy_v1 = module("surfinspect.archive.legacy_v1")
+archive = module("surfinspect.archive.store")
+verifier = module("surfinspect.archive.verify")
 
 HELP = "check an archive's index, audit chain, signer register, signatures and files (exit 0 intact, 1 not)"
 

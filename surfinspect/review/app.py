@@ -50,6 +50,7 @@ def create_app(config: ReviewConfig, *, csrf_secret: bytes | None = None) -> Sta
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(HERE / "templates")), autoescape=True)
     templates = Jinja2Templates(env=env)
     templates.env.globals.update(looks=pages.VERDICT_LOOKS, verdicts=pages.VERDICTS, csrf_field=CSRF_FIELD)
+    templates.env.globals["needs_disposition"] = pages.NEEDS_DISPOSITION
     templates.env.globals.update(meanings=signatures.MEANINGS, decisions=signatures.DECISIONS, config=config)
     templates.env.globals["caution"] = CAUTION
     templates.env.filters["angle"] = lambda v: "-" if v is None else f"{v:.2f}°"

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from ..archive import store as archive
+from ..archive.records import ERROR_VERDICT, OLD_ERROR_VERDICT
 from ..errors import InputError
 from ..formatting import format_angle
 from ..qualify.spc import capability, individuals_chart
@@ -18,18 +19,25 @@ from ..report.scene import PALETTE, PART_LOOKS
 from ..results import PartVerdict
 from .svg import VERDICT_SHAPES, control_chart_svg, rose_svg
 
-VERDICTS = ("accept", "reject", "review", "error", "pending")
+VERDICTS = ("accept", "reject", "review", ERROR_VERDICT, "pending")
 #: Words and colours of the part verdicts: the report's own (colour and shape), plus error and pending.
 VERDICT_LOOKS: dict[str, dict[str, str]] = {
     **{
         v.value: {"word": word, "colour": "#%02x%02x%02x" % colour, "shape": shape}
         for v, (word, colour, shape) in PART_LOOKS.items()
     },
-    "error": {"word": "NOT INSPECTED", "colour": "#555555", "shape": "square"},
+    ERROR_VERDICT: {"word": "NOT INSPECTED", "colour": "#555555", "shape": "square"},
     "pending": {"word": "PENDING", "colour": "#999999", "shape": "ring"},
 }
 PATCH_COLOUR = "#%02x%02x%02x" % PALETTE["patch"]
-NEEDS_DISPOSITION = ("reject", "review", "error")
+NEEDS_DISPOSITION = ("reject", "review", ERROR_VERDICT)
+
+
+def verdict_of(part: archive.PartRow) -> str:
+    """The part's verdict word on the pages (older archives' word for a part not inspected read as today's)."""
+    if part.verdict == OLD_ERROR_VERDICT:
+        return ERROR_VERDICT
+    return part.verdict or "pending"
 
 
 @dataclass
@@ -159,7 +167,7 @@ def part_view(arc: archive.Archive, batch_id: str, position: int) -> PartView | 
     regions_rows = arc.regions(batch_id, row.part_key)
     devs = [abs(r["deviation_deg"]) for r in regions_rows if r.get("deviation_deg") is not None]
     own = [d for d in arc.dispositions(batch_id) if d.part_key == row.part_key]
-    card = PartCard(row, row.verdict or "pending", max(devs) if devs else None, regions_rows, own)
+    card = PartCard(row, verdict_of(row), max(devs) if devs else None, regions_rows, own)
     result = arc.read_result(card.row) if card.row.result_sha256 else {}
     regions, patches = [], []
     for reg in result.get("regions", []):

@@ -68,7 +68,7 @@ def rose_svg(bin_edges_deg: Sequence[float], weights: Sequence[float], *, expect
 
 
 #: Marks of the part verdicts in the charts (the same shapes as the report's badges).
-VERDICT_SHAPES = {"accept": "circle", "reject": "cross", "review": "triangle", "error": "square"}
+VERDICT_SHAPES = {"accept": "circle", "reject": "cross", "review": "triangle", "not-inspected": "square"}
 
 
 def mark(shape: str, x: float, y: float, s: float, css: str) -> str:

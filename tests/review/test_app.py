@@ -366,3 +366,24 @@ def test_the_review_command_serves_and_stops_on_ctrl_c(demo_archive):
             proc.communicate()
     assert proc.returncode == 0, err
     assert f"http://127.0.0.1:{port}/" in out.decode()
+
+
+def test_a_part_that_could_not_be_inspected_is_shown_and_can_be_disposed_of(tmp_path):
+    from review_helpers import ROOT
+
+    images = tmp_path / "in"
+    images.mkdir()
+    (images / "lw-220-0001.png").write_bytes((ROOT / "demo_parts" / "lw-220-0001.png").read_bytes())
+    (images / "lw-220-0009.png").write_bytes(b"\x89PNG\r\n\x1a\n not really a picture")
+    root = tmp_path / "archive"
+    recipe = str(ROOT / "recipes" / "lw-220-wall-panel.yaml")
+    assert run_cli(["-q", "batch", recipe, str(images), "--archive", str(root), "--batch-id", "B2", "--jobs", "1"]) == 3
+    with TestClient(create_app(ReviewConfig(root)), raise_server_exceptions=False) as c:
+        batch = c.get("/batch/B2")
+        assert batch.status_code == 200 and 'class="card card-not-inspected"' in batch.text
+        assert "NOT INSPECTED</span> 1" in c.get("/").text
+        with store.Archive(root) as arc:
+            pos = next(p.position for p in arc.parts("B2") if p.image_sha256 and p.overlay_sha256 is None)
+        part = c.get(f"/batch/B2/part/{pos}")
+        assert part.status_code == 200 and "could not be inspected" in part.text and "Record a disposition" in part.text
+        assert c.get(f"/batch/B2/part/{pos}/thumb.png").status_code == 404
