@@ -10,6 +10,7 @@ from starlette.testclient import TestClient
 
 from surfinspect.archive import store
 from surfinspect.review.app import ReviewConfig, create_app
+from surfinspect.review.pages import VERDICT_LOOKS
 from surfinspect.review.security import CSRF_FIELD, MAX_BODY_BYTES
 
 
@@ -42,7 +43,9 @@ def test_batches_page_lists_the_batch_with_counts_and_sign_off_state(ro, demo_ar
     assert demo_archive.batch_id in r.text and "lw-220-wall-panel rev 3" in r.text
     assert "not signed" in r.text
     # 2 accept, 2 reject, 1 review (the demo scenario; `surfinspect batch` printed the same)
-    assert re.search(r"ACCEPTED</span> 2", r.text) and re.search(r"REJECTED</span> 2", r.text)
+    words = {v: VERDICT_LOOKS[v]["word"] for v in ("accept", "reject", "review")}
+    assert f"{words['accept']}</span> 2" in r.text and f"{words['reject']}</span> 2" in r.text
+    assert f"{words['review']}</span> 1" in r.text
     assert r.headers["content-security-policy"].startswith("default-src 'self'")
 
 
@@ -381,7 +384,7 @@ def test_a_part_that_could_not_be_inspected_is_shown_and_can_be_disposed_of(tmp_
     with TestClient(create_app(ReviewConfig(root)), raise_server_exceptions=False) as c:
         batch = c.get("/batch/B2")
         assert batch.status_code == 200 and 'class="card card-not-inspected"' in batch.text
-        assert "NOT INSPECTED</span> 1" in c.get("/").text
+        assert f"{VERDICT_LOOKS['not-inspected']['word']}</span> 1" in c.get("/").text
         with store.Archive(root) as arc:
             pos = next(p.position for p in arc.parts("B2") if p.image_sha256 and p.overlay_sha256 is None)
         part = c.get(f"/batch/B2/part/{pos}")
