@@ -45,6 +45,7 @@ COMMANDS = (
     "target",
     "bias",
     "gauge",
+    "review",
 )
 
 
