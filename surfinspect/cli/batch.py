@@ -18,7 +18,7 @@ import threading
 from pathlib import Path
 from typing import Iterator
 
-from ..archive import store as archive
+from ..archive.location import open_archive
 from ..station import batch
 from ._keys import open_key
 from .console import Console
@@ -115,7 +115,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     config = batch.BatchConfig(
         recipe_path=Path(args.recipe),
         folder=Path(args.folder),
-        archive_dir=Path(args.archive),
+        archive_dir=args.archive,
         batch_id=args.batch_id,
         jobs=args.jobs,
         operator=args.operator,
@@ -157,7 +157,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         report = arc.batch(args.batch_id).report_sha256
         if report is None:
             return

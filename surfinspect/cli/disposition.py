@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from ..archive import signatures
-from ..archive import store as archive
+from ..archive.location import open_archive
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
@@ -22,7 +22,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         arc.part(args.batch_id, args.part)  # an unknown batch or part is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 
 from ..archive import signatures
-from ..archive import store as archive
+from ..archive.location import open_archive
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
@@ -27,7 +27,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     key = open_key(args.key, args.passphrase_env, "--key")
-    with archive.Archive(args.archive, create=True) as arc:
+    with open_archive(args.archive, create=True) as arc:
         row = signatures.init_owner(arc, key, args.name)
         archive_id = arc.archive_id
     console.info(f"archive {args.archive} (id {archive_id}): owner {row.printed_name}, key {row.key_fingerprint}")

@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 
 from ..archive import store as archive
+from ..archive.location import open_archive
 from ..errors import InputError
 from ..fsutil import ensure_output_dir
 from ..station import batch
@@ -40,7 +41,7 @@ def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
 def run(args: argparse.Namespace, console: Console) -> int:
     if args.out and args.batch_id is None:
         raise InputError("--out: needs --batch-id (the batch whose files to copy out)")
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         if args.batch_id is None:
             _show_batches(arc, console)
             return 0
@@ -71,7 +72,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
             ]
         )
     if not rows:
-        console.info(f"archive {arc.root}: no batches yet")
+        console.info(f"archive {arc.location}: no batches yet")
         return
     console.table(
         ["batch", "recipe", "started (UTC)", "parts", "accept", "reject", "review", "error", "state", "sign-off"], rows

@@ -13,7 +13,7 @@ import shlex
 from pathlib import Path
 
 from ..archive import signatures
-from ..archive import store as archive
+from ..archive.location import open_archive
 from ..fsutil import write_bytes_atomic
 from ..station import batch
 from ._checks import check_output_file
@@ -42,7 +42,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.out:
         check_output_file("--out", args.out, suffixes=(".pdf",), not_same_as=[("the --key file", args.key)])
         out = Path(args.out)
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

@@ -11,6 +11,7 @@ import argparse
 
 from ..archive import signatures, signing
 from ..archive import store as archive
+from ..archive.location import open_archive
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
@@ -39,7 +40,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         if args.action == "list":
             _list(arc, console)
             return 0
@@ -57,7 +58,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 def _list(arc: archive.Archive, console: Console) -> None:
     reg = arc.register()
     if reg.owner is None:
-        console.info(f"archive {arc.root}: no owner yet (surfinspect owner init); nothing can be signed in it")
+        console.info(f"archive {arc.location}: no owner yet (surfinspect owner init); nothing can be signed in it")
         return
     console.info(
         f"owner: {reg.owner.printed_name}, key {reg.owner.key_fingerprint} (since {reg.owner.enrolled_at_utc})"

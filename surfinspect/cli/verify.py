@@ -10,9 +10,9 @@ from __future__ import annotations
 import argparse
 
 from ..archive import legacy_v1
-from ..archive import store as archive
 from ..archive import verify as verifier
 from ..archive.backend import IndexBusy, IndexDamaged
+from ..archive.location import is_database_url, open_archive
 from ..errors import InputError
 from ..fsutil import check_output_file
 from .console import Console
@@ -38,7 +38,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     anchor = verifier.read_anchor(args.anchor) if args.anchor else None
-    first_format = legacy_v1.format_of(args.archive) == legacy_v1.FORMAT_1
+    first_format = not is_database_url(args.archive) and legacy_v1.format_of(args.archive) == legacy_v1.FORMAT_1
     if args.export_anchor:
         if first_format:
             raise InputError("--export-anchor: anchors are kept for archives of the current format only")
@@ -66,7 +66,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 def _record(args: argparse.Namespace, problems: list[str], console: Console) -> str:
     """Record the check in the audit trail, write the anchor when asked, and say who owns the archive."""
     try:
-        with archive.Archive(args.archive) as arc:
+        with open_archive(args.archive) as arc:
             arc.record_verification(args.batch_id, problems)
             events, head = arc.chain_head()
             owner = arc.register().owner

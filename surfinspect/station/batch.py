@@ -40,6 +40,7 @@ import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.location import open_archive, parse_location
 from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
@@ -94,7 +95,7 @@ CSV_COLUMNS = (
 class BatchConfig:
     recipe_path: Path
     folder: Path
-    archive_dir: Path
+    archive_dir: Path | str  # a folder or a postgresql:// URL (archive.location)
     batch_id: str
     jobs: int | None = None  # None: every core
     operator: str | None = None
@@ -254,12 +255,14 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
     archive_mod.check_batch_id(config.batch_id)
     recipe = load_recipe(config.recipe_path)
-    own_folders = [config.archive_dir] + ([config.out_dir] if config.out_dir is not None else [])
+    own_folders = [parse_location(config.archive_dir).objects_dir] + (
+        [config.out_dir] if config.out_dir is not None else []
+    )
     images = discover_images(config.folder, recursive=config.recursive, exclude=own_folders)
     # every output is checked before the first image is hashed or anything is recorded
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
-    with archive_mod.Archive(config.archive_dir, create=True) as arc:
+    with open_archive(config.archive_dir, create=True) as arc:
         if config.station_key is not None:  # refused before any work, not at the close
             arc.register().require_signer(
                 config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
