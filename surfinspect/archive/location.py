@@ -24,7 +24,15 @@ from urllib.parse import parse_qsl, urlencode, urlsplit, urlunsplit
 
 from ..errors import InputError
 
-__all__ = ["ArchiveLocation", "parse_location", "is_database_url", "check_folder", "open_archive", "URL_FORM"]
+__all__ = [
+    "ArchiveLocation",
+    "parse_location",
+    "is_database_url",
+    "check_folder",
+    "open_index",
+    "open_archive",
+    "URL_FORM",
+]
 
 URL_FORM = "postgresql://USER@HOST:PORT/DATABASE?objects=FOLDER"
 _SCHEMES = ("postgresql", "postgres")
@@ -92,6 +100,21 @@ def check_folder(root: Path, *, create: bool, has_backend: bool) -> None:
         if not create:
             raise InputError(f"{root}: not a surfinspect archive (no {INDEX_NAME}; run `surfinspect batch` first)")
         ensure_output_dir(root, "--archive")
+
+
+def open_index(where: ArchiveLocation):
+    """The index backend of a location, opened as it is (nothing made, nothing checked)."""
+    if where.is_database:
+        from .postgres_backend import PostgresBackend  # psycopg is loaded for a database archive only
+
+        return PostgresBackend(where.conninfo)
+    from .backend import IndexDamaged
+    from .sqlite_backend import INDEX_NAME, SQLiteBackend
+
+    try:
+        return SQLiteBackend(where.root)
+    except IndexDamaged as exc:
+        raise InputError(f"{where.root / INDEX_NAME}: cannot open the archive index ({exc})") from None
 
 
 def open_archive(text: str | os.PathLike, *, create: bool = False):

@@ -28,7 +28,7 @@ from ..fsutil import sha256_bytes
 from . import chain, signing
 from .backend import IndexBackend, IndexBusy, IndexDamaged
 from .chain import GENESIS_SHA256, EventKind
-from .location import check_folder, parse_location
+from .location import check_folder, open_index, parse_location
 from .objects import ObjectStore
 from .records import (
     ERROR_SCHEMA,
@@ -51,7 +51,7 @@ from .schema import (
     SignoffRow,
     row_type,
 )
-from .sqlite_backend import INDEX_NAME, SQLiteBackend
+from .sqlite_backend import INDEX_NAME
 
 __all__ = [
     "ARCHIVE_FORMAT",
@@ -90,19 +90,11 @@ class Archive:
         self.location = where.display  # for messages: the folder, or the database URL without a password
         self.root = where.root
         if where.is_database:
-            if backend is None:
-                from .postgres_backend import PostgresBackend  # psycopg is loaded for a database archive only
-
-                backend = PostgresBackend(where.conninfo)
             self.objects = ObjectStore.at(where.objects_dir)
         else:
             check_folder(self.root, create=create, has_backend=backend is not None)
             self.objects = ObjectStore(self.root)
-        if backend is None:
-            try:
-                backend = SQLiteBackend(self.root)
-            except IndexDamaged as exc:
-                raise InputError(f"{self.root / INDEX_NAME}: cannot open the archive index ({exc})") from None
+        backend = backend or open_index(where)
         self.index = backend
         try:
             existed = self.index.exists()

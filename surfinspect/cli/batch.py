@@ -29,7 +29,12 @@ HELP = "inspect every image in a folder (in parallel) into the archive, with rep
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="folder of images (PNG, TIFF, JPEG, BMP)")
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument(
         "--batch-id",
         required=True,

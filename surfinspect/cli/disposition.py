@@ -13,7 +13,12 @@ HELP = f"record a signed disposition ({', '.join(signatures.DECISIONS)}) of a re
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch")
     parser.add_argument("--part", required=True, metavar="PART", help="the part's key in the batch (its file name)")
     parser.add_argument("--decision", required=True, choices=signatures.DECISIONS, help="what becomes of the part")

@@ -31,6 +31,7 @@ COMMANDS = (
     "disposition",
     "verify",
     "show",
+    "archive",
     "target",
     "bias",
     "gauge",

@@ -21,7 +21,12 @@ HELP = "list the batches in an archive with their verdict counts and sign-offs; 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
     parser.add_argument(
         "--out",

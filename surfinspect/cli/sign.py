@@ -24,7 +24,12 @@ HELP = f"sign a finished batch off ({', '.join(signatures.MEANINGS)}) and store 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
     add_key_arguments(parser, "--key", "the signer's private key file (enrolled in the archive's register)")
     parser.add_argument(

@@ -21,7 +21,12 @@ HELP = "enrol, revoke and list the keys that may sign in an archive"
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     add = sub.add_parser("add", help="enrol a public key under a printed name and role")
-    add.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    add.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     add.add_argument("--pub", required=True, metavar="KEY.pub", help="the signer's public key file (from keygen)")
     add.add_argument("--name", required=True, metavar="PRINTED NAME", help="the name printed on what the key signs")
     add.add_argument(
@@ -29,14 +34,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     add_key_arguments(add, "--by", "the archive owner's private key file")
     revoke = sub.add_parser("revoke", help="withdraw an enrolled key from now on")
-    revoke.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    revoke.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     revoke.add_argument(
         "--key-fingerprint", required=True, metavar="HEX", help="the key's fingerprint (8 or more leading digits)"
     )
     revoke.add_argument("--reason", default="", metavar="TEXT", help="why the key is withdrawn (kept in the record)")
     add_key_arguments(revoke, "--by", "the archive owner's private key file")
     listing = sub.add_parser("list", help="list the owner and every enrolled key")
-    listing.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    listing.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
