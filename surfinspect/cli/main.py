@@ -32,6 +32,7 @@ COMMANDS = (
     "verify",
     "show",
     "archive",
+    "rejudge",
     "target",
     "bias",
     "gauge",
