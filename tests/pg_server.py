@@ -78,8 +78,12 @@ class PgServer:
         shutil.rmtree(self.folder, ignore_errors=True)
 
 
-def start_server() -> PgServer:
-    """Start a server; raises RuntimeError with the reason when it cannot (no binaries, no postgres user)."""
+def start_server(*, fsync: bool = False) -> PgServer:
+    """Start a server; raises RuntimeError with the reason when it cannot (no binaries, no postgres user).
+
+    ``fsync`` off (the default, for tests: a crash of the test server loses nothing of value) makes
+    commits cheaper than on a production server; benchmarks turn it on.
+    """
     bin_dir = find_bin_dir()
     if bin_dir is None:
         raise RuntimeError("PostgreSQL server binaries (initdb, pg_ctl) not found; apt-get install postgresql")
@@ -111,7 +115,8 @@ def start_server() -> PgServer:
             capture_output=True,
             timeout=START_TIMEOUT_S,
         )
-        options = f"-c listen_addresses=127.0.0.1 -p {port} -k {sock} -c fsync=off -c max_connections=60"
+        options = f"-c listen_addresses=127.0.0.1 -p {port} -k {sock} -c max_connections=60"
+        options += "" if fsync else " -c fsync=off"
         subprocess.run(
             [
                 *run_as,

@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Iterator
 
 from ..archive.location import open_archive
+from ..errors import InputError
 from ..station import batch
 from ._keys import open_key
 from .console import Console
@@ -42,6 +43,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="the batch id; run again with the same id to finish a stopped batch",
     )
     parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: every core)")
+    parser.add_argument(
+        "--scheduler",
+        metavar="tcp://HOST:PORT",
+        help="inspect on this Dask scheduler's workers instead (images are sent to them; the archive stays here)",
+    )
     parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
@@ -117,6 +123,8 @@ def _stop_signals_raise() -> Iterator[None]:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    if args.scheduler and args.jobs is not None:
+        raise InputError("--jobs: not with --scheduler (the cluster's workers are the parallelism)")
     config = batch.BatchConfig(
         recipe_path=Path(args.recipe),
         folder=Path(args.folder),
@@ -126,6 +134,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         operator=args.operator,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
+        scheduler=args.scheduler,
         station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
     progress = _Progress(console)

@@ -102,6 +102,7 @@ class BatchConfig:
     recursive: bool = False
     out_dir: Path | None = None
     station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
+    scheduler: str | None = None  # tcp://HOST:PORT: inspect on a Dask cluster's workers (station.cluster)
 
 
 @dataclass(frozen=True)
@@ -286,7 +287,15 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
                 recorder.error(key, hashed[key][1])
             else:
                 tasks.append((position, key))
-        interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
+        if tasks and config.scheduler:
+            from .cluster import inspect_on_cluster
+
+            names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
+            items = [(key, str(recorder.paths[key]), names[key]) for _, key in tasks]
+            inspect_on_cluster(config.scheduler, recipe, items, recorder.worker_output)
+            interruption = None
+        else:
+            interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
             batch = _finish(arc, config.batch_id, config.station_key)

@@ -164,26 +164,6 @@ def _run_local(tasks: Sequence[Task], recipe: Recipe, objects_dir: str, jobs: in
         return list(pool.map(_pool_part, tasks, [objects_dir] * len(tasks)))
 
 
-def _run_cluster(tasks: Sequence[Task], recipe: Recipe, objects_dir: str, scheduler: str) -> list[dict]:
-    try:
-        from distributed import Client
-    except ImportError:
-        raise InputError("--scheduler: needs Dask distributed (pip install 'surfinspect[cluster]')") from None
-    try:
-        client = Client(scheduler, timeout="15s")
-    except (OSError, TimeoutError) as exc:
-        raise InputError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
-    try:
-        shared = client.scatter(recipe, broadcast=True)
-        futures = [
-            client.submit(rejudge_part, t, shared, objects_dir, key=f"rejudge-{i}-{t.image_sha256}", pure=False)
-            for i, t in enumerate(tasks)
-        ]
-        return client.gather(futures)
-    finally:
-        client.close()
-
-
 # ----------------------------------------------------------------- outputs
 
 
@@ -253,7 +233,9 @@ def rejudge(config: RejudgeConfig) -> RejudgeOutcome:
     if not tasks:
         raise InputError(f"{location}: no inspected part in the batches chosen (--batch-id / --since)")
     if config.scheduler:
-        new = _run_cluster(tasks, recipe, objects_dir, config.scheduler)
+        from .cluster import map_on_cluster
+
+        new = map_on_cluster(config.scheduler, rejudge_part, tasks, recipe, objects_dir)
     else:
         new = _run_local(tasks, recipe, objects_dir, config.jobs)
     parts = tuple(

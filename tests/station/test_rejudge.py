@@ -42,6 +42,20 @@ def plant(tmp_path_factory):
     return root / "archive", tight
 
 
+@pytest.fixture(scope="module")
+def reference(plant, tmp_path_factory):
+    """The in-process re-judgement under revision 4 (``--jobs 1``) every other way of running is compared to."""
+    root, tight = plant
+    out = tmp_path_factory.mktemp("reference")
+    code = main(["-q", "rejudge", "--archive", str(root), "--recipe", str(tight), "--jobs", "1", "--out", str(out)])
+    return out, code
+
+
+def _same_as(reference, out) -> None:
+    for name in ("rejudge.json", "rejudge.csv"):
+        assert (reference[0] / name).read_bytes() == (out / name).read_bytes(), name
+
+
 def _snapshot(location):
     with arc.Archive(location) as a:
         return {t.name: a.index.select(t.name, order_by=t.primary_key) for t in TABLES}
@@ -65,10 +79,8 @@ def test_the_recorded_recipe_reproduces_every_recorded_result(plant, tmp_path):
     assert _snapshot(root) == before  # nothing in the archive changed, not even an event
 
 
-def test_a_tighter_tolerance_lists_the_parts_that_now_fail(plant, tmp_path, capsys):
-    root, tight = plant
-    out = tmp_path / "out"
-    code = main(["rejudge", "--archive", str(root), "--recipe", str(tight), "--jobs", "1", "--out", str(out)])
+def test_a_tighter_tolerance_lists_the_parts_that_now_fail(reference):
+    out, code = reference
     assert code == 1  # rejected parts under the new recipe
     doc = json.loads((out / "rejudge.json").read_text())
     changed = [(p["batch_id"], p["part_key"]) for p in doc["parts"] if p["changed"]]
@@ -85,7 +97,7 @@ def test_a_tighter_tolerance_lists_the_parts_that_now_fail(plant, tmp_path, caps
 def test_batches_are_chosen_by_id_and_date(plant, tmp_path, capsys):
     outcome = _run(plant, tmp_path / "one", batch_ids=(BATCHES[1],), jobs=1)
     assert {p["batch_id"] for p in outcome.parts} == {BATCHES[1]}
-    assert _run(plant, tmp_path / "late", since="2000-01-01", jobs=1).parts
+    assert _run(plant, tmp_path / "late", batch_ids=(BATCHES[2],), since="2000-01-01", jobs=1).parts
     root, tight = plant
     argv = ["rejudge", "--archive", str(root), "--recipe", str(tight), "--out", str(tmp_path / "x")]
     assert main([*argv, "--since", "2999-01-01"]) == 2
@@ -97,11 +109,9 @@ def test_batches_are_chosen_by_id_and_date(plant, tmp_path, capsys):
     assert not (tmp_path / "x" / "rejudge.json").exists()
 
 
-def test_two_local_processes_give_the_in_process_result(plant, tmp_path):
-    _run(plant, tmp_path / "j1", jobs=1)
+def test_two_local_processes_give_the_in_process_result(plant, reference, tmp_path):
     _run(plant, tmp_path / "j2", jobs=2)
-    for name in ("rejudge.json", "rejudge.csv"):
-        assert (tmp_path / "j1" / name).read_bytes() == (tmp_path / "j2" / name).read_bytes()
+    _same_as(reference, tmp_path / "j2")
 
 
 # ---------------------------------------------------------------------------- on a cluster
@@ -119,18 +129,15 @@ def cluster():
 
 
 @pytest.mark.cluster
-def test_a_cluster_gives_the_in_process_result(plant, tmp_path, cluster):
-    _run(plant, tmp_path / "local", jobs=1)
+def test_a_cluster_gives_the_in_process_result(plant, reference, tmp_path, cluster):
     _run(plant, tmp_path / "dask", scheduler=cluster.scheduler_address)
-    for name in ("rejudge.json", "rejudge.csv"):
-        assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()
+    _same_as(reference, tmp_path / "dask")
 
 
 @pytest.mark.cluster
-def test_a_worker_killed_mid_run_loses_nothing(plant, tmp_path, cluster):
+def test_a_worker_killed_mid_run_loses_nothing(plant, reference, tmp_path, cluster):
     from distributed import Client
 
-    _run(plant, tmp_path / "local", jobs=1)
     done: dict = {}
 
     def go():
@@ -154,5 +161,19 @@ def test_a_worker_killed_mid_run_loses_nothing(plant, tmp_path, cluster):
         assert pids[busy[0]] not in watch.run(os.getpid).values()  # the killed worker is gone (its nanny restarts one)
     assert "error" not in done, done.get("error")
     assert len(done["outcome"].parts) == 15
-    for name in ("rejudge.json", "rejudge.csv"):
-        assert (tmp_path / "local" / name).read_bytes() == (tmp_path / "dask" / name).read_bytes()
+    _same_as(reference, tmp_path / "dask")
+
+
+@pytest.mark.cluster
+def test_a_batch_on_the_cluster_records_what_a_local_batch_records(plant, tmp_path, cluster):
+    local = plant[0]  # the plant's batches were run on a local process pool
+    folder = local.parent / "in0"
+    argv = ["-q", "batch", str(RECIPE), str(folder), "--batch-id", BATCHES[0]]
+    assert main([*argv, "--archive", str(tmp_path / "dask"), "--scheduler", cluster.scheduler_address]) == 1
+    with arc.Archive(local) as a, arc.Archive(tmp_path / "dask") as b:
+        for p, q in zip(a.parts(BATCHES[0]), b.parts(BATCHES[0]), strict=True):
+            assert (p.part_key, p.verdict, p.image_sha256) == (q.part_key, q.verdict, q.image_sha256)
+            old, new = a.read_result(p), b.read_result(q)
+            old.pop("inspected_at"), new.pop("inspected_at")
+            assert old == new  # the same result, the station's image path included
+    assert main(["-q", "verify", "--archive", str(tmp_path / "dask")]) == 0
