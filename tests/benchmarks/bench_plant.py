@@ -23,6 +23,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parent))
+sys.path.insert(0, str(HERE.parent / "archive"))
 
 from bench_batch import RECIPE, make_panels  # noqa: E402
 from pg_server import start_server  # noqa: E402
@@ -37,6 +38,32 @@ def timed_batch(folder: Path, archive: str, jobs: int) -> float:
         batch.BatchConfig(recipe_path=RECIPE, folder=folder, archive_dir=archive, batch_id="bench", jobs=jobs)
     )
     assert outcome.finished and len(outcome.parts) == len(list(folder.iterdir()))
+    return time.perf_counter() - start
+
+
+def timed_recording(location: str, images: list[Path], recipe: Path) -> float:
+    """The index's share alone: plan a batch and record hand-made results for every image (no inspection)."""
+    import hashlib
+
+    from archive_helpers import region, result_json
+
+    from surfinspect import results
+    from surfinspect.archive import store as arc
+
+    recipe_sha = hashlib.sha256(recipe.read_bytes()).hexdigest()
+    bodies = [result_json(p, recipe_sha, [region("face", results.RegionVerdict.PASS, 90.1)]) for p in images]
+    start = time.perf_counter()
+    with arc.Archive(location, create=True) as a:
+        a.start_batch(
+            "rec",
+            recipe_name="lw-220-wall-panel",
+            recipe_revision=3,
+            recipe_path=recipe,
+            recipe_sha256=recipe_sha,
+            parts=[(p.name, hashlib.sha256(p.read_bytes()).hexdigest()) for p in images],
+        )
+        for p, body in zip(images, bodies):
+            a.record_part("rec", p.name, result_json=body, image_path=p, overlay_png=b"png")
     return time.perf_counter() - start
 
 
@@ -59,6 +86,10 @@ def main() -> None:
             make_panels(folder, args.parts)
             url = server.archive_url(server.create_database(), tmp / "pg-objects")
             print(f"{args.parts} panels, recipe {RECIPE.name}, --jobs {args.jobs}")
+            images = sorted(folder.iterdir())
+            r_sqlite = timed_recording(str(tmp / "rec-sqlite"), images, RECIPE)
+            r_pg = timed_recording(server.archive_url(server.create_database(), tmp / "rec-pg"), images, RECIPE)
+            print(f"recording only (no inspection): SQLite {r_sqlite:5.2f} s, PostgreSQL {r_pg:5.2f} s")
             # interleaved (SQLite, PostgreSQL, PostgreSQL, SQLite) so that a load change on a shared machine
             # weighs on both alike; each run is a new batch into a new archive
             second = server.archive_url(server.create_database(), tmp / "pg-objects-2")
