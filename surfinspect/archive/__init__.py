@@ -5,8 +5,9 @@ no report, no station).
 Modules, one concern each: ``schema`` (tables and row types), ``backend`` (the index interface),
 ``sqlite_backend`` (SQLite behind it), ``objects`` (files by content hash), ``chain`` (canonical
 serialisation, event hashes, row replay), ``register`` (who may sign), ``records`` (plain records and ids), ``store`` (the Archive),
-``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``checks``, ``signed_checks``
-and ``verify`` (the verifier and anchors).
+``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``certificates`` and ``pki``
+(X.509 for the owner and signers, stored with the register), ``pdf_signature`` (PAdES signing and
+validation), ``checks``, ``signed_checks``, ``pdf_checks`` and ``verify`` (the verifier and anchors).
 """
 
 from .._lazy import attach
@@ -49,6 +50,9 @@ __getattr__, __dir__, __all__ = attach(
             "sign_batch",
             "record_disposition",
         ),
+        "certificates": ("owner_certificate", "signer_certificate", "load_certificate", "certificate_sha256"),
+        "pki": ("owner_certificate_of", "certificate_of"),
+        "pdf_signature": ("PdfSignatureCheck", "sign_pdf", "pdf_signatures"),
         "verify": ("VerifyReport", "verify", "verify_archive", "export_anchor", "read_anchor"),
     },
 )

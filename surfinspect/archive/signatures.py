@@ -29,7 +29,9 @@ from typing import Callable
 from ..errors import InputError
 from ..fsutil import sha256_bytes
 from ..results import SIGNOFF_MEANINGS, SignOff
-from . import chain, signing
+from . import chain, pki, signing
+from .certificates import certificate_der, owner_certificate
+from .pdf_signature import sign_pdf, signature_reason
 from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 from .register import OWNER_ROLE, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
@@ -73,7 +75,11 @@ def _require_intact(archive: Archive, what: str, batch_id: str | None = None) ->
 # ------------------------------------------------------------------ register
 
 
-def _register_entry(archive, owner_key, *, action, subject_fp, subject_pub, name, role, reason) -> RegisterRow:
+def _register_entry(
+    archive, owner_key, *, action, subject_fp, subject_pub, name, role, reason, certify=None
+) -> RegisterRow:
+    """Sign and store one register entry; ``certify(entry_no, recorded_at_utc)`` gives the certificates
+    (:mod:`.pki`) stored with it."""
     register = archive.register()
     events, head = archive.chain_head()
     at = utc_now()
@@ -96,7 +102,8 @@ def _register_entry(archive, owner_key, *, action, subject_fp, subject_pub, name
     row = RegisterRow(
         **columns, record_json=chain.canonical_bytes(record).decode("utf-8"), signature_hex=signature.hex()
     )
-    archive.add_register_entry(row, owner_key, (events, head))
+    issued = certify(record["entry_no"], at) if certify else []
+    archive.add_register_entry(row, owner_key, (events, head), certificates_der=[certificate_der(c) for c in issued])
     return row
 
 
@@ -120,7 +127,25 @@ def init_owner(archive: Archive, owner_key: signing.SigningKey, printed_name: st
         name=name,
         role=OWNER_ROLE,
         reason="",
+        certify=lambda entry_no, at: [
+            owner_certificate(
+                owner_key.private_key,
+                printed_name=name,
+                archive_id=archive.archive_id,
+                entry_no=entry_no,
+                issued_at=pki.utc(at),
+            )
+        ],
     )
+
+
+def _owner_certificates(archive, owner_key) -> tuple:
+    """The owner's certificate, and a list with it when it must still be stored (an owner set before certificates)."""
+    stored = pki.owner_certificate_of(archive)
+    if stored is not None:
+        return stored, []
+    made = pki.owner_certificate_for(owner_key.private_key, archive.register().owner, archive.archive_id)
+    return made, [made]
 
 
 def enrol_signer(
@@ -154,7 +179,24 @@ def enrol_signer(
         name=name,
         role=role,
         reason="",
+        certify=lambda entry_no, at: _issue(archive, owner_key, public.public_key_raw, name, role, entry_no, at),
     )
+
+
+def _issue(archive, owner_key, public_key_raw: bytes, name: str, role: str, entry_no: int, at: str) -> list:
+    """The enrolled key's certificate (and the owner's, when it is not stored yet), issued by the owner."""
+    owner_cert, missing = _owner_certificates(archive, owner_key)
+    signer_cert = pki.signer_certificate_for(
+        owner_key.private_key,
+        owner_cert,
+        public_key_raw,
+        printed_name=name,
+        role=role,
+        archive_id=archive.archive_id,
+        entry_no=entry_no,
+        recorded_at_utc=at,
+    )
+    return missing + [signer_cert]
 
 
 def revoke_signer(archive: Archive, owner_key: signing.SigningKey, fingerprint: str, reason: str) -> RegisterRow:
@@ -256,7 +298,7 @@ def sign_batch(
         report_sha256=batch.report_sha256,
         chain_head=f"{events} {head}",
     )
-    edition = render_edition(signoff)
+    edition = _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff)
     row = SignoffRow(
         batch_id=batch_id,
         signoff_no=number,
@@ -271,6 +313,34 @@ def sign_batch(
         signed_report_sha256=sha256_bytes(edition),
     )
     return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
+
+
+def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff) -> bytes:
+    """The signed edition with its PDF signature (:mod:`.pdf_signature`): sign-off 1 signs the report rendered
+    with its sign-off block; each later one is an incremental update of the edition before it, so that every
+    earlier PDF signature stays valid."""
+    register = archive.register()
+    owner_cert = pki.owner_certificate_of(archive, register)
+    cert = pki.certificate_of(archive, key.fingerprint, register)
+    if owner_cert is None or cert is None:
+        raise InputError(
+            f"--key: the register holds no certificate for this key ({key.fingerprint[:16]}…): it was enrolled "
+            "before signers got certificates; the owner revokes it and enrols a new key for the PDF signature"
+        )
+    if number == 1:
+        base = render_edition(signoff)
+    else:
+        previous = archive.signoffs(batch_id)[number - 2]
+        base = archive.read_object(previous.signed_report_sha256)
+    return sign_pdf(
+        base,
+        key.private_key,
+        cert,
+        owner_cert,
+        field_name=f"signoff-{number}",
+        reason=signature_reason(record["meaning"], record["comment"]),
+        signed_at=pki.utc(record["signed_at_utc"]),
+    )
 
 
 def record_disposition(

@@ -510,15 +510,22 @@ class Archive:
     # -- signed records
 
     def add_register_entry(
-        self, row: RegisterRow, owner_key: signing.SigningKey, expected_head: tuple[int, str]
+        self,
+        row: RegisterRow,
+        owner_key: signing.SigningKey,
+        expected_head: tuple[int, str],
+        *,
+        certificates_der: Sequence[bytes] = (),
     ) -> None:
-        """Store a register entry the owner signed, and the owner's signature over the new chain head."""
+        """Store a register entry the owner signed, the certificates issued with it, and the owner's
+        signature over the new chain head."""
+        stored = [(self.objects.put_bytes(der), len(der)) for der in certificates_der]
         with self._write():
             self._require_head(expected_head, exact=True)
+            rows = [r for sha, size in stored for r in self._catalogue(sha, size, "application/pkix-cert")]
             self.index.insert("register", row.__dict__)
-            self._append_event(
-                EventKind.REGISTER_ENTRY, None, None, {"entry_no": row.entry_no}, [("register", row.__dict__)]
-            )
+            rows.append(("register", row.__dict__))
+            self._append_event(EventKind.REGISTER_ENTRY, None, None, {"entry_no": row.entry_no}, rows)
             self._sign_head(owner_key)
 
     def add_signoff(

@@ -30,7 +30,7 @@ from typing import Any, Callable
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
-from . import checks, legacy_v1, signed_checks
+from . import checks, legacy_v1, pdf_checks, signed_checks
 from .backend import IndexBusy, IndexDamaged
 from .checks import Context
 from .location import ArchiveLocation, parse_location
@@ -52,6 +52,7 @@ CHECKS: tuple[tuple[str, Callable[[Context], None]], ...] = (
     ("results against the index", checks.check_results),
     ("sign-offs", signed_checks.check_signoffs),
     ("dispositions", signed_checks.check_dispositions),
+    ("PDF signatures of the signed editions", pdf_checks.check_pdf_signatures),
 )
 
 

@@ -26,6 +26,7 @@ COMMANDS = (
     "batch",
     "keygen",
     "owner",
+    "owner-certificate",
     "signers",
     "sign",
     "disposition",
@@ -57,10 +58,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in COMMANDS:
+        module_name = name.replace("-", "_")  # owner-certificate lives in owner_certificate.py
         try:
-            module = importlib.import_module(f".{name}", __package__)
+            module = importlib.import_module(f".{module_name}", __package__)
         except ModuleNotFoundError as exc:
-            if exc.name == f"{__package__}.{name}":
+            if exc.name == f"{__package__}.{module_name}":
                 continue  # command not built yet
             raise
         p = sub.add_parser(name, help=module.HELP, description=module.HELP, parents=[common])

@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+import io
 import math
 from pathlib import Path
 from typing import Sequence
 
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.units import mm
-from reportlab.pdfgen import canvas
 
 from .._version import __version__
 from ..errors import InputError
-from ..fsutil import atomic_path
+from ..fsutil import write_bytes_atomic
+from ..pdfa.document import DocumentInfo, archival_canvas, finish_archival
+from ..pdfa.fonts import SANS, SANS_BOLD
 from .targets import (
     A4_MM,
     FIDUCIAL_ARM_MM,
@@ -60,32 +62,34 @@ def write_target_pdf(
         raise InputError(f"grating kind: unknown (got {kind!r}, allowed {', '.join(GRATING_KINDS)})")
     sheets = layout_targets(lays_deg, size_mm)
     raster_period_px = _check_printable(sheets, kind, period_mm, raster_dpi)
-    with atomic_path(path) as tmp:
-        c = canvas.Canvas(str(tmp), pagesize=A4, pageCompression=1)
-        c.setTitle(
-            "surfinspect lay targets " + ", ".join(_label(g.lay_deg) for sheet in sheets for g in sheet.gratings)
+    info = DocumentInfo(
+        title="surfinspect lay targets " + ", ".join(_label(g.lay_deg) for sheet in sheets for g in sheet.gratings),
+        subject=f"{kind} gratings, period {period_mm:g} mm, {size_mm[0]:g} x {size_mm[1]:g} mm",
+        author=f"surfinspect {__version__}",
+    )
+    buf = io.BytesIO()
+    c = archival_canvas(buf, info)
+    for page_no, sheet in enumerate(sheets, 1):
+        _page_header(c, kind, period_mm)
+        _scale_bar(c)
+        for g in sheet.gratings:
+            if kind == "sine":
+                _draw_sine_raster(c, g, raster_period_px, raster_dpi)
+            else:
+                gx, gy, gw, gh = g.rect_mm
+                _draw_square_stripes(c, (_x(gx), _y(gy + gh), _x(gw), _x(gh)), g.lay_deg, _x(period_mm))
+            _fiducials_and_label(c, g)
+        c.setFont(SANS, 7)
+        c.drawString(
+            _x(MARGIN_MM),
+            _x(8),
+            f"surfinspect {__version__}  |  grating {size_mm[0]:g} x {size_mm[1]:g} mm"
+            + (f"  |  raster {raster_dpi:g} dpi" if kind == "sine" else "  |  vector stripes")
+            + f"  |  page {page_no} of {len(sheets)}",
         )
-        c.setAuthor(f"surfinspect {__version__}")
-        for page_no, sheet in enumerate(sheets, 1):
-            _page_header(c, kind, period_mm)
-            _scale_bar(c)
-            for g in sheet.gratings:
-                if kind == "sine":
-                    _draw_sine_raster(c, g, raster_period_px, raster_dpi)
-                else:
-                    gx, gy, gw, gh = g.rect_mm
-                    _draw_square_stripes(c, (_x(gx), _y(gy + gh), _x(gw), _x(gh)), g.lay_deg, _x(period_mm))
-                _fiducials_and_label(c, g)
-            c.setFont("Helvetica", 7)
-            c.drawString(
-                _x(MARGIN_MM),
-                _x(8),
-                f"surfinspect {__version__}  |  grating {size_mm[0]:g} x {size_mm[1]:g} mm"
-                + (f"  |  raster {raster_dpi:g} dpi" if kind == "sine" else "  |  vector stripes")
-                + f"  |  page {page_no} of {len(sheets)}",
-            )
-            c.showPage()
-        c.save()
+        c.showPage()
+    c.save()
+    write_bytes_atomic(path, finish_archival(buf.getvalue(), info))
     return sheets
 
 
@@ -119,9 +123,9 @@ def _check_printable(sheets: Sequence[TargetSheet], kind: str, period_mm: float,
 def _page_header(c, kind: str, period_mm: float) -> None:
     """The sheet's title and the printing instruction along its top margin."""
     c.setFillColorRGB(0, 0, 0)
-    c.setFont("Helvetica-Bold", 10)
+    c.setFont(SANS_BOLD, 10)
     c.drawString(_x(MARGIN_MM), _y(MARGIN_MM) - 8, f"Lay reference targets: {kind} gratings, period {period_mm:g} mm")
-    c.setFont("Helvetica", 7.5)
+    c.setFont(SANS, 7.5)
     c.drawRightString(
         _x(A4_MM[0] - MARGIN_MM),
         _y(MARGIN_MM) - 8,
@@ -166,7 +170,7 @@ def _fiducials_and_label(c, g: PlacedGrating) -> None:
         c.line(_x(fx), _y(fy - FIDUCIAL_ARM_MM), _x(fx), _y(fy + FIDUCIAL_ARM_MM))
     label_y = _y(gy + gh + FIDUCIAL_OFFSET_MM + 5.5)
     c.setFillColorRGB(0, 0, 0)
-    c.setFont("Helvetica-Bold", 10)
+    c.setFont(SANS_BOLD, 10)
     c.drawString(_x(gx), label_y, f"lay {_label(g.lay_deg)}")
     t = math.radians(g.lay_deg)
     cx, cy, half = _x(gx + _stroke_offset_mm(gw)), label_y + 3.5, _x(3.0)

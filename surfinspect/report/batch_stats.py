@@ -11,6 +11,7 @@ from reportlab.platypus import Paragraph, Table
 
 from ..errors import InputError
 from ..formatting import ANGLE_DECIMALS, format_angle, format_fixed, format_signed_angle
+from ..pdfa.fonts import SANS_BOLD
 from ..qualify.spc import Capability, IndividualsChart, capability, individuals_chart
 from ..results import (
     PartResult,
@@ -171,7 +172,7 @@ def _layout_batch_stats(
     layout: _Layout, parts: Sequence[PartResult], stats: Sequence[_RegionStats], page_of: Mapping[int, int]
 ) -> None:
     layout.new_page()
-    layout.block(20, lambda c, y: (c.setFont("Helvetica-Bold", 14), c.drawString(_MARGIN, y - 14, "Batch statistics")))
+    layout.block(20, lambda c, y: (c.setFont(SANS_BOLD, 14), c.drawString(_MARGIN, y - 14, "Batch statistics")))
     layout.text(
         "Individuals (X) and moving-range (MR) charts per recipe region over the parts in production order; "
         "# is the part's number in that order, as in the summary. A moving range sits at the later of its two parts. "

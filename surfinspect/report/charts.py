@@ -10,6 +10,7 @@ from reportlab.lib import colors
 from reportlab.pdfgen.canvas import Canvas
 
 from ..formatting import format_fixed
+from ..pdfa.fonts import SANS, SANS_BOLD
 from .layout import _MARGIN, _rl
 from .scene import PALETTE
 
@@ -44,12 +45,12 @@ def _chart(
     ax = _ChartAxes.fit(x, y_top, w, h, vals, [v for _, v in lines] + list(spec or ()), lower_zero, len(vals))
     c.saveState()
     c.setFillColor(colors.black)
-    c.setFont("Helvetica-Bold", 7.5)
+    c.setFont(SANS_BOLD, 7.5)
     c.drawString(x, y_top - 8, title)
     c.setStrokeColor(colors.black)
     c.setLineWidth(0.5)
     c.rect(ax.left, ax.bottom, ax.width, ax.height, stroke=1, fill=0)
-    c.setFont("Helvetica", 6)
+    c.setFont(SANS, 6)
     _limit_lines(c, ax, lines, spec, unit, decimals, lower_zero)
     _points(c, ax, vals, set(flagged), set(beyond))
     c.restoreState()
@@ -132,10 +133,10 @@ def _points(c: Canvas, ax: _ChartAxes, vals: np.ndarray, flagged: set[int], beyo
         _point_mark(c, x_i, y_i, flagged=i in flagged, beyond=i in beyond)
         if i in flagged or i in beyond:
             c.setFillColor(colors.black)
-            c.setFont("Helvetica-Bold", 6)
+            c.setFont(SANS_BOLD, 6)
             above = y_i + 4.5 <= ax.bottom + ax.height - 6
             c.drawCentredString(x_i, y_i + 4.5 if above else y_i - 9.5, f"#{i + 1}")
-            c.setFont("Helvetica", 6)
+            c.setFont(SANS, 6)
 
 
 def _point_mark(c: Canvas, x: float, y: float, *, flagged: bool, beyond: bool) -> None:
@@ -160,7 +161,7 @@ def _point_mark(c: Canvas, x: float, y: float, *, flagged: bool, beyond: bool) -
 def _chart_key(c: Canvas, y: float) -> None:
     """The marks of the control charts, drawn as they appear."""
     c.saveState()
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     x = _MARGIN
     c.setFillColor(colors.white)
     c.setStrokeColor(colors.black)

@@ -2,14 +2,17 @@
 
 from __future__ import annotations
 
+import io
 import math
 import os
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Sequence
 
+from .. import fsutil
 from .._version import __version__
-from ..fsutil import atomic_path
+from ..pdfa.document import DocumentInfo, archival_canvas, finish_archival
+from ..pdfa.fonts import SANS, SANS_BOLD, SANS_OBLIQUE
 from ..qualify.gauge import D4_BY_SUBGROUP, GaugeStudy, GaugeVerdict
 from ..qualify.gauge_forms import ANOVA_HEADER, COMPONENT_HEADER, anova_text_rows, component_text_rows
 from ..results import CAUTION
@@ -32,7 +35,7 @@ def _draw_table(
 ) -> float:
     """Draw a ruled text table with its top-left at (x, y) in points; return the y below it."""
     line_h = 12.0
-    c.setFont("Helvetica-Bold", 8)
+    c.setFont(SANS_BOLD, 8)
     cx = x
     for text, w in zip(header, widths):
         if cx == x:
@@ -43,7 +46,7 @@ def _draw_table(
     c.setLineWidth(0.6)
     c.setStrokeColorRGB(*_INK)
     c.line(x, y - line_h, x + sum(widths), y - line_h)
-    c.setFont("Helvetica", 8)
+    c.setFont(SANS, 8)
     yy = y - line_h
     for row in rows:
         cx = x
@@ -99,11 +102,11 @@ def _draw_axes(c, box, lo: float, hi: float, title: str, ylabel: str) -> tuple[f
     x0, y0, w, h = box
     pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
     lo, hi = lo - pad, hi + pad
-    c.setFont("Helvetica-Bold", 8.5)
+    c.setFont(SANS_BOLD, 8.5)
     c.setFillColorRGB(*_INK)
     c.drawString(x0, y0 + h + 5, title)
     c.setLineWidth(0.3)
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     for t in _nice_ticks(lo, hi):
         ty = y0 + (t - lo) / (hi - lo) * h
         c.setStrokeColorRGB(*_GRID)
@@ -132,7 +135,7 @@ def _draw_range_chart(c, study: GaugeStudy, box) -> None:
     n_parts, n_app = ranges.shape
     panel_w = w / n_app
     scale = lambda v: y0 + (v - lo) / (hi - lo) * h  # noqa: E731
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     for j, appraiser in enumerate(study.appraisers):
         px0 = x0 + j * panel_w
         if j:
@@ -174,7 +177,7 @@ def _draw_means_chart(c, study: GaugeStudy, box) -> None:
     n_parts, n_app = means.shape
     xs = [x0 + w * (i + 0.5) / n_parts for i in range(n_parts)]
     scale = lambda v: y0 + (v - lo) / (hi - lo) * h  # noqa: E731
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     c.setFillColorRGB(*_INK)
     for i, part in enumerate(_short_labels(study.parts)):
         c.drawCentredString(xs[i], y0 - 9, part)
@@ -204,54 +207,65 @@ def _draw_means_chart(c, study: GaugeStudy, box) -> None:
     c.setFillColorRGB(*_INK)
 
 
-def write_gauge_pdf(study: GaugeStudy, path: str | Path, *, title: str = "Gauge R&R study (ANOVA method)") -> None:
-    """Write the one-page PDF of a gauge study (atomically).
+def write_gauge_pdf(
+    study: GaugeStudy,
+    path: str | Path,
+    *,
+    title: str = "Gauge R&R study (ANOVA method)",
+    generated_at: datetime | None = None,
+) -> None:
+    """Write the one-page PDF of a gauge study (atomically), PDF/A-2b (:mod:`surfinspect.pdfa`).
 
     The page holds the ANOVA table of the model used (and the table with the
     interaction when that was pooled), the variance components, the verdict
     with its reasons, the range chart by appraiser and the chart of means by
-    part and appraiser, drawn as vector graphics.
+    part and appraiser, drawn as vector graphics. ``generated_at`` (default
+    now, naive taken as UTC) is printed and dated into the document: with the
+    same study and time, the same bytes.
     """
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.units import mm
-    from reportlab.pdfgen import canvas
 
+    when = generated_at or datetime.now(timezone.utc)
+    when = (when if when.tzinfo else when.replace(tzinfo=timezone.utc)).astimezone(timezone.utc)
     page_w, page_h = A4
     left = 18 * mm
-    with atomic_path(path) as tmp:
-        c = canvas.Canvas(str(tmp), pagesize=A4, pageCompression=1)
-        c.setTitle(title)
-        c.setAuthor(f"surfinspect {__version__}")
-        y = _study_head(c, study, title, left, page_h - 18 * mm)
-        y = _verdict_box(c, study, left, y - 26, page_w - 2 * left)
-        y = _study_tables(c, study, left, y)
-        chart_h = min(120.0, (y - 34 * mm) / 2 - 30)
-        chart_w = page_w - 2 * left - 95
-        _draw_range_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
-        y -= chart_h + 40
-        _draw_means_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
-        c.setFont("Helvetica-Oblique", 7.5)
-        c.setFillColorRGB(*_INK)
-        c.drawString(left, 14 * mm, CAUTION)
-        c.setFont("Helvetica", 7)
-        c.drawRightString(page_w - left, 10 * mm, f"surfinspect {__version__}")
-        c.showPage()
-        c.save()
+    info = DocumentInfo(
+        title=title, subject=f"surfinspect gauge study {study.source or ''}".strip(), author="surfinspect", created=when
+    )
+    buf = io.BytesIO()
+    c = archival_canvas(buf, info)
+    y = _study_head(c, study, title, left, page_h - 18 * mm, when)
+    y = _verdict_box(c, study, left, y - 26, page_w - 2 * left)
+    y = _study_tables(c, study, left, y)
+    chart_h = min(120.0, (y - 34 * mm) / 2 - 30)
+    chart_w = page_w - 2 * left - 95
+    _draw_range_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
+    y -= chart_h + 40
+    _draw_means_chart(c, study, (left + 30, y - chart_h - 12, chart_w, chart_h))
+    c.setFont(SANS_OBLIQUE, 7.5)
+    c.setFillColorRGB(*_INK)
+    c.drawString(left, 14 * mm, CAUTION)
+    c.setFont(SANS, 7)
+    c.drawRightString(page_w - left, 10 * mm, f"surfinspect {__version__}")
+    c.showPage()
+    c.save()
+    fsutil.write_bytes_atomic(path, finish_archival(buf.getvalue(), info))
 
 
-def _study_head(c, study: GaugeStudy, title: str, left: float, y: float) -> float:
+def _study_head(c, study: GaugeStudy, title: str, left: float, y: float, when: datetime) -> float:
     """Title, and the study's source, size, tolerance and time; return the y of the last line."""
     c.setFillColorRGB(*_INK)
-    c.setFont("Helvetica-Bold", 14)
+    c.setFont(SANS_BOLD, 14)
     c.drawString(left, y, title)
     y -= 14
-    c.setFont("Helvetica", 8.5)
+    c.setFont(SANS, 8.5)
     c.drawString(
         left,
         y,
         f"{study.source or 'study'}  |  {len(study.parts)} parts x {len(study.appraisers)} appraisers x "
         f"{study.n_trials} trials  |  tolerance width {study.tolerance:g}  |  "
-        f"{datetime.now(timezone.utc).strftime('%Y-%m-%d %H:%M UTC')}",
+        f"{when.strftime('%Y-%m-%d %H:%M UTC')}",
     )
     return y
 
@@ -263,10 +277,10 @@ def _verdict_box(c, study: GaugeStudy, left: float, y: float, width: float) -> f
     c.setLineWidth(1.4)
     c.rect(left, y - 4, width, 22, stroke=1, fill=0)
     c.setFillColorRGB(*tint)
-    c.setFont("Helvetica-Bold", 11)
+    c.setFont(SANS_BOLD, 11)
     c.drawString(left + 6, y + 3, f"Gauge {study.verdict.value.replace('-', ' ')}")
     c.setFillColorRGB(*_INK)
-    c.setFont("Helvetica", 8.5)
+    c.setFont(SANS, 8.5)
     ndc = "undefined" if study.ndc is None else str(study.ndc)
     c.drawString(
         left + 150,
@@ -275,7 +289,7 @@ def _verdict_box(c, study: GaugeStudy, left: float, y: float, width: float) -> f
         f"%GRR of tolerance {study.grr_percent_of_tolerance:.2f}%   ndc {ndc}",
     )
     y -= 16
-    c.setFont("Helvetica", 7.5)
+    c.setFont(SANS, 7.5)
     for reason in study.reasons:
         c.drawString(left + 6, y, "- " + reason)
         y -= 9.5
@@ -291,10 +305,10 @@ def _study_tables(c, study: GaugeStudy, left: float, y: float) -> float:
     for table in tables:
         used = " (used)" if table is study.anova else ""
         name = "with interaction" if table.model == "interaction" else "interaction pooled into repeatability"
-        c.setFont("Helvetica-Bold", 9)
+        c.setFont(SANS_BOLD, 9)
         c.drawString(left, y, f"ANOVA, {name}{used}")
         y = _draw_table(c, left, y - 4, header, anova_text_rows(table), widths) - 14
-    c.setFont("Helvetica-Bold", 9)
+    c.setFont(SANS_BOLD, 9)
     c.drawString(left, y, "Variance components")
     y = _draw_table(
         c,
@@ -304,7 +318,7 @@ def _study_tables(c, study: GaugeStudy, left: float, y: float) -> float:
         component_text_rows(study),
         (110, 70, 65, 70, 65, 65),
     )
-    c.setFont("Helvetica", 7)
+    c.setFont(SANS, 7)
     c.drawString(
         left,
         y - 9,

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import unicodedata
 from decimal import Decimal
 from typing import Callable, Iterable
 
@@ -13,6 +12,7 @@ from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import Flowable, Paragraph, Table, TableStyle
 
 from ..formatting import format_fixed
+from ..pdfa.fonts import SANS, SANS_BOLD, printable
 from ..results import (
     PartVerdict,
     RegionVerdict,
@@ -37,10 +37,10 @@ _GLYPH_SPACING_PT = 12.0  # denser glyphs cover the photo on paper
 _VERDICT_ORDER = {PartVerdict.REJECT: 0, PartVerdict.REVIEW: 1, PartVerdict.ACCEPT: 2}
 _REGION_SEVERITY = {RegionVerdict.FAIL: 2, RegionVerdict.NO_TEXTURE: 1, RegionVerdict.PASS: 0}
 
-_BODY = ParagraphStyle("body", fontName="Helvetica", fontSize=8, leading=10)
-_SMALL = ParagraphStyle("small", fontName="Helvetica", fontSize=7, leading=8.6)
-_CELL = ParagraphStyle("cell", fontName="Helvetica", fontSize=7.5, leading=9)
-_CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName="Helvetica-Bold")
+_BODY = ParagraphStyle("body", fontName=SANS, fontSize=8, leading=10)
+_SMALL = ParagraphStyle("small", fontName=SANS, fontSize=7, leading=8.6)
+_CELL = ParagraphStyle("cell", fontName=SANS, fontSize=7.5, leading=9)
+_CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName=SANS_BOLD)
 
 
 def _percent(share: float | None) -> str:
@@ -127,10 +127,10 @@ class _Layout:
 
 
 def _table(rows, col_widths, style_commands, *, repeat_rows: int = 1) -> Table:
-    base = [("FONT", (0, 0), (-1, -1), "Helvetica", 7.5)]
+    base = [("FONT", (0, 0), (-1, -1), SANS, 7.5)]
     if repeat_rows:
         base += [
-            ("FONT", (0, 0), (-1, repeat_rows - 1), "Helvetica-Bold", 7.5),
+            ("FONT", (0, 0), (-1, repeat_rows - 1), SANS_BOLD, 7.5),
             ("BACKGROUND", (0, 0), (-1, repeat_rows - 1), colors.Color(0.88, 0.88, 0.88)),
         ]
     base += [
@@ -186,7 +186,7 @@ def _verdict_badge(c: Canvas, verdict: PartVerdict, x: float, y: float, w: float
     _verdict_icon(c, shape, x + h / 2, y + h / 2, h * 0.55)
     c.setFillColor(colors.black)
     size = min(h * 0.42, 18)
-    c.setFont("Helvetica-Bold", size)
+    c.setFont(SANS_BOLD, size)
     c.drawString(x + h, y + h / 2 - size * 0.35, label or word)
     c.restoreState()
 
@@ -211,28 +211,20 @@ def _titled_box(c: Canvas, y: float, height: float, title: str, *, line_width: f
     c.setLineWidth(line_width)
     c.rect(_MARGIN, y - height, _FRAME_W, height, stroke=1, fill=0)
     c.setFillColor(colors.black)
-    c.setFont("Helvetica-Bold", title_size)
+    c.setFont(SANS_BOLD, title_size)
     c.drawString(_MARGIN + 8, y - 15, title)
 
 
-#: The encoding of the standard PDF fonts the report uses (reportlab's WinAnsiEncoding, Windows Latin-1).
-_FONT_ENCODING = "cp1252"
-REPLACED_CHARACTERS_NOTE = "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)"
+REPLACED_CHARACTERS_NOTE = "(characters the report's font lacks shown as ?; the signed record keeps the exact text)"
 
 
 def printable_text(text: str) -> tuple[str, bool]:
     """``text`` with every character the report's fonts cannot show replaced by '?'; and whether any was.
 
-    The standard PDF fonts hold the Windows Latin-1 set only; any other
-    character (CJK, most symbols) would print as a black box.
+    The report's faces (Liberation Sans, :mod:`surfinspect.pdfa.fonts`) hold
+    the Latin, Greek and Cyrillic alphabets and common symbols; any other
+    character (CJK, most symbols) and any control character prints as '?'.
+    The fonts do that by themselves for every text; this function tells the
+    caller that it happened, so the page can say so.
     """
-    shown = []
-    for ch in text:
-        try:
-            ch.encode(_FONT_ENCODING)
-            ok = not unicodedata.category(ch).startswith("C")  # control characters have no glyph either
-        except UnicodeEncodeError:
-            ok = False
-        shown.append(ch if ok else "?")
-    out = "".join(shown)
-    return out, out != text
+    return printable(text)

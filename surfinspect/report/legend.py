@@ -8,6 +8,7 @@ from reportlab.lib import colors
 from reportlab.pdfgen.canvas import Canvas
 
 from ..formatting import ANGLE_DECIMALS
+from ..pdfa.fonts import SANS, SANS_BOLD
 from ..results import (
     PartVerdict,
     RegionVerdict,
@@ -67,7 +68,7 @@ def _line_keys(c: Canvas, yy: float) -> float:
         c.line(x0, yy, x1, yy)
         c.setDash([])
         c.setFillColor(colors.black)
-        c.setFont("Helvetica", 7.5)
+        c.setFont(SANS, 7.5)
         c.drawString(tx, yy - 2.5, text)
         yy -= 15
     return yy
@@ -87,7 +88,7 @@ def _mark_keys(c: Canvas, yy: float) -> None:
         c.setStrokeColor(colour)
         c.setLineWidth(width)
         c.line(_MARGIN + 28 - half, yy - 3, _MARGIN + 28 + half, yy + 3)
-    c.setFont("Helvetica", 7.5)
+    c.setFont(SANS, 7.5)
     c.drawString(tx, yy - 2.5, "Expected lay per cell where it turns (circular, radial): white tick")
     yy -= 15
     c.setLineCap(1)
@@ -124,13 +125,13 @@ def _mark_keys(c: Canvas, yy: float) -> None:
 
 def _angle_convention(c: Canvas, x: float, y: float) -> None:
     """Right column: the angle convention, drawn (a 30 degree lay) and in words."""
-    c.setFont("Helvetica-Bold", 8)
+    c.setFont(SANS_BOLD, 8)
     c.drawString(x, y - 30, "Angle convention")
     cx, cy, r = x + 30, y - 80, 26
     c.setLineWidth(0.8)
     c.line(cx - 4, cy, cx + r + 8, cy)
     c.line(cx, cy - 4, cx, cy + r + 8)
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     c.drawString(cx + r + 10, cy - 2, "+X")
     c.drawString(cx - 4, cy + r + 11, "+Y")
     c.setStrokeColor(_rl(PALETTE["measured"]))
@@ -141,7 +142,7 @@ def _angle_convention(c: Canvas, x: float, y: float) -> None:
     c.arc(cx - r * 0.6, cy - r * 0.6, cx + r * 0.6, cy + r * 0.6, 0, 30)
     c.drawString(cx + r * 0.65, cy + 3, "30°")
     text = c.beginText(x + 80, y - 44)
-    text.setFont("Helvetica", 7)
+    text.setFont(SANS, 7)
     text.setLeading(8.6)
     for line in (
         "Lay 0–180°, counter-clockwise from",
@@ -161,7 +162,7 @@ def _angle_convention(c: Canvas, x: float, y: float) -> None:
 
 def _verdict_keys(c: Canvas, x: float, y: float) -> None:
     """Right column, below: the three part verdicts by word, colour and shape; how to read a rose plot."""
-    c.setFont("Helvetica-Bold", 8)
+    c.setFont(SANS_BOLD, 8)
     c.drawString(x, y - 140, "Verdicts (word and shape)")
     yy = y - 156
     for verdict in (PartVerdict.ACCEPT, PartVerdict.REJECT, PartVerdict.REVIEW):
@@ -170,7 +171,7 @@ def _verdict_keys(c: Canvas, x: float, y: float) -> None:
         c.rect(x, yy - 6, 14, 12, stroke=0, fill=1)
         _verdict_icon(c, shape, x + 24, yy, 10)
         c.setFillColor(colors.black)
-        c.setFont("Helvetica", 7.5)
+        c.setFont(SANS, 7.5)
         meaning = {
             PartVerdict.ACCEPT: "every region within its limits",
             PartVerdict.REJECT: "at least one region fails",
@@ -178,6 +179,6 @@ def _verdict_keys(c: Canvas, x: float, y: float) -> None:
         }[verdict]
         c.drawString(x + 34, yy - 2.5, f"{word}: {meaning}")
         yy -= 14
-    c.setFont("Helvetica", 6.8)
+    c.setFont(SANS, 6.8)
     c.drawString(x, yy - 4, "Rose plots: grey petals = orientation histogram (area ~ weight),")
     c.drawString(x, yy - 12, "green band = tolerance, dashed = expected, blue = measured lay.")

@@ -14,6 +14,7 @@ from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import Paragraph
 
 from ..formatting import format_angle, format_fixed, format_signed_angle
+from ..pdfa.fonts import MONO, SANS, SANS_BOLD, SANS_OBLIQUE
 from ..results import (
     PartResult,
 )
@@ -34,21 +35,21 @@ from .rose import _draw_deviation_bars, _draw_rose, _figure_list
 from .scene import PART_LOOKS, build_scene, measured_angles
 
 _PART_HEADER_H = 40.0
-_VERDICT_LINE = ParagraphStyle("verdict", fontName="Helvetica-Bold", fontSize=8.5, leading=10.5)
+_VERDICT_LINE = ParagraphStyle("verdict", fontName=SANS_BOLD, fontSize=8.5, leading=10.5)
 
 
 def _part_header(c: Canvas, y: float, part: PartResult, page_note: str, number: str = "") -> None:
     badge_w, badge_h = 170.0, 40.0
     text_w = _FRAME_W - badge_w - 10
     c.setFillColor(colors.black)
-    c.setFont("Helvetica-Bold", 15)
-    c.drawString(_MARGIN, y - 15, _fit_text(c, part.name + page_note, "Helvetica-Bold", 15, text_w))
+    c.setFont(SANS_BOLD, 15)
+    c.drawString(_MARGIN, y - 15, _fit_text(c, part.name + page_note, SANS_BOLD, 15, text_w))
     _verdict_badge(c, part.verdict, PAGE_SIZE[0] - _MARGIN - badge_w, y - badge_h, badge_w, badge_h)
-    c.setFont("Helvetica", 7.5)
+    c.setFont(SANS, 7.5)
     c.drawString(
         _MARGIN,
         y - 26,
-        _fit_text(c, f"Recipe {part.recipe.name} · revision {part.recipe.revision}", "Helvetica", 7.5, text_w),
+        _fit_text(c, f"Recipe {part.recipe.name} · revision {part.recipe.revision}", SANS, 7.5, text_w),
     )
     c.drawString(
         _MARGIN,
@@ -77,7 +78,7 @@ def _image_lines(part: PartResult) -> str:
     return (
         f"<b>Image file</b> {escape(os.path.basename(im.path) or im.path or '(not recorded)')} · "
         f"{im.width} × {im.height} px · {im.bit_depth} bit · <b>part frame</b> {escape(frame)}<br/>"
-        f"<b>Image SHA-256</b> <font name=Courier size=7>{im.sha256 or '(not recorded)'}</font>"
+        f"<b>Image SHA-256</b> <font name={MONO} size=7>{im.sha256 or '(not recorded)'}</font>"
     )
 
 
@@ -154,7 +155,7 @@ def _no_picture_note(c: Canvas, y: float) -> None:
     c.setDash([3, 2])
     c.rect(_MARGIN, y - 36, _FRAME_W, 36, stroke=1, fill=0)
     c.setDash([])
-    c.setFont("Helvetica-Oblique", 8)
+    c.setFont(SANS_OBLIQUE, 8)
     c.drawCentredString(
         PAGE_SIZE[0] / 2, y - 21, "Picture not supplied to the report: see the overlay PNG beside the result."
     )
@@ -180,11 +181,11 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                 varies = region.lay_pattern in _CENTRED
                 expected = [] if varies else list(region.expected_angles)
                 c.setFillColor(colors.black)
-                c.setFont("Helvetica-Bold", 7.5)
+                c.setFont(SANS_BOLD, 7.5)
                 c.drawCentredString(cx, y - 9, f"{region.name}: orientation histogram")
                 as_printed = dataclasses.replace(region, lay_deg=d["lay_deg"], extra=d["extra"])  # the JSON's values
                 _draw_rose(c, cx, y - 66, 46, region, expected, measured_angles(as_printed))
-                c.setFont("Helvetica", 6.5)
+                c.setFont(SANS, 6.5)
                 if varies:
                     exp_text = f"expected {_expected_text(region)}: varies per cell"
                 elif expected:

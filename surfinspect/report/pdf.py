@@ -33,7 +33,8 @@ so the report shows what the result file says: angles with
 :data:`ANGLE_DECIMALS` decimals, coherence with 3, area shares in per cent
 with 2, each rounded half away from zero from the JSON's decimal digits
 (:func:`format_fixed`). The document is deterministic apart from
-``generated_at``: same inputs and time, same bytes.
+``generated_at``: same inputs and time, same bytes. It is PDF/A-2b
+(:mod:`surfinspect.pdfa`): fonts embedded, sRGB output intent, XMP metadata.
 """
 
 from __future__ import annotations
@@ -50,6 +51,7 @@ from reportlab.pdfgen.canvas import Canvas
 from .. import fsutil
 from ..errors import InputError
 from ..formatting import ANGLE_DECIMALS, format_angle, format_fixed, format_signed_angle
+from ..pdfa.document import DocumentInfo, archival_canvas, finish_archival
 from ..results import (
     CAUTION,
     PartResult,
@@ -249,22 +251,23 @@ def _layout_part_pages(ordered: list[tuple[int, _PartFigures]], images: list, fi
 def _draw_pdf(pages: list[list], parts: list[PartResult], summary: dict) -> bytes:
     """Draw the pages with their footers into a deterministic PDF (fixed date, id from the report id)."""
     report_id, title, generated_at = summary["report_id"], summary["title"], summary["generated_at"]
+    info = DocumentInfo(
+        title=f"{title} {report_id}",
+        subject=f"surfinspect report {report_id}",  # enters the PDF document id
+        author=summary["operator"] or "surfinspect",
+        creator="surfinspect " + ", ".join(_unique(p.engine_version for p in parts)),
+        keywords=f"report {report_id}; generated {generated_at.strftime('%Y-%m-%dT%H:%M:%SZ')}",
+        created=generated_at,
+    )
     buf = io.BytesIO()
-    c = Canvas(buf, pagesize=PAGE_SIZE, invariant=1, pageCompression=1)
-    stamp = generated_at.strftime("D:%Y%m%d%H%M%S+00'00'")
-    c.setDateFormatter(lambda *_: stamp)
-    c.setTitle(f"{title} {report_id}")
-    c.setSubject(f"surfinspect report {report_id}")  # enters the PDF document id
-    c.setAuthor(summary["operator"] or "surfinspect")
-    c.setCreator("surfinspect " + ", ".join(_unique(p.engine_version for p in parts)))
-    c.setKeywords(f"report {report_id}; generated {generated_at.strftime('%Y-%m-%dT%H:%M:%SZ')}")
+    c = archival_canvas(buf, info, pagesize=PAGE_SIZE)
     for n, page in enumerate(pages, start=1):
         for draw in page:
             draw(c)
         _footer(c, n, len(pages), report_id, summary["signoff"])
         c.showPage()
     c.save()
-    return buf.getvalue()
+    return finish_archival(buf.getvalue(), info)
 
 
 def _extra(c: Canvas, extra: ExtraPage) -> None:

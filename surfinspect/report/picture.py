@@ -12,6 +12,7 @@ from reportlab.lib import colors
 from reportlab.lib.utils import ImageReader
 from reportlab.pdfgen.canvas import FILL_EVEN_ODD, Canvas
 
+from ..pdfa.fonts import SANS_BOLD
 from .layout import JPEG_QUALITY, PICTURE_MAX_PX, _rl
 from .overlay import grey_to_uint8, paint_scene
 from .scene import STYLE_UNITS, OverlayScene, label_obstacles, place_labels
@@ -127,7 +128,7 @@ class _VectorPainter:
         for text, (x, y), fill, above in self.labels:
             size = 7.5 if len(text) > 2 else 7.0
             pad = size * 0.25
-            tw = self.c.stringWidth(text, "Helvetica-Bold", size) + 2 * pad
+            tw = self.c.stringWidth(text, SANS_BOLD, size) + 2 * pad
             th = size + 2 * pad
             px, py = x * self.scale, y * self.scale  # picture points, y down
             wanted.append((px + pad, py - th - pad if above else py + pad, tw, th))
@@ -143,7 +144,7 @@ class _VectorPainter:
             c.setLineWidth(0.5)
             c.rect(x, y, tw, th, stroke=1, fill=1)
             c.setFillColor(colors.black)
-            c.setFont("Helvetica-Bold", size)
+            c.setFont(SANS_BOLD, size)
             c.drawString(x + pad, y + pad + size * 0.18, text)
             c.restoreState()
         self.labels = []

@@ -11,6 +11,7 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.platypus import Paragraph, Table
 
 from ..formatting import format_angle, format_fixed, format_signed_angle
+from ..pdfa.fonts import SANS_BOLD
 from ..results import (
     PartResult,
     PartVerdict,
@@ -203,7 +204,7 @@ def _region_table(fig: _PartFigures) -> Table:
             ]
         )
         style += [
-            ("FONT", (-1, row), (-1, row), "Helvetica-Bold", 8),
+            ("FONT", (-1, row), (-1, row), SANS_BOLD, 8),
             ("BACKGROUND", (-1, row), (-1, row), _tint(look.colour, 0.55)),
             ("ALIGN", (1, row), (-2, row), "RIGHT"),
         ]

@@ -11,6 +11,7 @@ from reportlab.pdfgen.canvas import Canvas
 
 from ..formatting import format_angle
 from ..measure.orientation import wrap_deviation
+from ..pdfa.fonts import SANS, SANS_BOLD
 from ..results import (
     RegionResult,
     RegionVerdict,
@@ -89,7 +90,7 @@ def _draw_rose(
             c.setLineWidth(w)
             c.line(cx - ux * radius, cy - uy * radius, cx + ux * radius, cy + uy * radius)
     c.setFillColor(colors.black)
-    c.setFont("Helvetica", 5.5)
+    c.setFont(SANS, 5.5)
     for a in (0, 45, 90, 135):
         ux, uy = math.cos(math.radians(a)), math.sin(math.radians(a))
         c.drawCentredString(cx + ux * (radius + 7), cy + uy * (radius + 7) - 2, f"{a}°")
@@ -137,7 +138,7 @@ def _draw_deviation_bars(c: Canvas, x: float, y_top: float, w: float, region: Re
 
     c.saveState()
     c.setFillColor(colors.black)
-    c.setFont("Helvetica-Bold", 7.5)
+    c.setFont(SANS_BOLD, 7.5)
     c.drawCentredString(x + w / 2, y_top - 9, f"{region.name}: cell deviation")
     c.setFillColor(_rl(PALETTE["pass"], 0.35))
     c.rect(px(-tol), bottom, px(tol) - px(-tol), top - bottom, stroke=0, fill=1)
@@ -156,13 +157,13 @@ def _draw_deviation_bars(c: Canvas, x: float, y_top: float, w: float, region: Re
     c.setLineWidth(0.5)
     c.line(left, bottom, right, bottom)
     c.setFillColor(colors.black)
-    c.setFont("Helvetica", 5.5)
+    c.setFont(SANS, 5.5)
     for v in (-90, -45, 0, 45, 90):
         c.line(px(v), bottom, px(v), bottom - 2)
         c.drawCentredString(px(v), bottom - 8, f"{v:+d}°" if v else "0°")
     c.drawString(left, top + 2, f"highest bar {peak} cells")
     within = int((np.abs(dev) <= tol).sum())
-    c.setFont("Helvetica", 6.5)
+    c.setFont(SANS, 6.5)
     c.drawCentredString(x + w / 2, y_top - 128, f"{within} of {dev.size} cells within ± {format_angle(tol)}")
     c.drawCentredString(x + w / 2, y_top - 136, "deviation = cell lay - expected there")
     c.restoreState()

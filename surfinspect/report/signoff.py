@@ -5,6 +5,7 @@ from __future__ import annotations
 from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
+from ..pdfa.fonts import MONO, SANS, SANS_BOLD, SANS_OBLIQUE
 from ..results import SIGNOFF_MEANINGS, SignOff
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
 
@@ -18,26 +19,25 @@ def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
     """(label, value or None for an empty line, font) of the sign-off block; long comments wrap."""
     if signoff is None:
         return [
-            (label, None, "Helvetica")
-            for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")
+            (label, None, SANS) for label in ("Name (printed)", "Meaning", "Time (UTC)", "Key fingerprint", "Signature")
         ]
     name, name_replaced = printable_text(signoff.signer_name)
     comment, comment_replaced = printable_text(signoff.comment)
     rows = [
-        ("Name (printed)", name, "Helvetica-Bold"),
-        ("Meaning", signoff.meaning.upper(), "Helvetica-Bold"),
-        ("Time (UTC)", signoff.signed_at_utc, "Helvetica"),
-        ("Key fingerprint", signoff.key_fingerprint, "Courier"),
-        ("Record SHA-256", signoff.record_sha256 or "—", "Courier"),
-        ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", "Courier"),
+        ("Name (printed)", name, SANS_BOLD),
+        ("Meaning", signoff.meaning.upper(), SANS_BOLD),
+        ("Time (UTC)", signoff.signed_at_utc, SANS),
+        ("Key fingerprint", signoff.key_fingerprint, MONO),
+        ("Record SHA-256", signoff.record_sha256 or "—", MONO),
+        ("Covers report", f"SHA-256 {signoff.report_sha256}" if signoff.report_sha256 else "—", MONO),
     ]
     if signoff.chain_head:
-        rows.append(("Audit chain head", f"event {signoff.chain_head}", "Courier"))
+        rows.append(("Audit chain head", f"event {signoff.chain_head}", MONO))
     if comment:
-        for k, line in enumerate(simpleSplit(comment, "Helvetica", _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
-            rows.append(("Comment" if k == 0 else "", line, "Helvetica"))
+        for k, line in enumerate(simpleSplit(comment, SANS, _SIGNOFF_TEXT_SIZE, _SIGNOFF_VALUE_W)):
+            rows.append(("Comment" if k == 0 else "", line, SANS))
     if name_replaced or comment_replaced:
-        rows.append(("", REPLACED_CHARACTERS_NOTE, "Helvetica-Oblique"))
+        rows.append(("", REPLACED_CHARACTERS_NOTE, SANS_OBLIQUE))
     return rows
 
 
@@ -50,12 +50,12 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
     height = _signoff_height(signoff)
     _titled_box(c, y, height, "SIGN-OFF", line_width=1.2, title_size=10)
     if signoff is None:
-        c.setFont("Helvetica-Bold", 8.5)
+        c.setFont(SANS_BOLD, 8.5)
         c.drawString(_MARGIN + 70, y - 15, "NOT SIGNED")
-        c.setFont("Helvetica", 7)
+        c.setFont(SANS, 7)
         c.drawString(_MARGIN + 128, y - 15, "this report carries no sign-off yet; the lines below are left empty.")
     else:
-        c.setFont("Helvetica", 7)
+        c.setFont(SANS, 7)
         c.drawString(
             _MARGIN + 70,
             y - 15,
@@ -63,7 +63,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
         )
     line_y = y - 32
     for label, value, font in _signoff_rows(signoff):
-        c.setFont("Helvetica-Bold", _SIGNOFF_TEXT_SIZE)
+        c.setFont(SANS_BOLD, _SIGNOFF_TEXT_SIZE)
         c.drawString(_MARGIN + 8, line_y, label)
         if value is None:
             c.setLineWidth(0.5)
@@ -71,7 +71,7 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
             c.line(_MARGIN + _SIGNOFF_VALUE_X, line_y - 1, _MARGIN + _FRAME_W - 10, line_y - 1)
             c.setDash([])
             if label == "Meaning":
-                c.setFont("Helvetica", 6.5)
+                c.setFont(SANS, 6.5)
                 c.drawString(_MARGIN + _FRAME_W - 180, line_y + 1, " / ".join(SIGNOFF_MEANINGS))
         else:
             size = 9 if label == "Meaning" else _SIGNOFF_TEXT_SIZE

@@ -12,6 +12,7 @@ from reportlab.pdfgen.canvas import Canvas
 from reportlab.platypus import Paragraph, Table
 
 from ..formatting import format_signed_angle
+from ..pdfa.fonts import MONO, SANS, SANS_BOLD
 from ..results import PartResult, PartVerdict, RegionVerdict, SignOff
 from .batch_stats import _RegionStats, _stats_line
 from .layout import (
@@ -71,13 +72,13 @@ def _count_boxes(c: Canvas, y: float, counts: Mapping[PartVerdict, int], not_ins
         c.rect(x, y - h, w, h, stroke=1, fill=1)
         _verdict_icon(c, shape, x + 20, y - h / 2, 22)
         c.setFillColor(colors.black)
-        c.setFont("Helvetica-Bold", 24)
-        number_w = c.stringWidth(str(n), "Helvetica-Bold", 24)
+        c.setFont(SANS_BOLD, 24)
+        number_w = c.stringWidth(str(n), SANS_BOLD, 24)
         c.drawRightString(x + w - 10, y - h / 2 - 8, str(n))
         size = 11.0
-        while size > 6 and c.stringWidth(word, "Helvetica-Bold", size) > w - 38 - number_w - 16:
+        while size > 6 and c.stringWidth(word, SANS_BOLD, size) > w - 38 - number_w - 16:
             size -= 0.5
-        c.setFont("Helvetica-Bold", size)
+        c.setFont(SANS_BOLD, size)
         c.drawString(x + 38, y - h / 2 - size * 0.36, word)
         c.restoreState()
 
@@ -119,9 +120,9 @@ def _summary_head(
     """Title, report id and part counts, and the boxes of counts by verdict."""
     counts = {v: sum(p.verdict is v for p in parts) for v in PartVerdict}
     c.setFillColor(colors.black)
-    c.setFont("Helvetica-Bold", 17)
+    c.setFont(SANS_BOLD, 17)
     c.drawString(_MARGIN, y - 17, title)
-    c.setFont("Helvetica", 9)
+    c.setFont(SANS, 9)
     line = f"Report {report_id} · {len(parts)} part{'s' if len(parts) != 1 else ''} inspected"
     if not_inspected:
         line += f" · {not_inspected} not inspected (image unreadable)"
@@ -144,7 +145,7 @@ def _facts_table(
         n = sum(p.recipe.name == name and p.recipe.revision == revision for p in parts)
         recipe = (
             f"<b>{escape(name)}</b> · revision {revision} · {n} part{'s' if n != 1 else ''}<br/>"
-            f"SHA-256 <font name=Courier size=7>{sha}</font>"
+            f"SHA-256 <font name={MONO} size=7>{sha}</font>"
         )
         info.append(["Recipe", Paragraph(recipe, _CELL)])
     info += [
@@ -160,7 +161,7 @@ def _facts_table(
         note = f"{lines}<br/><font size=6.5>control charts and capability{where}</font>"
         info.append(["Batch statistics", Paragraph(note, _CELL)])
     shading = [
-        ("FONT", (0, 0), (0, -1), "Helvetica-Bold", 7.5),
+        ("FONT", (0, 0), (0, -1), SANS_BOLD, 7.5),
         ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.93, 0.93, 0.93)),
     ]
     return _table(info, [100, _FRAME_W - 100], shading, repeat_rows=0)
@@ -235,7 +236,7 @@ def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total:
     layout.block(
         20,
         lambda c, y: (
-            c.setFont("Helvetica-Bold", 14),
+            c.setFont(SANS_BOLD, 14),
             c.drawString(_MARGIN, y - 14, f"Parts not inspected: {len(items)} of {total}"),
         ),
     )
@@ -250,7 +251,7 @@ def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total:
                 Paragraph(escape(item.name), _CELL_BOLD),
                 Paragraph(escape(item.error or "(no reason recorded)"), _CELL),
                 Paragraph(
-                    f"<font name=Courier size=6>{escape(item.sha256) or '(file could not be read)'}</font>", _CELL
+                    f"<font name={MONO} size=6>{escape(item.sha256) or '(file could not be read)'}</font>", _CELL
                 ),
             ]
         )

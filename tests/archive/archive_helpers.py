@@ -126,7 +126,18 @@ def make_register(root, keys: Keys) -> None:
 
 
 def render(signoff: results.SignOff) -> bytes:
-    return f"%PDF signed by {signoff.signer_name} {signoff.meaning}".encode()
+    """A one-line archival PDF standing in for the signed edition (the sign-off then PDF-signs it)."""
+    import io
+
+    from surfinspect.pdfa.document import DocumentInfo, archival_canvas, finish_archival
+
+    info = DocumentInfo(title=f"report {BATCH}")
+    buf = io.BytesIO()
+    c = archival_canvas(buf, info)
+    c.drawString(40, 800, f"signed by {signoff.signer_name} {signoff.meaning}")
+    c.showPage()
+    c.save()
+    return finish_archival(buf.getvalue(), info)
 
 
 def full_archive(tmp_path, *, station=True, signoff=True, disposition=True, root=None):

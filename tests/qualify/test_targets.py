@@ -313,3 +313,14 @@ def test_grating_too_small_for_a_recipe_region_is_refused(tmp_path):
             tmp_path / "t.png", [0], period_mm=1.0, size_mm=(4, 4), dpi=150, recipe_path=tmp_path / "t.yaml"
         )
     assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("kind", ["sine", "square"])
+def test_target_pdf_is_archival_and_the_same_bytes_for_the_same_sheet(tmp_path, kind):
+    from pdfa_checks import assert_pdfa_2b
+
+    a, b = tmp_path / "a.pdf", tmp_path / "b.pdf"
+    for out in (a, b):
+        write_target_pdf(out, [0, 45], period_mm=1.0, size_mm=(30, 20), kind=kind, raster_dpi=200)
+    assert a.read_bytes() == b.read_bytes()  # no time enters a target sheet, so none is dated into it
+    assert_pdfa_2b(a.read_bytes())

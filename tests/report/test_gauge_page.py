@@ -32,3 +32,18 @@ def test_gauge_pdf_page_holds_tables_verdict_caution_and_vector_charts(tmp_path)
     assert " ".join(CAUTION.split()[:6]) in " ".join(text.split())
     assert len(reader.pages[0].images) == 0  # charts are vector graphics, not pictures
     assert not list(tmp_path.glob("*.part"))
+
+
+def test_gauge_pdf_is_archival_and_the_same_bytes_for_the_same_study_and_time(tmp_path):
+    from datetime import datetime, timezone
+
+    from pdfa_checks import assert_pdfa_2b
+
+    study = gauge_rr(INTERACTION_TABLE, tolerance=30.0, source="study.csv")
+    when = datetime(2031, 4, 2, 9, 0, tzinfo=timezone.utc)
+    first, second = tmp_path / "a.pdf", tmp_path / "b.pdf"
+    write_gauge_pdf(study, first, generated_at=when)
+    write_gauge_pdf(study, second, generated_at=when)
+    assert first.read_bytes() == second.read_bytes()
+    assert_pdfa_2b(first.read_bytes())
+    assert "2031-04-02 09:00 UTC" in pytest.importorskip("pypdf").PdfReader(str(first)).pages[0].extract_text()

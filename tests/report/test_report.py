@@ -17,6 +17,7 @@ from datetime import datetime, timezone
 import cv2
 import numpy as np
 import pytest
+from pdfa_checks import assert_pdfa_2b
 from pypdf import PdfReader
 from pypdf.generic import ContentStream
 from test_overlay import (
@@ -31,6 +32,7 @@ from test_overlay import (
 
 from surfinspect import results
 from surfinspect.errors import InputError
+from surfinspect.pdfa.fonts import SANS_BOLD
 from surfinspect.report.pdf import (
     CAUTION,
     PICTURE_MAX_PX,
@@ -253,6 +255,25 @@ def test_same_inputs_same_bytes_and_document_id_from_report_id():
     assert meta["/CreationDate"].startswith("D:20310402090000")
 
 
+@pytest.mark.parametrize("edition", ["unsigned", "signed", "batch statistics", "not inspected and extra page"])
+def test_every_report_edition_is_pdfa_2b(edition):
+    """ISO 19005-2 clauses checked by tests/pdfa_checks.py: fonts embedded, XMP 2/B, sRGB intent, no /Encrypt."""
+    parts = batch_of_three()
+    kwargs = {}
+    if edition == "signed":
+        # the comment holds characters the font lacks: they must print as '?', never as .notdef (6.2.11.8)
+        kwargs["signoff"] = SignOff("Ana Łukasiewicz", "approved", "2031-04-02T10:30:00Z", "ab" * 32, comment="検査 ok")
+    elif edition == "batch statistics":
+        kwargs["batch_stats"] = True
+    elif edition == "not inspected and extra page":
+        kwargs["not_inspected"] = [NotInspected("LW-220-0009.png", "e" * 64, "not a readable image")]
+        kwargs["extra_pages"] = [lambda c, size: (c.setFont(SANS_BOLD, 14), c.drawString(40, 700, "Extra"))]
+    pdf = render_report(parts, [make_pixels()] * 3, report_id="P-1", generated_at=WHEN, **kwargs)
+    assert_pdfa_2b(pdf)
+    meta = PdfReader(io.BytesIO(pdf)).metadata
+    assert meta.title == "Surface lay inspection report P-1" and meta.subject == "surfinspect report P-1"
+
+
 def test_signoff_block_empty_then_filled():
     parts = [make_part()]
     # reference: the SignOff fields of results.py, printed verbatim
@@ -321,7 +342,7 @@ def test_batch_statistics_mark_parts_beyond_tolerance_inside_control_limits():
 
 def test_extra_pages_come_last_with_footer():
     def gauge_page(canvas, page_size):
-        canvas.setFont("Helvetica-Bold", 14)
+        canvas.setFont(SANS_BOLD, 14)
         canvas.drawString(40, page_size[1] - 60, "Gauge study: example page")
 
     pdf = render_report([make_part()], [make_pixels()], report_id="X", generated_at=WHEN, extra_pages=[gauge_page])
@@ -446,7 +467,7 @@ def _rects(page, reader) -> list[tuple[float, float, float, float]]:
 
 def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_inside():
     parts = batch_of_three()
-    # invented comment: Japanese for "checked" (outside Latin-1), then enough words to wrap onto several rows
+    # invented comment: Japanese for "checked" (not in the report's font), then enough words to wrap onto several rows
     comment = "検査済み: panel 0002 re-brushed, é and € kept; " + "checked against drawing LW-220 sheet 2 " * 6
     sign = SignOff(
         "Anna Berg",
@@ -463,18 +484,18 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
     page = reader.pages[0]
     text = page.extract_text()
     assert "Covers report" in text and "SHA-256 " + "ef" * 32 in text
-    # WinAnsiEncoding (PDF 32000-1:2008, Annex D.2) holds é and €, not the kana/kanji: those print as '?'
+    # Liberation Sans holds é and €, not the kana/kanji (see the printable_text test): those print as '?'
     assert "■" not in text
     assert "????: panel 0002 re-brushed, é and € kept;" in " ".join(text.split())
-    assert "(characters outside Latin-1 shown as ?; the signed record keeps the exact text)" in text
+    assert "(characters the report's font lacks shown as ?; the signed record keeps the exact text)" in text
     lines = _text_lines_with_baselines(page)
     title_y = next(y for t, y in lines if t == "SIGN-OFF")
     # the frame drawn around the title: its top edge 15 pt above the title's baseline (the block's own layout)
     (box,) = [r for r in _rects(page, reader) if abs(r[1] + r[3] - (title_y + 15)) < 0.01]
     bottom, top = box[1], box[1] + box[3]
-    comment_rows = [y for t, y in lines if "sheet 2" in t or "characters outside Latin-1" in t]
+    comment_rows = [y for t, y in lines if "sheet 2" in t or "font lacks" in t]
     assert len(comment_rows) >= 3  # the comment wrapped, and the note follows it
-    # a 7.5 pt Helvetica descender reaches ~1.6 pt below the baseline (AFM descender -207/1000)
+    # a 7.5 pt Liberation Sans descender reaches ~1.6 pt below the baseline (hhea descender -434/2048 em)
     assert all(bottom + 1.6 < y < top for y in comment_rows)
     parts_title_y = next(y for t, y in lines if t == "Parts")
     assert parts_title_y < bottom
@@ -483,9 +504,34 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
 def test_printable_text_replaces_only_what_the_report_font_cannot_show():
     from surfinspect.report.pdf import printable_text
 
-    # reference: Python's cp1252 codec, the Windows Latin-1 set of PDF's WinAnsiEncoding (PDF 32000-1:2008, Annex D.2)
-    assert printable_text("Müller – 5 € ‰") == ("Müller – 5 € ‰", False)
+    # Latin, Greek and Cyrillic names print as written now that the font is embedded
+    assert printable_text("Müller – 5 € ‰ Łukasz Ωμέγα Жуков") == ("Müller – 5 € ‰ Łukasz Ωμέγα Жуков", False)
     assert printable_text("李 Wei\x07") == ("? Wei?", True)
+
+
+def test_printable_text_agrees_with_the_font_files_own_character_maps():
+    """reference: fontTools, a TrueType reader independent of reportlab's: a character is kept iff every
+    sans face the report prints in (regular, bold, italic) maps it to a glyph, control characters never."""
+    import unicodedata
+    from importlib import resources
+
+    ttLib = pytest.importorskip("fontTools.ttLib")
+    from surfinspect.report.pdf import printable_text
+
+    maps = []
+    for face in ("LiberationSans-Regular", "LiberationSans-Bold", "LiberationSans-Italic"):
+        with resources.as_file(resources.files("surfinspect.pdfa") / "data" / f"{face}.ttf") as path:
+            maps.append(ttLib.TTFont(str(path)).getBestCmap())
+    # a sample across what a name or comment may hold: controls, Latin-1, Latin Extended, Greek, Cyrillic,
+    # Hebrew, Arabic, symbols, arrows, maths, CJK
+    sample = [chr(c) for c in range(0x01, 0x2300, 3)] + list("李検한🙂")
+    kept = 0
+    for ch in sample:
+        expected = all(ord(ch) in m for m in maps) and not unicodedata.category(ch).startswith("C")
+        assert printable_text(ch) == ((ch, False) if expected else ("?", True)), f"U+{ord(ch):04X}"
+        kept += expected
+    assert 600 < kept < len(sample) - 400  # the sample holds plenty of both kinds
+    assert all(printable_text(ch) == (ch, False) for ch in "é€ŁΩЖ≤≥±°·…—")
 
 
 def test_not_inspected_parts_are_counted_listed_and_paged():

@@ -435,7 +435,7 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
     assert f"report (a PDF stored under its hash, without a suffix): {report}" in out
     assert f"surfinspect show --archive {root} --batch-id B1 --out DIR" in out
 
-    comment = "検査済み 2 panels\noff grain"  # invented; CJK outside Latin-1, and a newline that is folded
+    comment = "検査済み 2 panels\noff grain"  # invented; CJK the report's font lacks, and a newline that is folded
     assert (
         main(
             [
@@ -471,10 +471,14 @@ def test_console_says_where_the_report_is_and_how_to_copy_it_out(panels, tmp_pat
     assert hashlib.sha256((copies / "report.pdf").read_bytes()).hexdigest() == report_sha  # reference: hashlib
     pypdf = pytest.importorskip("pypdf")
     text = " ".join(pypdf.PdfReader(copies / "report.signed-1.pdf").pages[0].extract_text().split())
-    assert "???? 2 panels off grain" in text and "characters outside Latin-1 shown as ?" in text
+    assert "???? 2 panels off grain" in text and "characters the report's font lacks shown as ?" in text
     assert f"Covers report SHA-256 {report_sha}" in text
     record = json.loads(s.record_json)  # the signed record's chain head, printed: an anchor on paper
     assert f"Audit chain head event {record['audit_events']} {record['audit_head_sha256']}" in text
+    from pdfa_checks import assert_pdfa_2b
+
+    assert_pdfa_2b((copies / "report.pdf").read_bytes())  # the batch's report and its signed edition as archived
+    assert_pdfa_2b(edition.read_bytes())
     assert main(["show", "--archive", str(root), "--out", str(copies)]) == 2
     assert "--out: needs --batch-id" in _one_error_line(capsys)
     assert main(["-q", "verify", "--archive", str(root)]) == 0

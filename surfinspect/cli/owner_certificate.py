@@ -1,0 +1,59 @@
+"""``surfinspect owner-certificate``: export the archive owner's certificate, for customers to trust.
+
+Every PDF signature made in the archive chains to this one self-signed
+certificate (the owner acts as a small certificate authority for its signer
+register). A customer imports it once into their PDF reader as a trusted
+certificate; the reader then shows who signed each signed report, when, with
+what meaning, and that nothing changed since. ``.pem`` writes it in PEM (text),
+``.cer``, ``.crt`` and ``.der`` in DER; the SHA-256 fingerprint printed is the
+one to compare when the file reaches the customer by another way.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from cryptography.hazmat.primitives import serialization
+
+from ..archive import pki
+from ..archive import store as archive
+from ..archive.certificates import certificate_sha256
+from ..errors import InputError
+from ..fsutil import write_bytes_atomic
+from ._checks import check_output_file
+from .console import Console
+
+HELP = "export the archive owner's certificate (the one customers trust to check signed reports)"
+
+_ENCODINGS = {
+    ".pem": serialization.Encoding.PEM,
+    ".cer": serialization.Encoding.DER,
+    ".crt": serialization.Encoding.DER,
+    ".der": serialization.Encoding.DER,
+}
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    check_output_file("--out", args.out, suffixes=tuple(_ENCODINGS))
+    encoding = _ENCODINGS[args.out[args.out.rfind(".") :].lower()]
+    with archive.Archive(args.archive) as arc:
+        register = arc.register()
+        cert = pki.owner_certificate_of(arc, register)
+        if cert is None:
+            if register.owner is None:
+                raise InputError(f"--archive: {args.archive} has no owner yet (surfinspect owner init)")
+            raise InputError(
+                f"--archive: the owner of {args.archive} has no certificate yet; it is issued with the next "
+                "enrolment (surfinspect signers add)"
+            )
+        write_bytes_atomic(args.out, cert.public_bytes(encoding))
+        owner = register.owner.printed_name
+    console.info(f"owner certificate of {owner} written to {args.out}")
+    console.info(f"SHA-256 fingerprint {certificate_sha256(cert)}")
+    console.info("trust it in the PDF reader to check the archive's signed reports")
+    return 0
