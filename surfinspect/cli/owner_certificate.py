@@ -16,8 +16,8 @@ import argparse
 from cryptography.hazmat.primitives import serialization
 
 from ..archive import pki
-from ..archive import store as archive
 from ..archive.certificates import certificate_sha256
+from ..archive.location import open_archive
 from ..errors import InputError
 from ..fsutil import write_bytes_atomic
 from ._checks import check_output_file
@@ -34,14 +34,19 @@ _ENCODINGS = {
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
     check_output_file("--out", args.out, suffixes=tuple(_ENCODINGS))
     encoding = _ENCODINGS[args.out[args.out.rfind(".") :].lower()]
-    with archive.Archive(args.archive) as arc:
+    with open_archive(args.archive) as arc:
         register = arc.register()
         cert = pki.owner_certificate_of(arc, register)
         if cert is None:

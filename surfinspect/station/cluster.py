@@ -45,8 +45,23 @@ def connect(scheduler: str):
         raise InputError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
 
 
+def _one_thread_for_opencv() -> None:
+    """A worker process runs one task per thread: OpenCV's own threads would oversubscribe its cores
+    (the local pool sets the same in its initializer); set in the task, so that a restarted worker has it too."""
+    import cv2
+
+    if cv2.getNumThreads() != 1:
+        cv2.setNumThreads(1)
+
+
+def _task(function: Callable, *args):
+    _one_thread_for_opencv()
+    return function(*args)
+
+
 def inspect_bytes(data: bytes, path: str, name: str, recipe: Recipe) -> dict:
     """One image's bytes inspected on a worker, as :func:`.batch._inspect_one` does it on the station."""
+    _one_thread_for_opencv()
     with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
         src = Path(tmp) / ("image" + Path(path).suffix)
         src.write_bytes(data)
