@@ -10,6 +10,8 @@ from reportlab.lib import colors
 from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer
 
 from .._version import __version__
+from ..pdfa import fonts
+from ..pdfa.document import DocumentInfo, archival_canvas, finish_archival
 from ..results import CAUTION
 from .layout import _BODY, _CELL, _FRAME_W, _MARGIN, PAGE_SIZE, _table, printable_text
 
@@ -46,18 +48,24 @@ def render_rejudge_summary(
     counts: dict[str, dict[str, int]],
     changed: Sequence[ChangedPart],
 ) -> bytes:
-    """The summary PDF: the recipe revisions compared, old × new verdict counts, and every changed part.
+    """The summary PDF (PDF/A-2b, the shipped fonts): the recipes compared, recorded × new counts, every changed part.
 
     ``counts[old][new]`` is the number of parts with that pair of verdicts.
     """
+    info = DocumentInfo(
+        title="Re-judgement of archived parts",
+        subject=f"surfinspect rejudge under {new_recipe}",
+        author="surfinspect",
+        keywords=f"rejudge; {new_recipe}; generated {generated_at}",
+    )
     buf = io.BytesIO()
 
     def page(c, doc) -> None:
         c.saveState()
-        c.setFont("Helvetica", 7.5)
+        c.setFont(fonts.SANS, 7.5)
         c.drawString(_MARGIN, _MARGIN + 6, f"Re-judgement under {new_recipe}")
         c.drawRightString(PAGE_SIZE[0] - _MARGIN, _MARGIN + 6, f"Page {doc.page} · surfinspect {__version__}")
-        c.setFont("Helvetica-Oblique", 6.8)
+        c.setFont(fonts.SANS_OBLIQUE, 6.8)
         c.drawCentredString(PAGE_SIZE[0] / 2, _MARGIN - 4, CAUTION)
         c.restoreState()
 
@@ -68,9 +76,6 @@ def render_rejudge_summary(
         rightMargin=_MARGIN,
         topMargin=_MARGIN,
         bottomMargin=_MARGIN + 24,
-        title="Re-judgement of archived parts",
-        author=f"surfinspect {__version__}",
-        invariant=1,
     )
     title = Paragraph("<b>Re-judgement of archived parts</b>", _BODY.clone("t", fontSize=14, leading=18))
     intro = Paragraph(
@@ -96,5 +101,10 @@ def render_rejudge_summary(
         story.append(_table(rows, widths, style))
     else:
         story.append(Paragraph("None: every part keeps its recorded verdict under the new recipe.", _BODY))
-    doc.build(story, onFirstPage=page, onLaterPages=page)
-    return buf.getvalue()
+    doc.build(
+        story,
+        onFirstPage=page,
+        onLaterPages=page,
+        canvasmaker=lambda target, **_: archival_canvas(target, info, pagesize=PAGE_SIZE),
+    )
+    return finish_archival(buf.getvalue(), info)

@@ -1,8 +1,10 @@
-"""What only the PostgreSQL index has: its schema version, keys a person can drop, its URL, concurrent writers."""
+"""What only the PostgreSQL index has: its schema version, keys a person can drop, its URL, a reused batch id.
+
+Four stations writing at once: tests/station/test_plant.py (real `batch` processes).
+"""
 
 from __future__ import annotations
 
-import multiprocessing
 import sys
 
 import pytest
@@ -113,38 +115,6 @@ def test_a_dropped_key_or_changed_type_is_a_finding(tmp_path, site, statement, s
 
 
 # ------------------------------------------------------------------------ concurrent stations
-
-
-def _station(url: str, folder: str, batch_id: str, recipe: str) -> None:
-    from pathlib import Path
-
-    images = sorted(Path(folder).glob("*.png"))
-    fill_batch(url, batch_id, images, Path(recipe))
-
-
-def test_concurrent_writers_keep_one_chain(tmp_path, site):
-    recipe = tmp_path / "r.yaml"
-    recipe.write_text(RECIPE_TEXT)
-    with arc.Archive(site, create=True):
-        pass
-    folders = []
-    for i in range(4):
-        write_images(tmp_path / f"in{i}", [f"P{i}-{n}.png" for n in range(6)], seed=i)
-        folders.append(str(tmp_path / f"in{i}"))
-    ctx = multiprocessing.get_context("spawn")
-    procs = [ctx.Process(target=_station, args=(str(site), f, f"B{i}", str(recipe))) for i, f in enumerate(folders)]
-    for p in procs:
-        p.start()
-    for p in procs:
-        p.join(120)
-    assert [p.exitcode for p in procs] == [0, 0, 0, 0]
-    with arc.Archive(site) as a:
-        assert sorted(b.batch_id for b in a.batches()) == ["B0", "B1", "B2", "B3"]
-        assert all(p.is_done for b in a.batches() for p in a.parts(b.batch_id))
-        events = a.events()
-    assert [e.seq for e in events] == list(range(1, len(events) + 1))
-    assert sum(e.kind == "part inspected" for e in events) == 24
-    assert ver.verify_archive(site).problems == []
 
 
 def test_two_stations_with_one_batch_id_are_refused_cleanly(tmp_path, site, capsys):

@@ -12,6 +12,7 @@ import time
 from pathlib import Path
 
 import pytest
+from pdfa_checks import assert_pdfa_2b
 from pypdf import PdfReader
 
 from surfinspect.archive import store as arc
@@ -92,6 +93,7 @@ def test_a_tighter_tolerance_lists_the_parts_that_now_fail(reference):
     text = "".join(page.extract_text() for page in PdfReader(io.BytesIO((out / "rejudge.pdf").read_bytes())).pages)
     assert "3 change verdict" in text and "0-lw-220-0002.png" in text and "lw-220-wall-panel rev 4" in text
     assert "does not replace" in text.replace("\n", " ")  # the caution
+    assert_pdfa_2b((out / "rejudge.pdf").read_bytes())  # archival, as every document the tool writes
 
 
 def test_batches_are_chosen_by_id_and_date(plant, tmp_path, capsys):
