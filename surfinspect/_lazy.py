@@ -43,3 +43,19 @@ def attach(
         return sorted(set(where) | submodules)
 
     return __getattr__, __dir__, sorted(where)
+
+
+class module:  # noqa: N801 - used like the module it stands for
+    """A module imported on first attribute access: ``archive = module("surfinspect.archive.store")``.
+
+    For a command module of the command line, whose heavy imports must wait until the command runs.
+    """
+
+    def __init__(self, name: str):
+        self._name = name
+
+    def __getattr__(self, attr: str):
+        return getattr(importlib.import_module(self._name), attr)
+
+    def __repr__(self) -> str:
+        return f"<module {self._name!r}, imported when first used>"

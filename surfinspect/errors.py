@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+#: Exit code of a usage or input error (fixed; :mod:`surfinspect.results` holds the verdict codes).
+EXIT_INPUT_ERROR = 2
+
 
 class InputError(Exception):
     """Bad input: a recipe, an image, a study table or a flag.

@@ -160,3 +160,92 @@ def check_output_file(
     for what, other in not_same_as:
         if other is not None and Path(other).resolve() == out.resolve():
             raise InputError(f"{flag}: {path} is also {what}; it would be overwritten (choose another name)")
+
+
+#: The list of files a command wrote into its output folder (one relative path a line), kept in that folder.
+WRITTEN_LIST = ".surfinspect-written"
+_OWNER_PREFIX = "# written for: "
+
+
+class OutputFolder:
+    """An output folder that never mixes runs: a folder holding anything is refused unless told.
+
+    :meth:`claim` (before the first write) refuses a folder that holds
+    anything, unless ``overwrite`` is given or the folder holds only what was
+    written before for the same ``owner`` (a batch's own export, written
+    again). With ``overwrite``, the files the tool listed there before
+    (:data:`WRITTEN_LIST`) are removed and nothing else. :meth:`finish` (after
+    the last write) lists every file the run added, so the next ``overwrite``
+    removes exactly those.
+    """
+
+    def __init__(self, path: str | os.PathLike, flag: str, *, overwrite: bool = False, owner: str | None = None):
+        self.path = check_output_dir(path, flag)
+        self.flag = flag
+        self.overwrite = overwrite
+        self.owner = owner
+        self._before: set[Path] | None = None  # set by claim()
+
+    def _listed(self) -> tuple[str | None, list[str]]:
+        try:
+            lines = (self.path / WRITTEN_LIST).read_text(encoding="utf-8").splitlines()
+        except (OSError, UnicodeDecodeError):
+            return None, []
+        owner = next((ln[len(_OWNER_PREFIX) :] for ln in lines if ln.startswith(_OWNER_PREFIX)), None)
+        return owner, [ln for ln in lines if ln and not ln.startswith("#")]
+
+    def _files(self) -> set[Path]:
+        if not self.path.is_dir():
+            return set()
+        return {p.relative_to(self.path) for p in self.path.rglob("*") if not p.is_dir()} - {Path(WRITTEN_LIST)}
+
+    def claim(self) -> OutputFolder:
+        """Check the folder may be written (see the class); with ``overwrite``, remove the earlier listed files."""
+        from .errors import InputError
+
+        entries = sorted(self._files())
+        owner, listed = self._listed()
+        same_owner = self.owner is not None and owner == self.owner and set(map(Path, listed)) >= set(entries)
+        if entries and not self.overwrite and not same_owner:
+            foreign = [e for e in entries if e.as_posix() not in listed] or entries
+            raise InputError(
+                f"{self.flag} {self.path}: folder is not empty ({len(entries)} file(s), e.g. {foreign[0]}); "
+                "allowed: a new or empty folder, or --overwrite to remove what surfinspect wrote there before"
+            )
+        if self.overwrite or same_owner:
+            root = self.path.resolve()
+            for rel in listed:
+                name = Path(rel)
+                if name.is_absolute() or ".." in name.parts:
+                    continue  # only names inside the folder
+                target = self.path / name
+                if not target.parent.resolve().is_relative_to(root):
+                    continue  # never through a linked folder out of it
+                if target.is_symlink() or (target.is_file() and target.resolve().is_relative_to(root)):
+                    target.unlink()
+            self._prune_empty_dirs()
+            with contextlib.suppress(FileNotFoundError):
+                (self.path / WRITTEN_LIST).unlink()
+        self._before = self._files()
+        return self
+
+    def _prune_empty_dirs(self) -> None:
+        root = self.path.resolve()
+        inside = (
+            p for p in self.path.rglob("*") if p.is_dir() and not p.is_symlink() and p.resolve().is_relative_to(root)
+        )
+        for d in sorted(inside, reverse=True):
+            with contextlib.suppress(OSError):
+                d.rmdir()  # only empty folders go
+
+    def finish(self) -> list[Path]:
+        """List (in :data:`WRITTEN_LIST`) and return the files this run added to the folder."""
+        if self._before is None:
+            return []  # not claimed (refused, or stopped before): nothing of this run is there
+        added = sorted(self._files() - self._before)
+        if added:
+            head = ["# files surfinspect wrote here; --overwrite removes these and nothing else"]
+            if self.owner is not None:
+                head.append(_OWNER_PREFIX + self.owner)
+            write_text_atomic(self.path / WRITTEN_LIST, "\n".join(head + [p.as_posix() for p in added]) + "\n")
+        return [self.path / p for p in added]

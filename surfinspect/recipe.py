@@ -61,12 +61,15 @@ REGION_DEFAULTS: dict[str, Any] = {
     "tolerance_deg": 3.0,
     "min_coherence": 0.2,
     "max_coherence": 0.1,
-    "max_defect_fraction": 0.02,
+    "max_deviating_fraction": 0.02,
     "cell_px": 64,
     "sigma_px": 1.0,
 }
 
 SHAPE_KEYS = ("rect", "polygon", "circle", "annulus")
+
+#: Keys renamed since: old name -> new name. The old name still loads, with a one-line notice.
+RENAMED_KEYS = {"max_defect_fraction": "max_deviating_fraction"}
 
 
 @dataclass(frozen=True)
@@ -117,10 +120,11 @@ class Region:
     tolerance_deg: float = REGION_DEFAULTS["tolerance_deg"]
     min_coherence: float = REGION_DEFAULTS["min_coherence"]
     max_coherence: float = REGION_DEFAULTS["max_coherence"]
-    max_defect_fraction: float = REGION_DEFAULTS["max_defect_fraction"]
+    max_deviating_fraction: float = REGION_DEFAULTS["max_deviating_fraction"]
     cell_px: int = REGION_DEFAULTS["cell_px"]
     sigma_px: float = REGION_DEFAULTS["sigma_px"]
     line: int = 0
+    lay_symbol: str = ""  # ``lay`` exactly as the recipe's author wrote it ("" when not given)
 
     @property
     def expected_lay_deg(self) -> float | tuple[float, ...] | None:
@@ -144,6 +148,7 @@ class Recipe:
     description: str = ""
     path: str = "<memory>"
     sha256: str = ""
+    notices: tuple[str, ...] = ()  # one line each: old key names read under their new names
 
     def units_to_px(self) -> float:
         """Pixels per recipe coordinate unit (1 without ``pixel_size_mm``)."""
@@ -157,6 +162,7 @@ class _Problems:
     def __init__(self, source: str):
         self.source = source
         self.items: list[tuple[int, str]] = []
+        self.notices: list[str] = []
 
     def add(self, line: int, path: str, text: str) -> None:
         self.items.append((line, f"{self.source}:{line}: {path}: {text}"))
@@ -254,6 +260,21 @@ class _Reader:
         return tuple(float(v) for v in value)
 
 
+def _rename_old_keys(r: _Reader, m: _Map, path: str) -> None:
+    """Read keys under their old names (:data:`RENAMED_KEYS`) as the new ones, with a notice each."""
+    for old, new in RENAMED_KEYS.items():
+        if old not in m:
+            continue
+        line = m.line_of(old)
+        if new in m:
+            r.p.add(line, _join(path, old), f"old name of {new}, which is given too (allowed: {new} only)")
+            del m[old]  # named once, not again as an unknown key
+            continue
+        m[new] = m.pop(old)
+        m.lines[new] = line
+        r.p.notices.append(f"{r.p.source}:{line}: {_join(path, old)}: old key name, read as {new} (rename it)")
+
+
 def _join(path: str, key: str) -> str:
     return f"{path}.{key}" if path else key
 
@@ -311,7 +332,7 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
     "tolerance_deg": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=45, lo_open=True),
     "min_coherence": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
     "max_coherence": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
-    "max_defect_fraction": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
+    "max_deviating_fraction": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
     "cell_px": lambda r, m, k, p: r.number(m, k, p, lo=8, hi=4096, integer=True),
     "sigma_px": lambda r, m, k, p: r.number(m, k, p, lo=0.5, hi=8),
 }
@@ -332,6 +353,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         names.add(name)
     if name:
         path = f"{path}({name})"
+    _rename_old_keys(r, m, path)
     r.unknown(m, _REGION_KEYS, path)
     shape = _parse_shape(r, m, path, allow_annulus=True)
     excludes: list[Shape] = []
@@ -432,6 +454,7 @@ def _parse_region(r: _Reader, m: Any, path: str, defaults: dict, names: set, lin
         lay_deg=lay_deg,
         centre=centre,
         line=m.line,
+        lay_symbol=m["lay"] if "lay" in m else "",
         **params,
     )
 
@@ -500,6 +523,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         if not isinstance(d, _Map):
             problems.add(doc.line_of("defaults"), "defaults", f"must be a mapping (got {_describe(d)})")
         else:
+            _rename_old_keys(r, d, "defaults")
             r.unknown(d, tuple(REGION_DEFAULTS), "defaults")
             for key, rule in _PARAM_RULES.items():
                 if key in d:
@@ -534,6 +558,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         description=description,
         path=source,
         sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),
+        notices=tuple(problems.notices),
     )
 
 

@@ -15,6 +15,8 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import errors
+
 SCHEMA = "surfinspect.part-result/1"
 
 #: Printed on every report, study page and target sheet.
@@ -40,9 +42,13 @@ class PartVerdict(str, enum.Enum):
     REVIEW = "review"
 
 
+#: The word for a part whose image could not be inspected (unreadable, refused): in JSON, CSV,
+#: ``show``, the console and the PDF alike. It is not a verdict; it counts as needing review.
+NOT_INSPECTED = "not-inspected"
+
 #: Exit code of a command that judged parts, by the worst part verdict (fixed).
 EXIT_CODES = {PartVerdict.ACCEPT: 0, PartVerdict.REJECT: 1, PartVerdict.REVIEW: 3}
-EXIT_INPUT_ERROR = 2
+EXIT_INPUT_ERROR = errors.EXIT_INPUT_ERROR
 
 
 def part_verdict(region_verdicts: Sequence[RegionVerdict]) -> PartVerdict:
@@ -101,6 +107,9 @@ class Patch:
     area_px: int
     bbox_mm: tuple[float, float] | None = None  # (width, height) in mm, when the recipe gives pixel_size_mm
     area_mm2: float | None = None
+    # (x, y, w, h) in mm in the part frame (from the datum origin, y down), when the recipe gives pixel_size_mm:
+    # the box of the patch's cells as a drawing would dimension it (for a rotated frame, the box around them)
+    position_mm: tuple[float, float, float, float] | None = None
 
 
 @dataclass(frozen=True)
@@ -131,12 +140,13 @@ class RegionResult:
     deviation_deg: float | None
     uncertainty_deg: float | None
     coherence: float
-    defect_area_fraction: float
+    deviating_area_fraction: float  # share of the region in patches of deviating lay
     patches: tuple[Patch, ...]
     histogram: Histogram
     verdict: RegionVerdict
     reasons: tuple[str, ...]
     lay_pattern: str = "directional"
+    lay_symbol: str = ""  # the recipe's ``lay`` as its author wrote it ("parallel", "=", ...); "" when not given
     outline_px: tuple[tuple[tuple[float, float], ...], ...] = ()  # outer outline(s) in image px
     exclude_px: tuple[tuple[tuple[float, float], ...], ...] = ()
     cells: CellGrid | None = None
@@ -235,13 +245,16 @@ def region_to_dict(r: RegionResult) -> dict:
     return {
         "name": r.name,
         "lay_pattern": r.lay_pattern,
+        "lay_symbol": r.lay_symbol,
         "expected_lay_deg": _expected_to_json(r.expected_lay_deg),
         "tolerance_deg": _num(r.tolerance_deg),
         "lay_deg": _num(r.lay_deg, 3),
         "deviation_deg": _num(r.deviation_deg, 3),
         "uncertainty_deg": _num(r.uncertainty_deg, 3),
         "coherence": _num(r.coherence, 4),
-        "defect_area_fraction": _num(r.defect_area_fraction, 5),
+        # the same share under two keys: the fixed contract's name, and the tool's one word for it
+        "defect_area_fraction": _num(r.deviating_area_fraction, 5),
+        "deviating_area_fraction": _num(r.deviating_area_fraction, 5),
         "patches": [
             {
                 "bbox_px": list(p.bbox_px),
@@ -251,6 +264,7 @@ def region_to_dict(r: RegionResult) -> dict:
                 "area_px": p.area_px,
                 **({"bbox_mm": [_num(v, 3) for v in p.bbox_mm]} if p.bbox_mm is not None else {}),
                 **({"area_mm2": _num(p.area_mm2, 3)} if p.area_mm2 is not None else {}),
+                **({"position_mm": [_num(v, 3) for v in p.position_mm]} if p.position_mm is not None else {}),
             }
             for p in r.patches
         ],
@@ -312,13 +326,14 @@ def region_from_dict(d: Mapping[str, Any]) -> RegionResult:
     return RegionResult(
         name=d["name"],
         lay_pattern=d.get("lay_pattern", "directional"),
+        lay_symbol=d.get("lay_symbol", ""),
         expected_lay_deg=_tuple_or_float(d["expected_lay_deg"]),
         tolerance_deg=float(d["tolerance_deg"]),
         lay_deg=d["lay_deg"],
         deviation_deg=d["deviation_deg"],
         uncertainty_deg=d["uncertainty_deg"],
         coherence=float(d["coherence"] or 0.0),
-        defect_area_fraction=float(d["defect_area_fraction"] or 0.0),
+        deviating_area_fraction=float(d.get("deviating_area_fraction", d.get("defect_area_fraction")) or 0.0),
         patches=tuple(
             Patch(
                 bbox_px=tuple(int(v) for v in p["bbox_px"]),
@@ -328,6 +343,7 @@ def region_from_dict(d: Mapping[str, Any]) -> RegionResult:
                 area_px=int(p["area_px"]),
                 bbox_mm=tuple(p["bbox_mm"]) if "bbox_mm" in p else None,
                 area_mm2=p.get("area_mm2"),
+                position_mm=tuple(p["position_mm"]) if "position_mm" in p else None,
             )
             for p in d["patches"]
         ),

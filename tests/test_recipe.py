@@ -60,7 +60,7 @@ def _problems(text: str) -> list[str]:
 def test_typo_key_is_named_with_its_line():
     problems = _problems(GOOD.replace("tolerance_deg: 1", "tolerence_deg: 1"))
     assert problems == [
-        "bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_defect_fraction, cell_px, sigma_px)"
+        "bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_deviating_fraction, cell_px, sigma_px)"
     ]
 
 
@@ -158,3 +158,63 @@ def test_crossed_directions_must_be_told_apart_by_the_tolerance():
     with pytest.raises(RecipeError, match="differ by more than twice"):
         parse_recipe(text.replace("[10, 14]", "[178, 2]"), "x.yaml")
     assert parse_recipe(text.replace("[10, 14]", "[10, 100]")).regions[0].lay_deg == (10.0, 100.0)
+
+
+# ---------------------------------------------------------------- renamed keys
+
+_OLD_KEY = """recipe: r
+revision: 1
+defaults:
+  max_defect_fraction: 0.05
+regions:
+  - name: face
+    rect: [0, 0, 10, 10]
+    lay: parallel
+    max_defect_fraction: 0.03
+  - name: edge
+    rect: [0, 0, 10, 10]
+    lay_deg: 90
+"""
+
+
+def test_old_key_loads_with_a_notice_naming_the_new_key():
+    r = parse_recipe(_OLD_KEY, "old.yaml")
+    assert [g.max_deviating_fraction for g in r.regions] == [0.03, 0.05]
+    assert r.notices == (
+        "old.yaml:4: defaults.max_defect_fraction: old key name, read as max_deviating_fraction (rename it)",
+        "old.yaml:9: regions[0](face).max_defect_fraction: old key name, read as max_deviating_fraction (rename it)",
+    )
+
+
+def test_new_key_loads_without_notice_and_both_together_are_refused():
+    new = _OLD_KEY.replace("max_defect_fraction", "max_deviating_fraction")
+    r = parse_recipe(new, "new.yaml")
+    assert r.notices == () and r.regions[0].max_deviating_fraction == 0.03
+    both = _OLD_KEY.replace(
+        "    max_defect_fraction: 0.03\n", "    max_defect_fraction: 0.03\n    max_deviating_fraction: 0.03\n"
+    )
+    with pytest.raises(
+        RecipeError, match=r"both.yaml:9: regions\[0\]\(face\)\.max_defect_fraction: old name of max_dev"
+    ):
+        parse_recipe(both, "both.yaml")
+
+
+def test_check_prints_the_notice_for_the_old_key_and_none_for_the_new(tmp_path, capsys):
+    from surfinspect.cli.main import main
+
+    old, new = tmp_path / "old.yaml", tmp_path / "new.yaml"
+    old.write_text(_OLD_KEY)
+    new.write_text(_OLD_KEY.replace("max_defect_fraction", "max_deviating_fraction"))
+    assert main(["check", str(old), str(new)]) == 0
+    out, err = capsys.readouterr()
+    assert out.count(": ok: recipe r") == 2
+    notices = err.splitlines()
+    assert len(notices) == 2 and all(n.startswith(f"surfinspect: notice: {old}:") for n in notices)
+    assert all("read as max_deviating_fraction" in n for n in notices)
+
+
+def test_lay_symbol_is_kept_as_written():
+    r = parse_recipe(_OLD_KEY, "old.yaml")
+    assert [g.lay_symbol for g in r.regions] == ["parallel", ""]
+    eq = parse_recipe(_OLD_KEY.replace("lay: parallel", 'lay: "="'), "eq.yaml")
+    assert eq.regions[0].lay_symbol == "=" and eq.regions[0].lay_deg == (0.0,)

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 from . import chain
 from .chain import GENESIS_SHA256, EventKind
-from .records import CLOCK_ALLOWANCE_S, parse_utc
+from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc
 from .register import Register
 from .schema import CHAINED_TABLES, TABLES, BatchRow, EventRow
 from .store import ERROR_SCHEMA, ERROR_VERDICT, Archive, index_rows_of
@@ -333,7 +333,7 @@ def check_results(ctx: Context) -> None:
                     f"{where}: its result names image {named[:12]}… but the index links image {str(p.image_sha256)[:12]}…"
                 )
             if result.get("schema") == ERROR_SCHEMA:
-                if p.verdict != ERROR_VERDICT:
+                if p.verdict not in (ERROR_VERDICT, OLD_ERROR_VERDICT):
                     ctx.fail(
                         f"{where}: the index says verdict {p.verdict!r}, the stored record says the part could not be inspected"
                     )

@@ -22,7 +22,7 @@ from typing import Any
 from . import chain, signing
 from .checks import Context, check_event, details_of
 from .objects import ObjectStore
-from .records import ERROR_SCHEMA, ERROR_VERDICT, image_set_sha256, index_rows_of
+from .records import ERROR_SCHEMA, OLD_ERROR_VERDICT, image_set_sha256, index_rows_of
 from .schema import EventRow
 
 __all__ = ["FORMAT_1", "format_of", "verify_format_1"]
@@ -162,7 +162,7 @@ def _check_results(ctx: Context, reader: _Reader, batch: dict, parts: list[dict]
             continue
         where = f"part {p['part_key']!r} in batch {bid!r}"
         if result.get("schema") == ERROR_SCHEMA:
-            if p["verdict"] != ERROR_VERDICT:
+            if p["verdict"] != OLD_ERROR_VERDICT:  # the first format's word
                 ctx.fail(
                     f"{where}: the index says verdict {p['verdict']!r}, the stored record says it was not inspected"
                 )

@@ -7,14 +7,15 @@ from datetime import datetime, timedelta, timezone
 from typing import Any, Mapping, Sequence
 
 from ..errors import InputError
+from ..results import NOT_INSPECTED, PartVerdict
 from ..results import SCHEMA as RESULT_SCHEMA
-from ..results import PartVerdict
 from . import chain
 from .schema import PartRow
 
 __all__ = [
     "ERROR_SCHEMA",
     "ERROR_VERDICT",
+    "OLD_ERROR_VERDICT",
     "utc_now",
     "image_set_sha256",
     "error_record_json",
@@ -28,7 +29,10 @@ __all__ = [
 
 #: Schema of the record stored for a part whose image could not be inspected.
 ERROR_SCHEMA = "surfinspect.part-error/1"
-ERROR_VERDICT = "error"
+#: The index's verdict of such a part: the word every output uses for it (``results.NOT_INSPECTED``).
+ERROR_VERDICT = NOT_INSPECTED
+#: The word archives written before it held for the same thing (still read as ``ERROR_VERDICT``).
+OLD_ERROR_VERDICT = "error"
 
 
 def utc_now() -> str:
@@ -66,10 +70,11 @@ def check_batch_id(batch_id: str) -> str:
 
 
 def verdict_counts(parts: Sequence[PartRow]) -> dict[str, int]:
-    """Number of parts per verdict (accept, reject, review, error, pending)."""
+    """Number of parts per verdict (accept, reject, review, not-inspected, pending)."""
     counts = {v.value: 0 for v in PartVerdict} | {ERROR_VERDICT: 0, "pending": 0}
     for p in parts:
-        counts[p.verdict or "pending"] += 1
+        verdict = ERROR_VERDICT if p.verdict == OLD_ERROR_VERDICT else p.verdict
+        counts[verdict or "pending"] += 1
     return counts
 
 

@@ -32,7 +32,7 @@ from ..results import SIGNOFF_MEANINGS, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, owner_certificate
 from .pdf_signature import sign_pdf, signature_reason
-from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
+from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
 from .register import OWNER_ROLE, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
 from .store import ERROR_VERDICT, Archive, utc_now
@@ -358,7 +358,7 @@ def record_disposition(
         raise InputError(f"--decision: unknown decision (got {decision!r}, allowed {', '.join(DECISIONS)})")
     archive.batch(batch_id)
     part = archive.part(batch_id, part_key)
-    if part.verdict not in ("reject", "review", ERROR_VERDICT):
+    if part.verdict not in ("reject", "review", ERROR_VERDICT, OLD_ERROR_VERDICT):
         raise InputError(
             f"--part: part {part_key!r} of batch {batch_id!r} is {part.verdict or 'not inspected yet'}; "
             "a disposition is for a part judged reject or review, or one that could not be inspected"

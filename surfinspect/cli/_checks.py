@@ -3,11 +3,26 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
+from typing import TYPE_CHECKING
 
 from ..errors import InputError
 from ..fsutil import check_output_file  # output files are checked in fsutil, beside the writes
 
-__all__ = ["check_output_file", "check_number"]
+if TYPE_CHECKING:
+    from ..recipe import Recipe
+
+__all__ = ["check_output_file", "check_number", "load_recipe", "batch_owner"]
+
+
+def load_recipe(path: str | Path, console) -> Recipe:
+    """Load a recipe and print its notices (old key names read under their new names), one line each."""
+    from ..recipe import load_recipe as _load_recipe
+
+    recipe = _load_recipe(path)
+    for line in recipe.notices:
+        console.notice(line)
+    return recipe
 
 
 def check_number(
@@ -28,3 +43,11 @@ def check_number(
     else:
         allowed = f"{lo:g} {'<' if lo_open else '<='} value {'<' if hi_open else '<='} {hi:g}"
     raise InputError(f"{flag}: must be {allowed} (got {value:g})")
+
+
+def batch_owner(archive: str | Path, batch_id: str) -> str:
+    """Whose files an output folder holds when a batch's files are copied there (batch --out, show --out)."""
+    from ..archive.location import is_database_url, parse_location
+
+    where = parse_location(archive).display if is_database_url(archive) else Path(archive).resolve()
+    return f"batch {batch_id} of the archive {where}"

@@ -11,8 +11,10 @@ import argparse
 import getpass
 import sys
 
-from ..archive import signing
+from .._lazy import module
 from ..errors import InputError
+
+signing = module("surfinspect.archive.signing")  # cryptography loads when a key is opened
 
 __all__ = ["add_key_arguments", "open_key", "new_passphrase"]
 

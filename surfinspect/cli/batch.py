@@ -18,11 +18,15 @@ import threading
 from pathlib import Path
 from typing import Iterator
 
-from ..archive.location import open_archive
-from ..errors import InputError
-from ..station import batch
+from .._lazy import module
+from ..fsutil import OutputFolder
+from ._checks import batch_owner, load_recipe
 from ._keys import open_key
 from .console import Console
+
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
+batch = module("surfinspect.station.batch")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
 
@@ -51,7 +55,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
-        "--out", metavar="DIR", help="also write each part's JSON and overlay, report.pdf and regions.csv here"
+        "--out",
+        metavar="DIR",
+        help="also write each part's JSON and overlay, report.pdf and regions.csv here "
+        "(a new or empty folder, or one holding this batch's earlier copy)",
+    )
+    parser.add_argument(
+        "--overwrite",
+        action="store_true",
+        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
     )
     parser.add_argument(
         "--station-key",
@@ -131,14 +143,22 @@ def run(args: argparse.Namespace, console: Console) -> int:
         archive_dir=args.archive,
         batch_id=args.batch_id,
         jobs=args.jobs,
+        scheduler=args.scheduler,
         operator=args.operator,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
-        scheduler=args.scheduler,
         station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
     )
+    load_recipe(args.recipe, console)  # its notices; a bad recipe stops here, before the output folder is touched
+    folder = None
+    if args.out:
+        folder = OutputFolder(
+            args.out, "--out", overwrite=args.overwrite, owner=batch_owner(args.archive, args.batch_id)
+        )
     progress = _Progress(console)
     try:
+        if folder is not None:
+            folder.claim()
         with _stop_signals_raise():
             outcome = batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
@@ -152,26 +172,32 @@ def run(args: argparse.Namespace, console: Console) -> int:
         return 128 + stop.signum
     finally:
         progress.close()
+        written = folder.finish() if folder is not None else []
     counts = outcome.counts
     if outcome.was_finished:
         console.info(f"batch {outcome.batch_id} was already finished: nothing inspected")
     elif outcome.resumed:
         console.info(f"batch {outcome.batch_id} resumed: {outcome.inspected_now} part(s) inspected now")
-    summary = ", ".join(f"{counts[v]} {v}" for v in ("accept", "reject", "review", "error", "pending") if counts[v])
+    summary = ", ".join(
+        f"{counts[v]} {v}" for v in ("accept", "reject", "review", archive.ERROR_VERDICT, "pending") if counts[v]
+    )
     console.info(f"batch {outcome.batch_id}: {len(outcome.parts)} parts: {summary}")
+    if not args.recursive:
+        _say_what_sub_folders_hold(args, console)
     for key, message in outcome.errors:
-        console.warn(f"{key}: not inspected: {message}")
+        console.warn(f"{key}: {archive.ERROR_VERDICT}: {message}")
     if outcome.interruption:
         console.error(f"batch {outcome.batch_id} is not finished: {outcome.interruption}")
-    elif args.out:
-        console.info(f"report, CSV, results and overlays written to {args.out}")
+    elif written:
+        console.info(f"report, CSV, results and overlays: wrote {len(written)} file(s) to {args.out}")
     else:
         _say_where_the_report_is(args, console)
     return outcome.exit_code
 
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
-    with open_archive(args.archive) as arc:
+
+    with location.open_archive(args.archive) as arc:
         report = arc.batch(args.batch_id).report_sha256
         if report is None:
             return
@@ -180,3 +206,20 @@ def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None
         "readable copies (report.pdf, regions.csv, each part's JSON and overlay): "
         f"surfinspect show --archive {shlex.quote(args.archive)} --batch-id {args.batch_id} --out DIR"
     )
+
+
+def _say_what_sub_folders_hold(args: argparse.Namespace, console: Console) -> None:
+    """Without --recursive, say how many images the folder's sub-folders hold that were not taken."""
+    from ..errors import InputError
+
+    own = [Path(args.archive)] + ([Path(args.out)] if args.out else [])
+    try:
+        below = [key for key, _ in batch.discover_images(Path(args.folder), recursive=True, exclude=own) if "/" in key]
+    except InputError:
+        return
+    if below:
+        folders = sorted({key.rsplit("/", 1)[0] for key in below})
+        console.notice(
+            f"{len(below)} image(s) in {len(folders)} sub-folder(s) of {args.folder} were not taken "
+            f"(first: {folders[0]}/); give --recursive to inspect them too"
+        )

@@ -11,17 +11,15 @@ from __future__ import annotations
 
 import argparse
 import json
+from typing import TYPE_CHECKING
 
 from ..errors import InputError
 from ..fsutil import write_text_atomic
-from ..measure.engine import inspect_image
-from ..measure.imaging import read_image
-from ..measure.orientation import wrap_deviation
-from ..qualify import bias, gauge_forms
-from ..recipe import load_recipe
-from ..results import EXIT_CODES, PartVerdict
-from ._checks import check_number, check_output_file
+from ._checks import check_number, check_output_file, load_recipe
 from .console import Console
+
+if TYPE_CHECKING:
+    from ..qualify import bias
 
 HELP = "measure known-angle target images: bias and repeatability per nominal angle, linearity line"
 
@@ -43,13 +41,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..measure.engine import inspect_image
+    from ..measure.imaging import read_image
+    from ..measure.orientation import wrap_deviation
+    from ..qualify import bias, gauge_forms
+    from ..results import EXIT_CODES, PartVerdict
+
     check_number("--max-bias", args.max_bias, lo=0.0, lo_open=True)
     if args.nominal_lay is not None and not 0.0 <= args.nominal_lay < 180.0:
         raise InputError(f"--nominal-lay: {args.nominal_lay:g} is outside the allowed range 0 <= lay < 180 degrees")
     if args.json:
         inputs = [("the recipe", args.recipe), *(("an input image", image) for image in args.images)]
         check_output_file("--json", args.json, not_same_as=inputs)
-    recipe = load_recipe(args.recipe)
+    recipe = load_recipe(args.recipe, console)
     names = [r.name for r in recipe.regions]
     wanted = args.region or names
     unknown = [n for n in wanted if n not in names]
@@ -111,6 +115,7 @@ def _fmt(v: float | None, spec: str = "+.4f") -> str:
 
 
 def _report(study: bias.BiasStudy, console: Console) -> None:
+
     level = f"{100 * study.confidence:g}%"
     console.table(
         ["nominal °", "n", "mean measured °", "bias °", "repeatability °", f"bias {level} CI °", "p (bias = 0)"],

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ..recipe import load_recipe
+from ._checks import load_recipe
 from .console import Console
 
 HELP = "validate recipe files without an image (exit 0 when valid, 2 listing every problem)"
@@ -20,7 +20,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     problems: list[str] = []
     for path in args.recipes:
         try:
-            r = load_recipe(path)
+            r = load_recipe(path, console)
         except RecipeError as exc:
             problems.extend(exc.problems)
             continue

@@ -28,6 +28,11 @@ class Console:
     def warn(self, text: str) -> None:
         print(f"surfinspect: warning: {text}", file=self.err, flush=True)
 
+    def notice(self, text: str) -> None:
+        """Something to act on later that does not stop the run (an old recipe key name, ...)."""
+        if not self.quiet:
+            print(f"surfinspect: notice: {text}", file=self.err, flush=True)
+
     def table(self, header: Sequence[str], rows: Sequence[Sequence[object]]) -> None:
         """Print a left-aligned text table; numbers right-aligned."""
         if self.quiet:

@@ -4,12 +4,15 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures
-from ..archive.location import open_archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
-HELP = f"record a signed disposition ({', '.join(signatures.DECISIONS)}) of a rejected or doubtful part"
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
+
+HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a part judged reject or review, or not-inspected"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -27,7 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with open_archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         arc.part(args.batch_id, args.part)  # an unknown batch or part is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

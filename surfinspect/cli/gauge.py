@@ -14,20 +14,24 @@ from __future__ import annotations
 import argparse
 import json
 from pathlib import Path
+from typing import TYPE_CHECKING
 
+from .._lazy import module
 from ..errors import InputError
 from ..fsutil import write_text_atomic
-from ..qualify import gauge, gauge_forms, study_table
 from ._checks import check_number, check_output_file
 from .console import Console
 
+if TYPE_CHECKING:
+    from ..qualify import study_table
+
+gauge = module("surfinspect.qualify.gauge")
+gauge_forms = module("surfinspect.qualify.gauge_forms")
+
 HELP = "analyse a gauge R&R study table (part, appraiser, trial, value) by the ANOVA method"
 
-EXIT_BY_VERDICT = {
-    gauge.GaugeVerdict.ACCEPTABLE: 0,
-    gauge.GaugeVerdict.NOT_ACCEPTABLE: 1,
-    gauge.GaugeVerdict.CONDITIONAL: 3,
-}
+#: Exit code by the study's verdict (``GaugeVerdict`` values).
+EXIT_BY_VERDICT = {"acceptable": 0, "not-acceptable": 1, "conditional": 3}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -35,12 +39,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "study", metavar="STUDY.csv", help="study table with columns part, appraiser, trial and value (or image)"
     )
     parser.add_argument(
-        "--tolerance",
+        "--tolerance-width",
         required=True,
         type=float,
-        metavar="T",
-        help="tolerance width USL - LSL in the units of the values (a recipe tolerance of ±3° is 6)",
+        metavar="W",
+        help="the full tolerance width USL - LSL in the units of the values (a recipe tolerance of ±3° is 6)",
     )
+    parser.add_argument("--tolerance", type=float, dest="old_tolerance", help=argparse.SUPPRESS)
     parser.add_argument("--recipe", metavar="RECIPE", help="for a table of images: the recipe to inspect them with")
     parser.add_argument(
         "--region",
@@ -51,9 +56,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--pdf", metavar="FILE", help="write the one-page study report as PDF")
     parser.add_argument(
         "--basis",
-        choices=("both", "tolerance", "total-variation"),
-        default="both",
-        help="which %%GRR the verdict is judged on (default: the larger of the two)",
+        choices=("larger", "tolerance", "total-variation"),
+        default="larger",
+        help="which %%GRR the verdict is judged on: the larger of %%GRR of tolerance and of total variation "
+        "(default), or one of them",
     )
     parser.add_argument(
         "--resolution",
@@ -64,9 +70,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--interaction-alpha",
         type=float,
-        default=gauge.INTERACTION_ALPHA,
+        default=0.25,
         metavar="A",
-        help="pool the part x appraiser interaction when its p-value is at least A (default %(default)s)",
+        help="pool the part x appraiser interaction into repeatability when its p-value is at least A "
+        "(default %(default)s: the preliminary test of Bancroft, Biometrics 20(3), 1964, doi:10.2307/2528486)",
     )
 
 
@@ -98,7 +105,14 @@ def _image_measure(recipe_path: str, region_name: str | None) -> study_table.Mea
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    check_number("--tolerance", args.tolerance, lo=0.0, lo_open=True)
+    from ..qualify import study_table
+
+    if args.old_tolerance is not None:
+        raise InputError(
+            "--tolerance: renamed --tolerance-width (the full width USL - LSL; a recipe tolerance of ±3° is 6), "
+            "so that it is not read as a ± tolerance"
+        )
+    check_number("--tolerance-width", args.tolerance_width, lo=0.0, lo_open=True)
     check_number("--resolution", args.resolution, lo=0.0)
     check_number("--interaction-alpha", args.interaction_alpha, lo=0.0, hi=1.0, lo_open=True, hi_open=True)
     if args.region and not args.recipe:
@@ -112,7 +126,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     table = study_table.read_study_csv(args.study, measure=measure)
     study = gauge.gauge_rr(
         table.values,
-        tolerance=args.tolerance,
+        tolerance=args.tolerance_width,
         parts=table.parts,
         appraisers=table.appraisers,
         interaction_alpha=args.interaction_alpha,
@@ -129,7 +143,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
         write_gauge_pdf(study, args.pdf)
         console.info(f"wrote {args.pdf}")
-    return EXIT_BY_VERDICT[study.verdict]
+    return EXIT_BY_VERDICT[study.verdict.value]
 
 
 def report(study: gauge.GaugeStudy, console: Console) -> None:
@@ -139,6 +153,10 @@ def report(study: gauge.GaugeStudy, console: Console) -> None:
         f"{study.n_trials} trials, tolerance width {study.tolerance:g}"
     )
     console.info(f"model: {study.model_reason}")
+    console.info(
+        f"ANOVA ({'with the interaction' if study.model == 'interaction' else 'interaction pooled'}; "
+        "the JSON holds both tables):"
+    )
     console.table(gauge_forms.ANOVA_HEADER, gauge_forms.anova_text_rows(study.anova))
     console.info("")
     console.table(gauge_forms.COMPONENT_HEADER, gauge_forms.component_text_rows(study))
@@ -149,3 +167,5 @@ def report(study: gauge.GaugeStudy, console: Console) -> None:
     console.info(f"verdict: gauge {study.verdict.value}")
     for reason in study.reasons:
         console.info(f"  - {reason}")
+    for warning in study.warnings:
+        console.warn(warning)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signing
 from ._checks import check_output_file
 from ._keys import new_passphrase
 from .console import Console
@@ -33,6 +32,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..archive import signing
+
     check_output_file("--out", args.out)
     passphrase = new_passphrase(args)
     key = signing.write_key_pair(args.out, args.name, passphrase=passphrase)

@@ -3,6 +3,12 @@
 Each sub-command lives in ``surfinspect/cli/<name>.py`` and provides
 ``HELP`` (one line), ``add_arguments(parser)`` and ``run(args, console) -> int``.
 Input errors raised anywhere below become one line on stderr and exit code 2.
+
+Start-up: a command module imports only the standard library and the light
+shared modules at module level (its heavy imports - OpenCV, SciPy, scikit-image,
+reportlab, cryptography, NumPy - happen inside ``run``), and only the chosen
+command's ``add_arguments`` runs, so ``--version``, ``--help`` and ``check``
+start in a few tens of milliseconds (``tests/benchmarks/bench_startup.py``).
 """
 
 from __future__ import annotations
@@ -14,8 +20,7 @@ from typing import Sequence
 
 from .._version import __version__
 from ..archive.backend import IndexBusy, IndexDamaged
-from ..errors import InputError
-from ..results import EXIT_INPUT_ERROR
+from ..errors import EXIT_INPUT_ERROR, InputError
 from .console import Console
 
 #: Sub-commands in the order ``--help`` lists them.
@@ -47,7 +52,8 @@ class _Parser(argparse.ArgumentParser):
         raise SystemExit(EXIT_INPUT_ERROR)
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The parser of every command; with ``only``, the flags of that command alone ("": none; faster)."""
     parser = _Parser(prog="surfinspect", description="Measure and judge the surface lay of panels.")
     parser.add_argument("--version", action="version", version=f"surfinspect {__version__}")
     parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
@@ -66,13 +72,16 @@ def build_parser() -> argparse.ArgumentParser:
                 continue  # command not built yet
             raise
         p = sub.add_parser(name, help=module.HELP, description=module.HELP, parents=[common])
-        module.add_arguments(p)
+        if only is None or only == name:
+            module.add_arguments(p)
         p.set_defaults(_run=module.run, _parser=p)
     return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    words = list(sys.argv[1:] if argv is None else argv)
+    chosen = next((w for w in words if not w.startswith("-")), None)
+    parser = build_parser(chosen if chosen in COMMANDS else "")  # "": the list of commands only
     args, unknown = parser.parse_known_args(argv)
     if unknown:  # name them with the sub-command's own usage, not the top-level one
         getattr(args, "_parser", parser).error(f"unrecognized arguments: {' '.join(unknown)}")

@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures
-from ..archive.location import open_archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
+
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "give an archive its owner once (the key that enrols and revokes signers)"
 
@@ -32,7 +35,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     key = open_key(args.key, args.passphrase_env, "--key")
-    with open_archive(args.archive, create=True) as arc:
+    with location.open_archive(args.archive, create=True) as arc:
         row = signatures.init_owner(arc, key, args.name)
         archive_id = arc.archive_id
     console.info(f"archive {args.archive} (id {archive_id}): owner {row.printed_name}, key {row.key_fingerprint}")

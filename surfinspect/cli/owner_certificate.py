@@ -13,24 +13,20 @@ from __future__ import annotations
 
 import argparse
 
-from cryptography.hazmat.primitives import serialization
-
-from ..archive import pki
-from ..archive.certificates import certificate_sha256
-from ..archive.location import open_archive
+from .._lazy import module
 from ..errors import InputError
 from ..fsutil import write_bytes_atomic
 from ._checks import check_output_file
 from .console import Console
 
+pki = module("surfinspect.archive.pki")
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
+
 HELP = "export the archive owner's certificate (the one customers trust to check signed reports)"
 
-_ENCODINGS = {
-    ".pem": serialization.Encoding.PEM,
-    ".cer": serialization.Encoding.DER,
-    ".crt": serialization.Encoding.DER,
-    ".der": serialization.Encoding.DER,
-}
+#: Certificate file suffix -> encoding (``cryptography``'s ``serialization.Encoding`` member name).
+_ENCODINGS = {".pem": "PEM", ".cer": "DER", ".crt": "DER", ".der": "DER"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -44,9 +40,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from cryptography.hazmat.primitives import serialization
+
+    from ..archive.certificates import certificate_sha256
+
     check_output_file("--out", args.out, suffixes=tuple(_ENCODINGS))
-    encoding = _ENCODINGS[args.out[args.out.rfind(".") :].lower()]
-    with open_archive(args.archive) as arc:
+    encoding = getattr(serialization.Encoding, _ENCODINGS[args.out[args.out.rfind(".") :].lower()])
+    with location.open_archive(args.archive) as arc:
         register = arc.register()
         cert = pki.owner_certificate_of(arc, register)
         if cert is None:

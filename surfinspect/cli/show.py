@@ -10,12 +10,15 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import store as archive
-from ..archive.location import open_archive
+from .._lazy import module
 from ..errors import InputError
-from ..fsutil import ensure_output_dir
-from ..station import batch
+from ..fsutil import OutputFolder
+from ._checks import batch_owner
 from .console import Console
+
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
+batch = module("surfinspect.station.batch")
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
 
@@ -31,7 +34,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--out",
         metavar="DIR",
-        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named",
+        help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named "
+        "(a new or empty folder, or one holding this batch's earlier copy)",
+    )
+    parser.add_argument(
+        "--overwrite",
+        action="store_true",
+        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
     )
 
 
@@ -46,14 +55,20 @@ def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
 def run(args: argparse.Namespace, console: Console) -> int:
     if args.out and args.batch_id is None:
         raise InputError("--out: needs --batch-id (the batch whose files to copy out)")
-    with open_archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         if args.batch_id is None:
             _show_batches(arc, console)
             return 0
         _show_batch(arc, args.batch_id, console)
         if args.out:
-            out = ensure_output_dir(args.out, "--out")
-            written = batch.export_batch(arc, args.batch_id, out)
+            folder = OutputFolder(
+                args.out, "--out", overwrite=args.overwrite, owner=batch_owner(args.archive, args.batch_id)
+            ).claim()
+            try:
+                batch.export_batch(arc, args.batch_id, folder.path)
+            finally:
+                written = folder.finish()
+            out = folder.path
             console.info(f"{len(written)} file(s) of batch {args.batch_id} copied to {out}")
     return 0
 
@@ -71,7 +86,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
                 counts["accept"],
                 counts["reject"],
                 counts["review"],
-                counts["error"],
+                counts[archive.ERROR_VERDICT],
                 "finished" if b.is_finished else f"unfinished ({counts['pending']} to do)",
                 _signoff_state(arc.signoffs(b.batch_id)),
             ]
@@ -80,7 +95,19 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
         console.info(f"archive {arc.location}: no batches yet")
         return
     console.table(
-        ["batch", "recipe", "started (UTC)", "parts", "accept", "reject", "review", "error", "state", "sign-off"], rows
+        [
+            "batch",
+            "recipe",
+            "started (UTC)",
+            "parts",
+            "accept",
+            "reject",
+            "review",
+            archive.ERROR_VERDICT,
+            "state",
+            "sign-off",
+        ],
+        rows,
     )
     events, head = arc.chain_head()
     console.info(f"audit trail: {events} events, head {head}")
@@ -109,7 +136,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
             note = ", ".join(f"{r['name']}: {r['verdict']}" for r in result["regions"] if r["verdict"] != "pass")
             note = note or "; ".join(result.get("reasons", []))
         rows.append([p.part_key, p.verdict or "pending", note])
-    console.table(["part", "verdict", "regions not passed / error"], rows)
+    console.table(["part", "verdict", "regions not passed, or the reason"], rows)
     signoffs = arc.signoffs(batch_id)
     if signoffs:
         console.table(

@@ -12,15 +12,18 @@ import argparse
 import shlex
 from pathlib import Path
 
-from ..archive import signatures
-from ..archive.location import open_archive
+from .._lazy import module
 from ..fsutil import write_bytes_atomic
-from ..station import batch
 from ._checks import check_output_file
 from ._keys import add_key_arguments, open_key
 from .console import Console
 
-HELP = f"sign a finished batch off ({', '.join(signatures.MEANINGS)}) and store the signed report"
+signatures = module("surfinspect.archive.signatures")
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
+batch = module("surfinspect.station.batch")
+
+HELP = "sign a finished batch off (released, withheld or examined) and store the signed report"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -47,7 +50,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.out:
         check_output_file("--out", args.out, suffixes=(".pdf",), not_same_as=[("the --key file", args.key)])
         out = Path(args.out)
-    with open_archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

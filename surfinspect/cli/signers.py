@@ -9,11 +9,14 @@ from __future__ import annotations
 
 import argparse
 
-from ..archive import signatures, signing
-from ..archive import store as archive
-from ..archive.location import open_archive
+from .._lazy import module
 from ._keys import add_key_arguments, open_key
 from .console import Console
+
+signatures = module("surfinspect.archive.signatures")
+signing = module("surfinspect.archive.signing")
+archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "enrol, revoke and list the keys that may sign in an archive"
 
@@ -55,7 +58,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with open_archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         if args.action == "list":
             _list(arc, console)
             return 0

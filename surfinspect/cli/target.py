@@ -10,7 +10,6 @@ from __future__ import annotations
 import argparse
 
 from ..errors import InputError
-from ..qualify import targets
 from ._checks import check_output_file
 from .console import Console
 
@@ -25,6 +24,8 @@ def _angles(text: str) -> list[float]:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from ..qualify import targets
+
     parser.add_argument(
         "--lay",
         required=True,
@@ -67,6 +68,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    from ..qualify import targets
+
     kind = "square" if args.square else "sine"
     size = (args.size_mm[0], args.size_mm[1])
     if args.recipe and not args.png:

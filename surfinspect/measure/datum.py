@@ -31,7 +31,6 @@ from typing import Literal
 
 import cv2
 import numpy as np
-from skimage.filters import threshold_otsu
 
 from surfinspect.errors import InputError
 
@@ -337,7 +336,7 @@ def find_part_frame(
 
     skew_deg = _skew_deg(lines, residuals)
     if abs(skew_deg) > max_skew_deg:
-        raise DatumError(f"part is skewed {skew_deg:.2f} deg, more than max_skew_deg {max_skew_deg:.2f} deg")
+        raise DatumError(f"part is rotated {skew_deg:.2f} deg, more than max_skew_deg {max_skew_deg:.2f} deg")
     return _frame_from_corners(corners, skew_deg, x_axis, quality)
 
 
@@ -376,6 +375,8 @@ def _part_mask(smoothed: np.ndarray) -> tuple[np.ndarray, bool, float]:
     low, high = float(smoothed.min()), float(smoothed.max())
     if high - low < 1e-3:
         raise DatumError(f"no part found: the image is uniform (grey level {low:.3f})")
+    from skimage.filters import threshold_otsu  # here, not at import: scikit-image costs a second to load
+
     threshold = float(threshold_otsu(smoothed))
     bright = smoothed > threshold
     share_bright = float(bright.mean())

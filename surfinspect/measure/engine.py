@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import PurePath
 
 import cv2
@@ -46,14 +46,19 @@ THREADS = 2
 class Frame:
     """Maps recipe coordinates (datum frame, y measured downward) to image pixels.
 
-    ``rotation_deg`` is the frame's counter-clockwise skew against the image
-    axes as seen on screen; ``px_per_unit`` converts recipe units (pixels or
-    mm) to image pixels.
+    ``rotation_deg`` is the frame's rotation against the image axes,
+    counter-clockwise positive as seen on screen (the sign of the lay);
+    ``px_per_unit`` converts recipe units (pixels or mm) to image pixels.
+    ``view_px`` (datum ``image`` only) is the image's size: the recipe's
+    regions are drawn on that rectangle of the frame, and where the camera's
+    rotation turns its corners off the image, a region is cut at the image's
+    border instead of refused.
     """
 
     origin_px: tuple[float, float] = (0.0, 0.0)
     rotation_deg: float = 0.0
     px_per_unit: float = 1.0
+    view_px: tuple[float, float] | None = None
 
     def to_image(self, points) -> np.ndarray:
         """(K, 2) recipe coordinates -> (K, 2) image pixel coordinates (x, y down)."""
@@ -106,13 +111,19 @@ def frame_for(recipe: Recipe, image: np.ndarray) -> tuple[Frame, DatumInfo]:
                 "corner_error_deg": round(float(q.corner_error_deg), 4),
                 "outlier_share": round(float(q.outlier_share), 4),
                 "edge_points": int(q.edge_points),
-                "skew_deg": round(float(pf.skew_deg), 4),
+                "fixture_rotation_deg": round(float(pf.skew_deg), 4),  # in [-45, 45): squares the sides
             },
         )
         return frame, info
-    frame = Frame(rotation_deg=recipe.camera_rotation_deg, px_per_unit=ppu)
+    # the camera's rotation pivots about the image centre: the frame's point at the centre of an
+    # image-sized rectangle is the image centre, so +a and -a turn a full-frame region alike
+    rows, cols = image.shape[:2]
+    centre = np.array([cols / 2.0, rows / 2.0])
+    turned = Frame(rotation_deg=recipe.camera_rotation_deg, px_per_unit=ppu).to_image([centre / ppu])[0]
+    origin = (float(centre[0] - turned[0]), float(centre[1] - turned[1]))
+    frame = Frame(origin_px=origin, rotation_deg=recipe.camera_rotation_deg, px_per_unit=ppu, view_px=(cols, rows))
     return frame, DatumInfo(
-        kind="image", rotation_deg=recipe.camera_rotation_deg, origin_px=(0.0, 0.0), pixel_size_mm=recipe.pixel_size_mm
+        kind="image", rotation_deg=recipe.camera_rotation_deg, origin_px=origin, pixel_size_mm=recipe.pixel_size_mm
     )
 
 
@@ -142,7 +153,7 @@ def region_masks(region: Region, frame: Frame, image_shape: tuple[int, int], rec
     xmin, ymin = np.floor(pts.min(axis=0)).astype(int)
     xmax, ymax = np.ceil(pts.max(axis=0)).astype(int)
     where = f"{recipe_path}:{region.line}: regions({region.name})"
-    if xmin < -0.5 or ymin < -0.5 or xmax > cols + 0.5 or ymax > rows + 0.5:
+    if (xmin < -0.5 or ymin < -0.5 or xmax > cols + 0.5 or ymax > rows + 0.5) and not _in_view(region, frame):
         raise InputError(
             f"{where}: region lies outside the image (spans x {pts[:, 0].min():.0f}..{pts[:, 0].max():.0f}, "
             f"y {pts[:, 1].min():.0f}..{pts[:, 1].max():.0f} px; image is {cols}x{rows} px)"
@@ -169,6 +180,28 @@ def region_masks(region: Region, frame: Frame, image_shape: tuple[int, int], rec
         return tuple((float(x), float(y)) for x, y in ring)
 
     return (xmin, ymin, w, h), mask.astype(bool), tuple(as_tuple(r) for r in outer), tuple(as_tuple(r) for r in holes)
+
+
+def _patches_in_part_frame(result, frame: Frame, pixel_size_mm: float | None):
+    """Give each patch its box in the part frame, in mm (x, y from the datum origin, y down), as a drawing would."""
+    if not pixel_size_mm or not result.patches:
+        return result
+    placed = []
+    for p in result.patches:
+        x, y, w, h = p.bbox_px
+        corners = frame.to_frame([[x, y], [x + w, y], [x + w, y + h], [x, y + h]])  # recipe units: mm here
+        (x0, y0), (x1, y1) = corners.min(axis=0), corners.max(axis=0)
+        placed.append(replace(p, position_mm=(float(x0), float(y0), float(x1 - x0), float(y1 - y0))))
+    return replace(result, patches=tuple(placed))
+
+
+def _in_view(region: Region, frame: Frame) -> bool:
+    """True when the region lies on the frame's image-sized rectangle (datum ``image``)."""
+    if frame.view_px is None:
+        return False
+    pts = np.concatenate([np.asarray(ring, dtype=float) for ring in region.shape.outline()]) * frame.px_per_unit
+    w, h = frame.view_px
+    return bool(pts.min() >= -0.5 and (pts[:, 0] <= w + 0.5).all() and (pts[:, 1] <= h + 0.5).all())
 
 
 def inspect_image(
@@ -260,6 +293,7 @@ def inspect_image(
             pixel_size_mm=recipe.pixel_size_mm,
         )
         results.append(judge_region(region, m))
+    results = [_patches_in_part_frame(r, frame, recipe.pixel_size_mm) for r in results]
     verdict = part_verdict([r.verdict for r in results])
     return PartResult(
         name=name,

@@ -6,7 +6,7 @@ Pure functions. The rules (all thresholds come from the recipe region):
   :data:`TEXTURE_RATIO_MIN` times what the image's own camera noise would give.
   Such a region gets no angle at all.
 * **Directional** lay passes when ``|deviation| <= tolerance_deg``, coherence
-  ``>= min_coherence`` and the deviating-patch share ``<= max_defect_fraction``.
+  ``>= min_coherence`` and the deviating-patch share ``<= max_deviating_fraction``.
 * **Crossed** lay: each expected direction must be matched by a peak of the
   orientation histogram within tolerance.
 * **Multidirectional / particulate**: coherence ``<= max_coherence`` and a
@@ -380,7 +380,7 @@ def _judge_crossed(region: Region, histogram: Histogram, v: _Verdict) -> None:
     found, devs = [], []
     for e, (peak, _) in zip(region.lay_deg, peaks):
         if peak is None:
-            v.fail(f"no grain found near {_fmt(e)} (crossed lay needs both directions)")
+            v.fail(f"no lay found near {_fmt(e)} (crossed lay needs both directions)")
             found.append(None)
             devs.append(None)
             continue
@@ -388,7 +388,7 @@ def _judge_crossed(region: Region, histogram: Histogram, v: _Verdict) -> None:
         found.append(round(peak, 3))
         devs.append(round(d, 3))
         if abs(d) > region.tolerance_deg:
-            v.fail(f"grain {_fmt(peak)} is {abs(d):.1f}° off {_fmt(e)} (tolerance {region.tolerance_deg:g}°)")
+            v.fail(f"lay {_fmt(peak)} is {abs(d):.1f}° off {_fmt(e)} (tolerance {region.tolerance_deg:g}°)")
     v.extra.update(crossed_lay_deg=found, crossed_deviation_deg=devs)
     if all(p is not None for p, _ in peaks):
         shares = [share for _, share in peaks]
@@ -467,6 +467,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         tolerance_deg=region.tolerance_deg,
         histogram=histogram,
         lay_pattern=region.lay.value,
+        lay_symbol=region.lay_symbol,
         outline_px=m.outline_px,
         exclude_px=m.exclude_px,
         coherence=float(coherence),
@@ -480,7 +481,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
             lay_deg=None,
             deviation_deg=None,
             uncertainty_deg=None,
-            defect_area_fraction=0.0,
+            deviating_area_fraction=0.0,
             patches=(),
             verdict=RegionVerdict.NO_TEXTURE,
             reasons=(
@@ -512,11 +513,11 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     # LayPattern.ANY: texture is present, nothing more is judged
 
     patches = _patches(v.deviating, m, expected) if v.deviating.any() else ()
-    defect = float(sum(p.area_fraction for p in patches))
-    if defect > region.max_defect_fraction:
+    deviating = float(sum(p.area_fraction for p in patches))
+    if deviating > region.max_deviating_fraction:
         biggest = patches[0]
         v.fail(
-            f"{100 * defect:.1f}% of the area deviates (allowed {100 * region.max_defect_fraction:g}%): "
+            f"{100 * deviating:.1f}% of the area deviates (allowed {100 * region.max_deviating_fraction:g}%): "
             f"{len(patches)} patch{'es' if len(patches) > 1 else ''}, largest {100 * biggest.area_fraction:.1f}% "
             f"with lay {_fmt(biggest.lay_deg)}"
         )
@@ -535,7 +536,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         lay_deg=v.lay,
         deviation_deg=v.deviation,
         uncertainty_deg=v.uncertainty,
-        defect_area_fraction=defect,
+        deviating_area_fraction=deviating,
         patches=patches,
         verdict=RegionVerdict.FAIL if v.failed else RegionVerdict.PASS,
         reasons=tuple(v.reasons),

@@ -23,6 +23,9 @@ References
    experiments. Part II: experimental design models and variance component
    estimation", *Quality Engineering* 6(2), 289-305, 1993.
    doi:10.1080/08982119308919024 (DOI from memory).
+.. [4] T. A. Bancroft, "Analysis and inference for incompletely specified
+   models involving the use of preliminary test(s) of significance",
+   *Biometrics* 20(3), 427-442, 1964. doi:10.2307/2528486 (DOI from memory).
 """
 
 from __future__ import annotations
@@ -46,11 +49,18 @@ __all__ = [
     "VarianceComponent",
     "GaugeStudy",
     "gauge_rr",
+    "small_study_warnings",
+    "BASES",
 ]
 
 #: Significance level above which the part x appraiser interaction is pooled
-#: into repeatability. 0.25 is common practice, no source.
+#: into repeatability: the "sometimes pool" preliminary test at 0.25 of Bancroft
+#: (1964) [4]_ (value from memory of that paper; 0.25 is also the common default
+#: of gauge R&R software, common practice).
 INTERACTION_ALPHA = 0.25
+
+#: Ways of judging %GRR: the larger of the two shares (default), or one of them.
+BASES = ("larger", "tolerance", "total-variation")
 
 #: %GRR thresholds (common automotive practice [1]_).
 GRR_ACCEPTABLE_BELOW = 10.0
@@ -146,6 +156,8 @@ class GaugeStudy:
     verdict: GaugeVerdict
     reasons: tuple[str, ...]
     source: str = ""
+    basis: str = "larger"
+    warnings: tuple[str, ...] = ()  # a study smaller than the usual size, ...
 
     def component(self, name: str) -> VarianceComponent:
         for c in self.components:
@@ -255,7 +267,7 @@ def gauge_rr(
     appraisers: Sequence[str] | None = None,
     interaction_alpha: float = INTERACTION_ALPHA,
     resolution: float | None = None,
-    basis: str = "both",
+    basis: str = "larger",
     source: str = "",
 ) -> GaugeStudy:
     """Crossed gauge repeatability and reproducibility study by the ANOVA method.
@@ -293,8 +305,8 @@ def gauge_rr(
         The gauge's resolution (smallest step it reports). Default: the
         apparent resolution, the smallest gap between distinct study values
         (an upper bound of the true step).
-    basis : {'both', 'tolerance', 'total-variation'}, optional
-        Which %GRR the verdict is judged on; ``'both'`` (default) takes the
+    basis : {'larger', 'tolerance', 'total-variation'}, optional
+        Which %GRR the verdict is judged on; ``'larger'`` (default) takes the
         larger, since this gauge both accepts parts against a tolerance and
         feeds process charts.
     source : str, optional
@@ -358,15 +370,37 @@ def gauge_rr(
         verdict=verdict,
         reasons=tuple(reasons),
         source=source,
+        basis=basis,
+        warnings=tuple(small_study_warnings(*y.shape)),
     )
+
+
+#: The usual size of a gauge R&R study: 10 parts, 3 appraisers, 2 or 3 trials each (AIAG MSA, 4th ed. [1]_).
+USUAL_STUDY = (10, 3, 2)
+
+
+def small_study_warnings(parts: int, appraisers: int, trials: int) -> list[str]:
+    """Warnings for a study smaller than the usual 10 parts x 3 appraisers x 2-3 trials ([1]_)."""
+    short = [
+        f"{n} {what} (usually at least {usual})"
+        for n, usual, what in zip((parts, appraisers, trials), USUAL_STUDY, ("parts", "appraisers", "trials"))
+        if n < usual
+    ]
+    if not short:
+        return []
+    return [
+        "small study: " + ", ".join(short) + "; the usual study is 10 parts x 3 appraisers x 2-3 trials "
+        "(AIAG MSA, 4th ed.): %GRR and the number of distinct categories are estimated from few degrees "
+        "of freedom and may be far off"
+    ]
 
 
 def _check_settings(tolerance: float, basis: str, interaction_alpha: float, resolution: float | None) -> None:
     """The study's settings; they are checked first and are not about the table, so the messages do not name it."""
     if not (math.isfinite(tolerance) and tolerance > 0):
         raise InputError(f"tolerance: must be a width > 0 (got {tolerance:g})")
-    if basis not in ("both", "tolerance", "total-variation"):
-        raise InputError(f"basis: unknown (got {basis!r}, allowed both, tolerance, total-variation)")
+    if basis not in BASES:
+        raise InputError(f"basis: unknown (got {basis!r}, allowed {', '.join(BASES)})")
     if not 0 < interaction_alpha < 1:
         raise InputError(f"interaction_alpha: must be in (0, 1) (got {interaction_alpha:g})")
     if resolution is not None and not (math.isfinite(resolution) and resolution >= 0):
@@ -463,9 +497,9 @@ def _judge(
     tolerance: float,
     basis: str,
 ) -> tuple[GaugeVerdict, list[str]]:
-    judged = {"both": max(pct_tv, pct_tol), "tolerance": pct_tol, "total-variation": pct_tv}[basis]
+    judged = {"larger": max(pct_tv, pct_tol), "tolerance": pct_tol, "total-variation": pct_tv}[basis]
     label = {
-        "both": "%GRR (larger of total variation and tolerance)",
+        "larger": "%GRR (larger of total variation and tolerance)",
         "tolerance": "%GRR of tolerance",
         "total-variation": "%GRR of total variation",
     }[basis]

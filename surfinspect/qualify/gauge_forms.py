@@ -48,10 +48,13 @@ def gauge_to_dict(study: GaugeStudy) -> dict[str, Any]:
         "model": study.model,
         "model_reason": study.model_reason,
         "interaction_alpha": study.interaction_alpha,
-        "anova": _anova_to_list(study.anova),
+        "anova": _anova_to_list(study.anova),  # the table the study used (``model``)
         "anova_with_interaction": _anova_to_list(study.anova_interaction),
+        "anova_pooled": _anova_to_list(study.anova_pooled),
+        "basis": study.basis,
         "components": {
-            c.name: {
+            c.name.replace(" ", "_"): {
+                "name": c.name,
                 "variance": _json_number(c.variance, 9),
                 "sigma": _json_number(c.sigma, 9),
                 "percent_contribution": _json_number(c.percent_contribution, 4),
@@ -67,6 +70,7 @@ def gauge_to_dict(study: GaugeStudy) -> dict[str, Any]:
         "resolution_source": study.resolution_source,
         "verdict": study.verdict.value,
         "reasons": list(study.reasons),
+        "warnings": list(study.warnings),
         "values": [[[_json_number(v, 9) for v in trials] for trials in row] for row in study.values.tolist()],
     }
 

@@ -106,6 +106,13 @@ class Capability:
         Number of finite values.
     lsl, usl : float or None
         Lower and upper specification limits (one may be None).
+    cp_interval, cpk_interval : (float, float) or None
+        Two-sided confidence intervals at :data:`CAPABILITY_CONFIDENCE`: for
+        Cp from the chi-square distribution of the variance, for Cpk Bissell's
+        normal approximation (see :func:`capability`).
+    warnings : tuple of str
+        Below :data:`CAPABILITY_MIN_PARTS` values, a warning that the indices
+        rest on too few parts.
     """
 
     cp: float | None
@@ -116,6 +123,51 @@ class Capability:
     n: int
     lsl: float | None
     usl: float | None
+    cp_interval: tuple[float, float] | None = None
+    cpk_interval: tuple[float, float] | None = None
+    warnings: tuple[str, ...] = ()
+
+
+#: Confidence level of the Cp and Cpk intervals.
+CAPABILITY_CONFIDENCE = 0.95
+#: Fewer values than this and Cp/Cpk carry a warning (common practice, no source: 25 subgroups are the
+#: usual least for control limits and capability studies).
+CAPABILITY_MIN_PARTS = 25
+
+
+def capability_intervals(
+    cp: float | None, cpk: float | None, n: int, confidence: float = CAPABILITY_CONFIDENCE
+) -> tuple[tuple[float, float] | None, tuple[float, float] | None]:
+    """Two-sided confidence intervals of Cp and Cpk estimated from ``n`` values.
+
+    Cp: ``Cp sqrt(chi2(a/2, n-1) / (n-1)) <= Cp <= Cp sqrt(chi2(1-a/2, n-1) / (n-1))``,
+    exact for normal data with sigma from ``n - 1`` degrees of freedom [1]_.
+    Cpk: Bissell's approximation ``Cpk +- z(1-a/2) sqrt(1/(9n) + Cpk^2/(2(n-1)))`` [2]_.
+    With the moving-range sigma the degrees of freedom are fewer than ``n - 1``, so
+    the intervals are, if anything, too narrow.
+
+    References
+    ----------
+    .. [1] D. C. Montgomery, *Introduction to Statistical Quality Control*,
+       7th ed., Wiley, 2013, ch. 8.3.5. ISBN 978-1-118-14681-1.
+    .. [2] A. F. Bissell, "How reliable is your capability index?", *Journal of
+       the Royal Statistical Society, Series C (Applied Statistics)* 39(3),
+       331-340, 1990. doi:10.2307/2347383 (DOI from memory).
+    """
+    if n < 2:
+        return None, None
+    from scipy.stats import chi2, norm  # here: SciPy costs start-up time
+
+    a = 1.0 - confidence
+    cp_ci = None
+    if cp is not None:
+        dof = n - 1
+        cp_ci = (cp * math.sqrt(chi2.ppf(a / 2, dof) / dof), cp * math.sqrt(chi2.ppf(1 - a / 2, dof) / dof))
+    cpk_ci = None
+    if cpk is not None:
+        half = float(norm.ppf(1 - a / 2)) * math.sqrt(1.0 / (9.0 * n) + cpk * cpk / (2.0 * (n - 1)))
+        cpk_ci = (cpk - half, cpk + half)
+    return cp_ci, cpk_ci
 
 
 def _as_float_array(values: Sequence[float | None], what: str) -> np.ndarray:
@@ -253,13 +305,24 @@ def capability(
         if lsl is not None:
             distances.append(mean - float(lsl))
         cpk = min(distances) / (3.0 * sigma_used)
+    n = int(finite.size)
+    cp_ci, cpk_ci = capability_intervals(cp, cpk, n)
+    warnings = ()
+    if n < CAPABILITY_MIN_PARTS:
+        warnings = (
+            f"Cp/Cpk from {n} parts (fewer than {CAPABILITY_MIN_PARTS}): read them with their "
+            f"{100 * CAPABILITY_CONFIDENCE:g}% confidence intervals",
+        )
     return Capability(
+        cp_interval=cp_ci,
+        cpk_interval=cpk_ci,
+        warnings=warnings,
         cp=cp,
         cpk=cpk,
         mean=mean,
         sigma=sigma_used,
         sigma_source=source,
-        n=int(finite.size),
+        n=n,
         lsl=None if lsl is None else float(lsl),
         usl=None if usl is None else float(usl),
     )

@@ -12,7 +12,14 @@ from reportlab.platypus import Paragraph, Table
 from ..errors import InputError
 from ..formatting import ANGLE_DECIMALS, format_angle, format_fixed, format_signed_angle
 from ..pdfa.fonts import SANS_BOLD
-from ..qualify.spc import Capability, IndividualsChart, capability, individuals_chart
+from ..qualify.spc import (
+    CAPABILITY_CONFIDENCE,
+    CAPABILITY_MIN_PARTS,
+    Capability,
+    IndividualsChart,
+    capability,
+    individuals_chart,
+)
 from ..results import (
     PartResult,
     RegionResult,
@@ -62,7 +69,7 @@ class _RegionStats:
         if self.judged:
             for i in self.present:
                 if self.deviations[i] is None:
-                    out.setdefault(i, []).append("not measured (no texture): a gap in the charts")
+                    out.setdefault(i, []).append("not measured (no-texture): a gap in the charts")
         return dict(sorted(out.items()))
 
 
@@ -121,9 +128,21 @@ def _batch_stats(parts: Sequence[PartResult]) -> list[_RegionStats]:
 def _capability_text(st: _RegionStats) -> str:
     if st.capability is None:
         return "no Cp/Cpk"
-    cp = "—" if st.capability.cp is None else format_fixed(st.capability.cp, 2)
-    cpk = "—" if st.capability.cpk is None else format_fixed(st.capability.cpk, 2)
-    return f"Cp {cp} · Cpk {cpk}"
+    cap = st.capability
+
+    def index(value: float | None, interval: tuple[float, float] | None) -> str:
+        if value is None:
+            return "—"
+        if interval is None:
+            return format_fixed(value, 2)
+        return f"{format_fixed(value, 2)} ({format_fixed(interval[0], 2)}-{format_fixed(interval[1], 2)})"
+
+    text = f"Cp {index(cap.cp, cap.cp_interval)} · Cpk {index(cap.cpk, cap.cpk_interval)}"
+    if cap.cp_interval or cap.cpk_interval:
+        text += f" ({100 * CAPABILITY_CONFIDENCE:g}% intervals)"
+    if cap.warnings:
+        text += f"; fewer than {CAPABILITY_MIN_PARTS} parts"
+    return text
 
 
 def _stats_line(st: _RegionStats) -> str:
@@ -177,7 +196,9 @@ def _layout_batch_stats(
         "Individuals (X) and moving-range (MR) charts per recipe region over the parts in production order; "
         "# is the part's number in that order, as in the summary. A moving range sits at the later of its two parts. "
         "Limits from the mean moving range (Montgomery, ch. 6.4): X limits mean ± 2.66 × mean MR, MR limit 3.267 × mean MR. "
-        "Cp/Cpk of the lay deviation against the region's tolerance, with the within sigma mean MR / 1.128. "
+        "Cp/Cpk of the lay deviation against the region's tolerance, with the within sigma mean MR / 1.128, "
+        "and their 95% confidence intervals (Cp: chi-square, Montgomery ch. 8.3; Cpk: Bissell's approximation, "
+        "Applied Statistics 39, 1990). Below 25 parts they rest on too few parts to rely on. "
         "Parts without measurable texture leave a gap.",
         _SMALL,
     )

@@ -294,6 +294,12 @@ def _verdict_box(c, study: GaugeStudy, left: float, y: float, width: float) -> f
         c.drawString(left + 6, y, "- " + reason)
         y -= 9.5
     c.drawString(left + 6, y, "- model: " + study.model_reason)
+    for warning in study.warnings:
+        from reportlab.lib.utils import simpleSplit
+
+        for line in simpleSplit("- warning: " + warning, SANS, 7.5, 500):
+            y -= 9.5
+            c.drawString(left + 6, y, line)
     return y - 16
 
 
@@ -301,12 +307,10 @@ def _study_tables(c, study: GaugeStudy, left: float, y: float) -> float:
     """The ANOVA table(s) and the variance components with their note; return the y below."""
     widths = (110, 35, 75, 75, 65, 65)
     header = [h.capitalize() if h == "source" else h for h in ANOVA_HEADER]
-    tables = [study.anova_interaction] + ([study.anova_pooled] if study.model == "pooled" else [])
-    for table in tables:
-        used = " (used)" if table is study.anova else ""
+    for table in (study.anova,):  # only the table the study used; the JSON holds both
         name = "with interaction" if table.model == "interaction" else "interaction pooled into repeatability"
         c.setFont(SANS_BOLD, 9)
-        c.drawString(left, y, f"ANOVA, {name}{used}")
+        c.drawString(left, y, f"ANOVA, {name}")
         y = _draw_table(c, left, y - 4, header, anova_text_rows(table), widths) - 14
     c.setFont(SANS_BOLD, 9)
     c.drawString(left, y, "Variance components")

@@ -68,7 +68,7 @@ def _image_lines(part: PartResult) -> str:
     else:
         ox, oy = datum.origin_px
         frame = (
-            f"part edges: skew {format_fixed(datum.rotation_deg, 3, signed=True)}° against the image "
+            f"part edges: rotation {format_fixed(datum.rotation_deg, 3, signed=True)}° against the image "
             f"(counter-clockwise positive), origin ({format_fixed(ox, 1)}, {format_fixed(oy, 1)}) px"
         )
         if datum.fit_quality is not None:

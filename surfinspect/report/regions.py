@@ -33,15 +33,26 @@ class _PartFigures:
     def worst(self) -> tuple[RegionResult, dict] | None:
         if not self.part.regions:
             return None
+
+        def size(d: dict) -> float:
+            value = worst_deviation(d)[0]
+            return -1.0 if value is None else abs(value)
+
         k = max(
             range(len(self.part.regions)),
-            key=lambda i: (
-                _REGION_SEVERITY[self.part.regions[i].verdict],
-                abs(self.regions[i]["deviation_deg"]) if self.regions[i]["deviation_deg"] is not None else -1.0,
-                -i,
-            ),
+            key=lambda i: (_REGION_SEVERITY[self.part.regions[i].verdict], size(self.regions[i]), -i),
         )
         return self.part.regions[k], self.regions[k]
+
+
+def worst_deviation(d: dict) -> tuple[float | None, str]:
+    """The larger deviation of a region (JSON form): its lay's, or its worst patch's; and which ("region", "patch")."""
+    value, which = d["deviation_deg"], "region"
+    for patch in d.get("patches", ()):
+        dev = patch.get("deviation_deg")
+        if dev is not None and (value is None or abs(dev) > abs(value)):
+            value, which = dev, "patch"
+    return value, which
 
 
 _CENTRED = ("circular", "radial")  # the expected lay turns about a centre, cell by cell
@@ -77,7 +88,7 @@ def _tolerance_text(region: RegionResult, d: Mapping) -> str:
 def _measured_text(region: RegionResult, d: Mapping) -> str:
     """The measured lay as the region's pattern has it; "no texture" only when there is none."""
     if region.verdict is RegionVerdict.NO_TEXTURE:
-        return "no texture"
+        return "no-texture"
     pattern = region.lay_pattern
     if pattern in _CENTRED:
         return "per cell (picture)"
@@ -90,7 +101,8 @@ def _measured_text(region: RegionResult, d: Mapping) -> str:
         return "—"
     text = format_angle(d["lay_deg"], axial=True)
     if d["uncertainty_deg"] is not None:
-        text += f" ± {format_angle(d['uncertainty_deg'])}"
+        # expanded uncertainty as the GUM writes it (JCGM 100:2008, 7.2.4): U = k u_c, here k = 2
+        text += f", U = {format_angle(d['uncertainty_deg'])}"
     return text
 
 
@@ -171,10 +183,10 @@ def _region_table(fig: _PartFigures) -> Table:
         "Region",
         "Expected lay",
         "Tolerance",
-        "Measured lay ± u",
+        "Measured lay, U (k = 2)",
         "Deviation",
         "Coherence",
-        "Defect area",
+        "Deviating area",
         "Verdict",
     ]
     rows = [header]
@@ -199,7 +211,7 @@ def _region_table(fig: _PartFigures) -> Table:
                     _deviation_note(region) if d["deviation_deg"] is not None else "",
                 ),
                 _cell_with_note(format_fixed(coherence, 3), coherence_note),
-                _percent(d["defect_area_fraction"]),
+                _percent(d["deviating_area_fraction"]),
                 look.word,
             ]
         )
@@ -226,10 +238,10 @@ def _region_table(fig: _PartFigures) -> Table:
 
 
 def _patch_table(fig: _PartFigures) -> Table | None:
-    rows = [["Region", "Patch", "Box x, y, w, h (px)", "Size (mm)", "Share of region", "Lay", "Deviation"]]
+    rows = [["Region", "Patch", "Box x, y, w, h (px)", "Part frame x, y, w, h (mm)", "Share", "Lay", "Deviation"]]
     for region, d in zip(fig.part.regions, fig.regions):
         for n, p in enumerate(d["patches"], start=1):
-            size = "—" if "bbox_mm" not in p else " × ".join(format_fixed(v, 1) for v in p["bbox_mm"])
+            size = "—" if "position_mm" not in p else ", ".join(format_fixed(v, 1) for v in p["position_mm"])
             rows.append(
                 [
                     region.name,
@@ -243,7 +255,7 @@ def _patch_table(fig: _PartFigures) -> Table | None:
             )
     if len(rows) == 1:
         return None
-    return _table(rows, [110, 40, 120, 70, 70, 56, 57], [("ALIGN", (1, 1), (-1, -1), "RIGHT")])
+    return _table(rows, [100, 36, 110, 120, 45, 56, 56], [("ALIGN", (1, 1), (-1, -1), "RIGHT")])
 
 
 def _verdict_sentence(part: PartResult) -> str:
@@ -259,5 +271,5 @@ def _verdict_sentence(part: PartResult) -> str:
         if why:
             return "; ".join(why)
         return "The region is within its limits." if n == 1 else f"All {n} regions are within their limits."
-    lead = "Rejected" if part.verdict is PartVerdict.REJECT else "Needs review"
+    lead = "Reject" if part.verdict is PartVerdict.REJECT else "Review"
     return f"{lead}: " + "; ".join(why)

@@ -66,13 +66,13 @@ class RegionLook:
 REGION_LOOKS: dict[RegionVerdict, RegionLook] = {
     RegionVerdict.PASS: RegionLook("PASS", PALETTE["pass"], None),
     RegionVerdict.FAIL: RegionLook("FAIL", PALETTE["fail"], (4.0, 2.5)),
-    RegionVerdict.NO_TEXTURE: RegionLook("NO TEXTURE", PALETTE["no-texture"], (1.0, 1.6)),
+    RegionVerdict.NO_TEXTURE: RegionLook("NO-TEXTURE", PALETTE["no-texture"], (1.0, 1.6)),
 }
 
 #: Part verdicts: word, colour, and a shape for print (circle, crossed square, triangle).
 PART_LOOKS: dict[PartVerdict, tuple[str, RGB, str]] = {
-    PartVerdict.ACCEPT: ("ACCEPTED", PALETTE["pass"], "circle"),
-    PartVerdict.REJECT: ("REJECTED", PALETTE["fail"], "cross"),
+    PartVerdict.ACCEPT: ("ACCEPT", PALETTE["pass"], "circle"),
+    PartVerdict.REJECT: ("REJECT", PALETTE["fail"], "cross"),
     PartVerdict.REVIEW: ("REVIEW", PALETTE["no-texture"], "triangle"),
 }
 

@@ -13,7 +13,7 @@ from reportlab.platypus import Paragraph, Table
 
 from ..formatting import format_signed_angle
 from ..pdfa.fonts import MONO, SANS, SANS_BOLD
-from ..results import PartResult, PartVerdict, RegionVerdict, SignOff
+from ..results import NOT_INSPECTED, PartResult, PartVerdict, RegionVerdict, SignOff
 from .batch_stats import _RegionStats, _stats_line
 from .layout import (
     _CELL,
@@ -29,7 +29,7 @@ from .layout import (
     _verdict_icon,
 )
 from .legend import _LEGEND_H, _legend
-from .regions import _JUDGED_ANGLE, _PartFigures
+from .regions import _JUDGED_ANGLE, _PartFigures, worst_deviation
 from .scene import PALETTE, PART_LOOKS, REGION_LOOKS, RGB
 from .signoff import _signoff_block, _signoff_height
 
@@ -52,7 +52,7 @@ class NotInspected:
     error: str
 
 
-_NOT_INSPECTED_WORD = "NOT INSPECTED"
+_NOT_INSPECTED_WORD = NOT_INSPECTED.upper()
 
 
 def _count_boxes(c: Canvas, y: float, counts: Mapping[PartVerdict, int], not_inspected: int) -> None:
@@ -105,9 +105,9 @@ def _layout_summary(
     layout.flowable(_facts_table(parts, generated_at, station, operator, stats, stats_page))
     layout.block(_signoff_height(signoff), lambda c, y: _signoff_block(c, y, signoff))
     order = (
-        "rejected first, then not inspected, then review, then accepted"
+        "reject first, then not-inspected, then review, then accept"
         if not_inspected
-        else "rejected first, then review, then accepted"
+        else "reject first, then review, then accept"
     )
     layout.text(f"<b>Parts</b> ({order}; # is the part's number in production order)", gap=2)
     layout.flowable(_parts_table(figs, page_of, not_inspected, not_inspected_page))
@@ -125,7 +125,7 @@ def _summary_head(
     c.setFont(SANS, 9)
     line = f"Report {report_id} · {len(parts)} part{'s' if len(parts) != 1 else ''} inspected"
     if not_inspected:
-        line += f" · {not_inspected} not inspected (image unreadable)"
+        line += f" · {not_inspected} {NOT_INSPECTED} (image unreadable)"
     c.drawString(_MARGIN, y - 31, line)
     _count_boxes(c, y - 40, counts, not_inspected)
 
@@ -220,9 +220,10 @@ def _part_row(index: int, fig: _PartFigures) -> tuple[str, str, str, RGB, str, s
         region, d = worst
         region_name = f"{region.name} ({REGION_LOOKS[region.verdict].word})"
         if region.verdict is RegionVerdict.NO_TEXTURE:
-            deviation = "no texture"
+            deviation = "no-texture"
         elif region.lay_pattern in _JUDGED_ANGLE:
-            deviation = format_signed_angle(d["deviation_deg"])
+            value, which = worst_deviation(d)
+            deviation = f"{format_signed_angle(value)} ({which})"
         else:
             deviation = "not judged"
     reasons = [r for reg in fig.part.regions if reg.verdict is not RegionVerdict.PASS for r in reg.reasons]
@@ -237,12 +238,12 @@ def _layout_not_inspected(layout: _Layout, items: Sequence[NotInspected], total:
         20,
         lambda c, y: (
             c.setFont(SANS_BOLD, 14),
-            c.drawString(_MARGIN, y - 14, f"Parts not inspected: {len(items)} of {total}"),
+            c.drawString(_MARGIN, y - 14, f"Parts {NOT_INSPECTED}: {len(items)} of {total}"),
         ),
     )
     layout.text(
-        "These images could not be inspected. Each counts as needing review: it is neither accepted nor rejected "
-        "by this report, and appears in no statistics."
+        f"These images could not be inspected ({NOT_INSPECTED}). Each counts as review: its verdict is neither accept "
+        "nor reject in this report, and it appears in no statistics."
     )
     rows = [["Part", "Why", "File SHA-256"]]
     for item in items:

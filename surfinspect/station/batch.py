@@ -84,7 +84,7 @@ CSV_COLUMNS = (
     "deviation_deg",
     "uncertainty_deg",
     "coherence",
-    "defect_area_fraction",
+    "deviating_area_fraction",
     "patches",
     "region_verdict",
     "reasons",
@@ -212,7 +212,7 @@ def _inspect_one(
         time.sleep(_TEST_HOLD_S)
     # the same read-inspect-write as ``inspect``, into a scratch folder whose files go back to the parent
     with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
-        outcome, _ = inspect_path(path, _worker_recipe, tmp, name)
+        outcome, _ = inspect_path(path, _worker_recipe, tmp, name, name=part_key)
         if outcome.error is not None:
             return {"part_key": part_key, "error": outcome.error}
         return {
@@ -483,7 +483,7 @@ def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
                     _csv_value(r["deviation_deg"]),
                     _csv_value(r["uncertainty_deg"]),
                     _csv_value(r["coherence"]),
-                    _csv_value(r["defect_area_fraction"]),
+                    _csv_value(r["deviating_area_fraction"]),
                     len(r["patches"]),
                     r["verdict"],
                     "; ".join(r["reasons"]),

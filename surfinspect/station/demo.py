@@ -40,8 +40,8 @@ DEMO_PARTS = (
     DemoPart("lw-220-0003.png", "lw-220-wall-panel.yaml", "brushed 8° off: reject"),
     DemoPart("lw-220-0004.png", "lw-220-wall-panel.yaml", "re-brushed patch across the grain: reject"),
     DemoPart("lw-220-0005.png", "lw-220-wall-panel.yaml", "polished blank, no texture: review"),
-    DemoPart("cp-14-0001.png", "cp-14-cover-plate.yaml", "good plate, skewed +1.5°"),
-    DemoPart("cp-14-0002.png", "cp-14-cover-plate.yaml", "good plate, skewed -2.5°"),
+    DemoPart("cp-14-0001.png", "cp-14-cover-plate.yaml", "good plate, rotated +1.5°"),
+    DemoPart("cp-14-0002.png", "cp-14-cover-plate.yaml", "good plate, rotated -2.5°"),
     DemoPart("cp-14-0003.png", "cp-14-cover-plate.yaml", "band brushed 3.5° off: reject"),
 )
 

@@ -27,6 +27,7 @@ OVERLAY_MAX_SIDE = 2000
 __all__ = [
     "PartOutcome",
     "output_stems",
+    "part_names",
     "inspect_path",
     "find_images",
     "run_exit_code",
@@ -39,11 +40,12 @@ class PartOutcome:
     """One image's outcome: a result, or the input error that stopped it."""
 
     path: str
-    stem: str
+    stem: str  # the name of its output files (JSON, overlay)
     result: PartResult | None = None
     error: str | None = None
     json_path: str | None = None
     overlay_path: str | None = None
+    name: str = ""  # the part's name in every output (see part_names)
 
 
 def output_stems(paths: Sequence[str | Path]) -> list[str]:
@@ -58,15 +60,42 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
     return out
 
 
+def part_names(paths: Sequence[str | Path]) -> list[str]:
+    """A part's name in every output: its image's file name, with as many of its folders as tell it apart.
+
+    Two images that share a file name (from different folders) are named by their paths from the
+    first folder where they differ (``line-1/lw-220-0001.png``, ``line-2/lw-220-0001.png``), so that
+    nobody takes one panel for the other.
+    """
+    parts = [Path(p).parts for p in paths]
+    names = []
+    for mine in parts:
+        depth = 1
+        while depth < len(mine) and any(o != mine and o[-depth:] == mine[-depth:] for o in parts):
+            depth += 1
+        names.append("/".join(mine[-depth:]))
+    return names
+
+
 def inspect_path(
-    path: str | Path, recipe: Recipe, out_dir: str | Path, stem: str, *, keep_pixels: bool = False
+    path: str | Path,
+    recipe: Recipe,
+    out_dir: str | Path,
+    stem: str,
+    *,
+    keep_pixels: bool = False,
+    name: str | None = None,
 ) -> tuple[PartOutcome, np.ndarray | None]:
-    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically."""
+    """Read one image, inspect it and write ``<stem>.json`` and ``<stem>.overlay.png`` atomically.
+
+    ``name`` is the part's name in the result (default: the image's file name).
+    """
+    name = name or Path(path).name
     from ..report.overlay import write_overlay_png
 
     try:
         loaded = read_image(path)
-        result = inspect_image(loaded.pixels, recipe, name=stem, image_info=loaded.info)
+        result = inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
@@ -77,9 +106,9 @@ def inspect_path(
         # a recipe problem found on this image (a region outside it) must say which image
         if str(path) not in text:
             text = f"{path}: {text}"
-        return PartOutcome(path=str(path), stem=stem, error=text), None
+        return PartOutcome(path=str(path), stem=stem, error=text, name=name), None
     outcome = PartOutcome(
-        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path)
+        path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name
     )
     return outcome, (loaded.pixels if keep_pixels else None)
 

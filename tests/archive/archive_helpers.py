@@ -27,7 +27,7 @@ def region(name: str, verdict: results.RegionVerdict, lay: float | None) -> resu
         deviation_deg=None if lay is None else lay - 90.0,
         uncertainty_deg=None if lay is None else 0.2,
         coherence=0.61 if lay is not None else 0.01,
-        defect_area_fraction=0.0,
+        deviating_area_fraction=0.0,
         patches=(),
         histogram=results.Histogram((0.0, 90.0, 180.0), (0.25, 0.75)),
         verdict=verdict,

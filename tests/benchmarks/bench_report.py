@@ -42,7 +42,7 @@ regions:
     lay_deg: 90
     tolerance_deg: 3.0
     min_coherence: 0.2
-    max_defect_fraction: 0.02
+    max_deviating_fraction: 0.02
     cell_px: {cell_px}
 """
 

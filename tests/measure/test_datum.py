@@ -309,7 +309,7 @@ def test_trapezoid_corners_are_not_square():
 
 def test_skew_beyond_the_allowed_limit():
     # Outside reference: the panel is rendered 11 deg skewed (geometry set here).
-    with pytest.raises(DatumError, match=r"part is skewed -11\.0\d deg, more than max_skew_deg 5\.00 deg"):
+    with pytest.raises(DatumError, match=r"part is rotated -11\.0\d deg, more than max_skew_deg 5\.00 deg"):
         find_part_frame(_render_panel(-11.0, seed=4), max_skew_deg=5.0)
 
 

@@ -53,7 +53,7 @@ def test_patch_across_the_grain_is_found_with_its_box():
     assert abs((x + w) - (px + pw)) <= 32 and abs((y + h) - (py + ph)) <= 32
     assert region.patches[0].lay_deg == pytest.approx(0.0, abs=3.0) or region.patches[0].lay_deg > 177
     true_share = pw * ph / (RECT[2] * RECT[3])
-    assert region.defect_area_fraction == pytest.approx(true_share, rel=0.4)
+    assert region.deviating_area_fraction == pytest.approx(true_share, rel=0.4)
     # the whole-region lay is not pulled off by the crossed patch (doubled angles cancel)
     assert abs(region.deviation_deg) < 0.5
 
@@ -124,6 +124,7 @@ def test_result_json_round_trip_and_fixed_keys():
         "uncertainty_deg",
         "coherence",
         "defect_area_fraction",
+        "deviating_area_fraction",
         "patches",
         "histogram",
         "verdict",
@@ -143,6 +144,48 @@ def test_camera_rotation_correction_turns_the_lay():
     )
     region = inspect_image(img, r).regions[0]
     assert region.deviation_deg == pytest.approx(0.0, abs=0.25)
+
+
+@pytest.mark.parametrize("pixel_size_mm", [None, 0.1])
+def test_camera_rotation_pivots_about_the_image_centre(pixel_size_mm):
+    # Horizontal grain in the image, a camera turned +3.5 and -3.5 deg: in the part frame the lay is
+    # 0 - 3.5 = -3.5 (176.5) and +3.5, a deviation of equal size and opposite sign (lay_part =
+    # lay_image - rotation, DESIGN.md's angle convention). A full-frame region works both ways: the
+    # pivot is the image centre, and the corners the rotation turns off the image are cut at its border.
+    img = synth.brushed_panel((240, 320), 0.0, seed=8)
+    unit = pixel_size_mm or 1.0
+    rect = f"[0, 0, {320 * (pixel_size_mm or 1.0):g}, {240 * (pixel_size_mm or 1.0):g}]"
+    mm = f"pixel_size_mm: {pixel_size_mm}\n" if pixel_size_mm else ""
+    got = {}
+    for turn in (0.0, 3.5, -3.5):
+        r = parse_recipe(
+            f"recipe: t\nrevision: 1\n{mm}camera_rotation_deg: {turn}\nregions:\n"
+            f"  - name: face\n    rect: {rect}\n    lay_deg: 0\n    tolerance_deg: 10\n"
+        )
+        result = inspect_image(img, r)
+        got[turn] = result.regions[0]
+        # the frame's centre is the image centre whatever the turn
+        assert result.datum is not None
+        frame = Frame(result.datum.origin_px, turn, 1.0 / unit if pixel_size_mm else 1.0)
+        np.testing.assert_allclose(frame.to_image([[160 * unit, 120 * unit]])[0], [160.0, 120.0], atol=1e-9)
+    # relative to the texture's own lay (0.1 deg off horizontal: synthetic scratches), equal and opposite
+    own = got[0.0].deviation_deg
+    assert abs(own) < 0.3
+    assert got[3.5].deviation_deg - own == pytest.approx(-3.5, abs=0.05)
+    assert got[-3.5].deviation_deg - own == pytest.approx(3.5, abs=0.05)
+    # and the region's outline turns about the image centre: its centroid stays there
+    for region in got.values():
+        np.testing.assert_allclose(np.mean(region.outline_px[0], axis=0), [160.0, 120.0], atol=1e-6)
+
+
+def test_a_region_off_the_image_is_still_refused_with_a_camera_rotation():
+    img = synth.brushed_panel((240, 320), 0.0, seed=8)
+    r = parse_recipe(
+        "recipe: t\nrevision: 1\ncamera_rotation_deg: 2\nregions:\n"
+        "  - name: face\n    rect: [100, 100, 400, 100]\n    lay_deg: 0\n"
+    )
+    with pytest.raises(InputError, match=r"regions\(face\): region lies outside the image"):
+        inspect_image(img, r)
 
 
 def test_frame_round_trip():
@@ -184,7 +227,7 @@ def test_single_lay_under_crossed_recipe_fails_with_reason():
     r = _pattern_recipe("    rect: [10, 10, 300, 300]\n    lay: X\n    lay_deg: [30, 120]\n")
     region = inspect_image(img, r).regions[0]
     assert region.verdict is RegionVerdict.FAIL
-    assert any("no grain found near 120.0°" in t for t in region.reasons)
+    assert any("no lay found near 120.0°" in t for t in region.reasons)
 
 
 def test_isotropic_texture_passes_multidirectional_and_fails_directional():
@@ -240,7 +283,7 @@ def test_concentric_rings_pass_circular_about_their_centre():
     far = body.replace(f"centre: [{centre[0] + 0.5}, {centre[1] + 0.5}]", "centre: [2000, -1500]")
     region = inspect_image(img, _pattern_recipe(far)).regions[0]
     assert region.verdict is RegionVerdict.FAIL
-    assert region.defect_area_fraction > 0.5
+    assert region.deviating_area_fraction > 0.5
 
 
 def test_spokes_pass_radial():
@@ -322,6 +365,29 @@ def test_patch_sizes_in_mm_with_pixel_size():
     patch = inspect_image(img, r).regions[0].patches[0]
     assert patch.bbox_mm == (patch.bbox_px[2] * 0.5, patch.bbox_px[3] * 0.5)
     assert patch.area_mm2 == pytest.approx(patch.area_px * 0.25)
+    # datum image, no rotation: the part frame is the image's, so the position is the pixel box times 0.5 mm
+    assert patch.position_mm == pytest.approx(tuple(v * 0.5 for v in patch.bbox_px))
+    # the planted patch (256, 160) px from the corner is found where it is, to one 32 px cell
+    assert abs(patch.position_mm[0] - 128.0) <= 16 and abs(patch.position_mm[1] - 80.0) <= 16
+
+
+def test_patch_position_in_a_rotated_part_frame():
+    # a camera turned 10 deg: the part frame's box of the patch is the box around its cells' corners mapped
+    # into that frame; mapping the box's centre back gives the pixel box's centre (Frame.to_image)
+    img = synth.brushed_panel(SHAPE, 100.0, seed=8, patch_rect=(128, 96, 96, 64), patch_lay_deg=10.0)
+    r = parse_recipe(
+        "recipe: t\nrevision: 1\npixel_size_mm: 0.5\ncamera_rotation_deg: 10\nregions:\n  - name: face\n"
+        "    rect: [30, 30, 100, 60]\n    lay_deg: 90\n    cell_px: 32\n"
+    )
+    result = inspect_image(img, r)
+    patch = result.regions[0].patches[0]
+    x, y, w, h = patch.position_mm
+    frame = Frame(result.datum.origin_px, 10.0, 2.0)
+    bx, by, bw, bh = patch.bbox_px
+    np.testing.assert_allclose(frame.to_image([[x + w / 2, y + h / 2]])[0], [bx + bw / 2, by + bh / 2], atol=1e-6)
+    # the box around a turned rectangle is larger than it by |cos| + |sin| terms
+    c, s = np.cos(np.radians(10)), np.sin(np.radians(10))
+    assert w == pytest.approx((bw * c + bh * s) / 2, rel=1e-6) and h == pytest.approx((bw * s + bh * c) / 2, rel=1e-6)
 
 
 def test_part_not_found_is_review_in_words():

@@ -36,7 +36,7 @@ HAND_TABLE = np.stack(
 def test_gauge_not_acceptable_exits_1_and_writes_json_and_pdf(tmp_path, capsys):
     study = _write_study(tmp_path / "study.csv", HAND_TABLE)
     out_json, out_pdf = tmp_path / "gauge.json", tmp_path / "gauge.pdf"
-    code = main(["gauge", str(study), "--tolerance", "30", "--json", str(out_json), "--pdf", str(out_pdf)])
+    code = main(["gauge", str(study), "--tolerance-width", "30", "--json", str(out_json), "--pdf", str(out_pdf)])
     assert code == 1
     doc = json.loads(out_json.read_text())
     assert doc["grr_percent_of_total_variation"] == pytest.approx(38.980, abs=1e-3)
@@ -51,11 +51,11 @@ def test_gauge_not_acceptable_exits_1_and_writes_json_and_pdf(tmp_path, capsys):
 
 def test_gauge_acceptable_exits_0_and_conditional_exits_3(tmp_path):
     good = _write_study(tmp_path / "good.csv", _study(4, appraiser_sigma=0.02))
-    assert main(["-q", "gauge", str(good), "--tolerance", "40"]) == 0
+    assert main(["-q", "gauge", str(good), "--tolerance-width", "40"]) == 0
     # a larger appraiser effect brings %GRR of total variation into the 10-30 % band
     fair = _write_study(tmp_path / "fair.csv", _study(4, appraiser_sigma=0.3))
     out = tmp_path / "fair.json"
-    code = main(["-q", "gauge", str(fair), "--tolerance", "40", "--json", str(out)])
+    code = main(["-q", "gauge", str(fair), "--tolerance-width", "40", "--json", str(out)])
     doc = json.loads(out.read_text())
     assert 10 <= doc["grr_percent_of_total_variation"] <= 30 and doc["ndc"] >= 5
     assert code == 3 and doc["verdict"] == "conditional"
@@ -67,7 +67,7 @@ def test_gauge_malformed_table_exits_2_naming_the_row_and_writes_nothing(tmp_pat
     lines[4] = lines[4].rsplit(",", 1)[0] + ",n/a"
     study.write_text("\n".join(lines) + "\n")
     out_json = tmp_path / "gauge.json"
-    assert main(["gauge", str(study), "--tolerance", "30", "--json", str(out_json)]) == 2
+    assert main(["gauge", str(study), "--tolerance-width", "30", "--json", str(out_json)]) == 2
     err = capsys.readouterr().err
     assert "study.csv:5: value: not a number (got 'n/a')" in err
     assert "Traceback" not in err
@@ -87,11 +87,14 @@ def _refused(capsys, argv, folder):
 @pytest.mark.parametrize(
     ("flags", "message"),
     [
-        (["--tolerance", "-1"], r"--tolerance: must be > 0 \(got -1\)$"),
-        (["--tolerance", "0"], r"--tolerance: must be > 0 \(got 0\)$"),
-        (["--tolerance", "nan"], r"--tolerance: must be > 0 \(got nan\)$"),
-        (["--tolerance", "30", "--interaction-alpha", "1"], r"--interaction-alpha: must be 0 < value < 1 \(got 1\)$"),
-        (["--tolerance", "30", "--resolution", "-0.1"], r"--resolution: must be >= 0 \(got -0.1\)$"),
+        (["--tolerance-width", "-1"], r"--tolerance-width: must be > 0 \(got -1\)$"),
+        (["--tolerance-width", "0"], r"--tolerance-width: must be > 0 \(got 0\)$"),
+        (["--tolerance-width", "nan"], r"--tolerance-width: must be > 0 \(got nan\)$"),
+        (
+            ["--tolerance-width", "30", "--interaction-alpha", "1"],
+            r"--interaction-alpha: must be 0 < value < 1 \(got 1\)$",
+        ),
+        (["--tolerance-width", "30", "--resolution", "-0.1"], r"--resolution: must be >= 0 \(got -0.1\)$"),
     ],
 )
 def test_gauge_bad_flag_exits_2_naming_the_flag_not_the_table(tmp_path, capsys, flags, message):
@@ -103,7 +106,7 @@ def test_gauge_bad_flag_exits_2_naming_the_flag_not_the_table(tmp_path, capsys, 
 def test_gauge_extra_trial_row_gives_two_lines_naming_it(tmp_path, capsys):
     study = _write_study(tmp_path / "study.csv", _study(4, appraiser_sigma=0.1))  # 10 x 3 x 3 on lines 2-91
     study.write_text(study.read_text() + "CP-14-01,A,4,0.5\n")
-    assert main(["gauge", str(study), "--tolerance", "40"]) == 2
+    assert main(["gauge", str(study), "--tolerance-width", "40"]) == 2
     err = capsys.readouterr().err.splitlines()
     assert len(err) == 2
     assert "study.csv:92: part 'CP-14-01', appraiser 'A', trial '4': a trial the other cells do not have" in err[0]
@@ -113,7 +116,7 @@ def test_gauge_extra_trial_row_gives_two_lines_naming_it(tmp_path, capsys):
 def test_gauge_recipe_with_a_table_of_values_exits_2(tmp_path, capsys):
     png, recipe = _render_target(tmp_path, lays="90")
     study = _write_study(tmp_path / "study.csv", HAND_TABLE)
-    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--recipe", str(recipe)], tmp_path)
+    line = _refused(capsys, ["gauge", str(study), "--tolerance-width", "30", "--recipe", str(recipe)], tmp_path)
     assert "study.csv:1: header: the table holds measured values, so a recipe has nothing to measure" in line
 
 
@@ -136,17 +139,19 @@ def _unwritable(tmp_path, case, flag, ext):
 def test_gauge_unwritable_output_exits_2_before_any_work(tmp_path, capsys, case, flag, ext):
     study = _write_study(tmp_path / "study.csv", HAND_TABLE)
     path, expected = _unwritable(tmp_path, case, flag, ext)
-    assert _refused(capsys, ["gauge", str(study), "--tolerance", "30", flag, str(path)], tmp_path) == expected
+    assert _refused(capsys, ["gauge", str(study), "--tolerance-width", "30", flag, str(path)], tmp_path) == expected
 
 
 def test_gauge_outputs_must_not_overwrite_the_study_or_each_other(tmp_path, capsys):
     study = _write_study(tmp_path / "study.csv", HAND_TABLE)
-    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--json", str(study)], tmp_path)
+    line = _refused(capsys, ["gauge", str(study), "--tolerance-width", "30", "--json", str(study)], tmp_path)
     assert line.endswith(f"--json: {study} is also the study table; it would be overwritten (choose another name)")
-    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--pdf", str(tmp_path / "r.png")], tmp_path)
+    line = _refused(
+        capsys, ["gauge", str(study), "--tolerance-width", "30", "--pdf", str(tmp_path / "r.png")], tmp_path
+    )
     assert line.endswith(f"--pdf: {tmp_path / 'r.png'}: the name must end in .pdf")
     same = str(tmp_path / "r.pdf")
-    line = _refused(capsys, ["gauge", str(study), "--tolerance", "30", "--json", same, "--pdf", same], tmp_path)
+    line = _refused(capsys, ["gauge", str(study), "--tolerance-width", "30", "--json", same, "--pdf", same], tmp_path)
     assert line.endswith(f"--pdf: {same} is also the --json file; it would be overwritten (choose another name)")
 
 
@@ -329,7 +334,7 @@ def test_gauge_study_of_images_measures_each_with_the_recipe(tmp_path):
             "-q",
             "gauge",
             str(tmp_path / "study.csv"),
-            "--tolerance",
+            "--tolerance-width",
             "6",
             "--recipe",
             str(tmp_path / "panel.yaml"),
@@ -349,5 +354,42 @@ def test_gauge_study_of_images_measures_each_with_the_recipe(tmp_path):
 
 def test_gauge_image_table_needs_a_recipe(tmp_path, capsys):
     (tmp_path / "study.csv").write_text("part,appraiser,trial,image\nP1,A,1,a.png\n")
-    assert main(["gauge", str(tmp_path / "study.csv"), "--tolerance", "6"]) == 2
+    assert main(["gauge", str(tmp_path / "study.csv"), "--tolerance-width", "6"]) == 2
     assert "lists images; give a recipe" in capsys.readouterr().err
+
+
+def test_small_study_warns_and_json_keys_have_no_spaces(tmp_path, capsys):
+    # 3 parts x 2 appraisers x 2 trials: smaller than the usual 10 x 3 x 2-3 (AIAG MSA, 4th ed.)
+    study = _write_study(tmp_path / "small.csv", HAND_TABLE)
+    out = tmp_path / "g.json"
+    main(["gauge", str(study), "--tolerance-width", "30", "--json", str(out), "--basis", "larger"])
+    err = capsys.readouterr().err
+    assert "small study: 3 parts (usually at least 10), 2 appraisers (usually at least 3)" in err
+    doc = json.loads(out.read_text())
+    assert doc["warnings"] and doc["basis"] == "larger"
+
+    def keys(node):
+        if isinstance(node, dict):
+            for k, v in node.items():
+                yield k
+                yield from keys(v)
+        elif isinstance(node, list):
+            for v in node:
+                yield from keys(v)
+
+    assert not [k for k in keys(doc) if " " in k]
+    assert doc["components"]["part_x_appraiser"]["name"] == "part x appraiser"
+    # both ANOVA tables are in the JSON; the used one is "anova"
+    assert doc["anova"] == doc["anova_with_interaction"] and len(doc["anova_pooled"]) == len(doc["anova"]) - 1
+
+
+def test_the_usual_study_size_gives_no_warning(tmp_path, capsys):
+    study = _write_study(tmp_path / "usual.csv", _study(4, 0.05))
+    main(["gauge", str(study), "--tolerance-width", "40"])
+    assert "small study" not in capsys.readouterr().err
+
+
+def test_old_tolerance_flag_is_refused_naming_the_new_one(tmp_path, capsys):
+    study = _write_study(tmp_path / "s.csv", HAND_TABLE)
+    assert main(["gauge", str(study), "--tolerance-width", "30", "--tolerance", "30"]) == 2
+    assert "--tolerance: renamed --tolerance-width (the full width USL - LSL" in capsys.readouterr().err

@@ -199,7 +199,7 @@ def test_json_has_the_required_keys_and_matches_the_components():
 def test_verdict_thresholds(percent, ndc, expected):
     from surfinspect.qualify.gauge import _judge
 
-    verdict, reasons = _judge(percent, percent / 2, ndc, 0.01, "given", 1.0, "both")
+    verdict, reasons = _judge(percent, percent / 2, ndc, 0.01, "given", 1.0, "larger")
     assert verdict is expected
     assert reasons[0].startswith("%GRR (larger of total variation and tolerance)")
 

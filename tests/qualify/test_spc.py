@@ -141,3 +141,49 @@ def test_capability_with_zero_sigma_is_undefined_not_infinite():
 def test_capability_bad_arguments(lsl, usl, sigma, message):
     with pytest.raises(InputError, match=message):
         capability(TABLE, lsl, usl, sigma=sigma)
+
+
+# ---------------------------------------------------------------- confidence intervals of Cp and Cpk
+
+
+def test_cp_interval_is_the_chi_square_interval():
+    # Montgomery, Introduction to SQC, 7th ed., ch. 8.3.5: Cp sqrt(chi2(a/2, n-1)/(n-1)) .. sqrt(chi2(1-a/2)/(n-1)),
+    # computed here with scipy.stats for n = 20, Cp = 1.33
+    from scipy.stats import chi2
+
+    from surfinspect.qualify.spc import capability_intervals
+
+    (lo, hi), _ = capability_intervals(1.33, 1.2, 20)
+    assert lo == pytest.approx(1.33 * np.sqrt(chi2.ppf(0.025, 19) / 19))
+    assert hi == pytest.approx(1.33 * np.sqrt(chi2.ppf(0.975, 19) / 19))
+    # the quantiles by hand, from a printed chi-square table (19 dof: 8.907 and 32.852)
+    assert lo == pytest.approx(1.33 * np.sqrt(8.907 / 19), abs=1e-3)
+    assert hi == pytest.approx(1.33 * np.sqrt(32.852 / 19), abs=1e-3)
+
+
+def test_cp_and_cpk_intervals_cover_the_true_index_about_95_percent_of_the_time():
+    # Monte Carlo: normal samples of 30 parts, mean 0.5, sigma 1, limits -3 .. 3 (true Cp 1, Cpk 0.8333),
+    # sigma from the sample standard deviation (n - 1 degrees of freedom, as both intervals assume).
+    # The chi-square interval is exact; Bissell's is an approximation good to a point or two at this n.
+    from surfinspect.qualify.spc import capability
+
+    rng = np.random.default_rng(20240601)
+    hits_cp = hits_cpk = 0
+    runs = 1500
+    for _ in range(runs):
+        x = rng.normal(0.5, 1.0, 30)
+        cap = capability(x, -3.0, 3.0, sigma=float(np.std(x, ddof=1)))
+        hits_cp += cap.cp_interval[0] <= 1.0 <= cap.cp_interval[1]
+        hits_cpk += cap.cpk_interval[0] <= 2.5 / 3 <= cap.cpk_interval[1]
+    assert 0.93 <= hits_cp / runs <= 0.97
+    assert 0.92 <= hits_cpk / runs <= 0.975
+
+
+def test_fewer_than_25_parts_warn():
+    from surfinspect.qualify.spc import capability
+
+    rng = np.random.default_rng(3)
+    few = capability(rng.normal(0, 1, 24), -3, 3)
+    enough = capability(rng.normal(0, 1, 25), -3, 3)
+    assert few.warnings == ("Cp/Cpk from 24 parts (fewer than 25): read them with their 95% confidence intervals",)
+    assert enough.warnings == ()

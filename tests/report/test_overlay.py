@@ -109,7 +109,7 @@ def make_face(
         deviation_deg=dev,
         uncertainty_deg=0.123,
         coherence=0.7312,
-        defect_area_fraction=patches[0].area_fraction if patches else 0.0,
+        deviating_area_fraction=patches[0].area_fraction if patches else 0.0,
         patches=patches,
         histogram=_histogram(lay_deg),
         verdict=RegionVerdict.FAIL if failed else RegionVerdict.PASS,
@@ -132,7 +132,7 @@ def make_pad(*, textured: bool = False) -> RegionResult:
         deviation_deg=0.42 if textured else None,
         uncertainty_deg=0.2 if textured else None,
         coherence=0.61 if textured else 0.03,
-        defect_area_fraction=0.0,
+        deviating_area_fraction=0.0,
         patches=(),
         histogram=_histogram(0.4 if textured else None),
         verdict=RegionVerdict.PASS if textured else RegionVerdict.NO_TEXTURE,
@@ -191,7 +191,7 @@ def make_ring(*, wrong: bool = True, fitted: bool = False, name: str = "ring") -
         deviation_deg=0.437,
         uncertainty_deg=0.05,
         coherence=0.0123,
-        defect_area_fraction=0.0,
+        deviating_area_fraction=0.0,
         patches=(),
         histogram=_histogram(None),
         verdict=RegionVerdict.FAIL if wrong else RegionVerdict.PASS,
@@ -321,7 +321,7 @@ def test_excluded_area_is_darkened_and_has_no_glyphs():
 
 def test_region_label_names_region_and_verdict():
     scene = build_scene(make_part(), WIDTH, HEIGHT)
-    assert [r.label for r in scene.regions] == ["face: FAIL", "pad: NO TEXTURE"]
+    assert [r.label for r in scene.regions] == ["face: FAIL", "pad: NO-TEXTURE"]
     assert REGION_LOOKS[RegionVerdict.FAIL].dash is not None and REGION_LOOKS[RegionVerdict.PASS].dash is None
 
 

@@ -45,7 +45,7 @@ EXPECTED = {
     "LW-220-004.png": "reject",
     "LW-220-005.png": "accept",
     "LW-220-blank.png": "review",
-    "LW-220-broken.png": "error",
+    "LW-220-broken.png": "not-inspected",
 }
 
 
@@ -101,7 +101,7 @@ def test_batch_end_to_end(panels, tmp_path):
     assert [r["part"] for r in rows] == sorted(EXPECTED)
     for row in rows:
         result = json.loads((out / f"{row['part'][:-4]}.json").read_text())
-        if row["part_verdict"] == "error":
+        if row["part_verdict"] == "not-inspected":
             assert row["region"] == "" and ("not a readable image" in row["reasons"] or "truncated" in row["reasons"])
             continue
         (region,) = result["regions"]
@@ -113,8 +113,8 @@ def test_batch_end_to_end(panels, tmp_path):
     text = "\n".join(page.extract_text() for page in pypdf.PdfReader(out / "report.pdf").pages)
     for key in EXPECTED:
         assert key[:-4] in text
-    assert "Parts not inspected: 1 of 7" in text
-    assert "NOT INSPECTED" in text.split("\n", 60)[-1] or "NOT INSPECTED" in text  # counted on the summary
+    assert "Parts not-inspected: 1 of 7" in text
+    assert "NOT-INSPECTED" in text.split("\n", 60)[-1] or "NOT-INSPECTED" in text  # counted on the summary
     # the station's own folders stay out of the customer's report: parts are named within the batch
     assert str(tmp_path) not in text
 
@@ -187,9 +187,9 @@ def _row(verdict):
     [
         (["accept", "accept"], 0),
         (["accept", "review"], 3),
-        (["accept", "error"], 3),  # an unreadable image is never "all accepted"
+        (["accept", "not-inspected"], 3),  # an unreadable image is never "all accepted"
         (["accept", None], 3),  # nor is a part not yet inspected
-        (["review", "error", "reject"], 1),
+        (["review", "not-inspected", "reject"], 1),
     ],
 )
 def test_batch_exit_code(verdicts, code):
@@ -265,7 +265,7 @@ def test_sign_verify_show_commands(panels, tmp_path, capsys, monkeypatch):
     listing = capsys.readouterr().out
     assert "B1" in listing and "withheld by Kari Lindqvist" in listing
     assert main(["show", "--archive", str(root), "--batch-id", "B1"]) == 0
-    assert "LW-220-broken.png  error" in capsys.readouterr().out
+    assert "LW-220-broken.png  not-inspected" in capsys.readouterr().out
 
     db = sqlite3.connect(root / arc.INDEX_NAME)
     with db:
@@ -283,10 +283,10 @@ def test_progress_lines_when_not_a_terminal(panels, tmp_path):
     out = io.StringIO()
     progress = batch_command._Progress(Console(out, io.StringIO()))
     progress(batch.PartDone("LW-220-001.png", "accept", 1, 7))
-    progress(batch.PartDone("LW-220-broken.png", "error", 2, 7, "not a readable image"))
+    progress(batch.PartDone("LW-220-broken.png", "not-inspected", 2, 7, "not a readable image"))
     assert out.getvalue().splitlines() == [
         "[1/7] LW-220-001.png: accept",
-        "[2/7] LW-220-broken.png: error (not a readable image)",
+        "[2/7] LW-220-broken.png: not-inspected (not a readable image)",
     ]
 
 
@@ -334,9 +334,12 @@ def test_recursive_rerun_takes_no_output_or_archive_file_as_a_part(tmp_path, cap
         "LW-220-001.overlay.png",
         "LW-220-002.overlay.png",
     ]
+    # the output folder now holds a file the batch did not write: refused without --overwrite (README)
+    assert main(["-q", *args, "--batch-id", "R1"]) == 2
     # the same id again: the same three images (more would be refused as "holds other images", exit 2)
-    assert main(["-q", *args, "--batch-id", "R1"]) == 0
-    assert main(["-q", *args, "--batch-id", "R2"]) == 0
+    assert main(["-q", *args, "--batch-id", "R1", "--overwrite"]) == 0
+    assert main(["-q", *args, "--batch-id", "R2", "--overwrite"]) == 0
+    assert (out / "copy.png").exists()  # --overwrite removes only what surfinspect wrote
     with arc.Archive(archive) as a:
         assert [p.part_key for p in a.parts("R2")] == ["LW-220-000.png", "LW-220-001.png", "line-2/LW-220-002.png"]
     assert verify(archive) == []

@@ -1,0 +1,49 @@
+"""Start-up: the command line loads no heavy library before a command runs (times: tests/benchmarks/bench_startup.py)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pytest
+
+from surfinspect.cli import disposition, sign
+from surfinspect.cli.main import COMMANDS
+from surfinspect.results import SIGNOFF_MEANINGS
+
+HEAVY = ("cv2", "scipy", "skimage", "reportlab", "cryptography", "numpy", "PIL", "sqlite3")
+
+_PROBE = """
+import sys
+from surfinspect.cli.main import main
+try:
+    main({argv!r})
+except SystemExit:
+    pass
+print("loaded:", *sorted(m for m in {heavy!r} if m in sys.modules))
+"""
+
+
+@pytest.mark.parametrize(
+    "argv, allowed",
+    [
+        (["--version"], ()),
+        (["--help"], ()),
+        (["check", "recipes/lw-220-wall-panel.yaml"], ()),
+        # the flags of a command may need its library (the choices of sign and disposition, the dpi range
+        # of target): those load for their own --help only
+        *[([c, "--help"], ()) for c in COMMANDS if c not in ("target", "bias", "gauge", "sign", "disposition")],
+    ],
+)
+def test_no_heavy_library_is_loaded_before_a_command_runs(argv, allowed):
+    code = _PROBE.format(argv=argv, heavy=HEAVY)
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    loaded = done.stdout.strip().splitlines()[-1].split()[1:]
+    assert [m for m in loaded if m not in allowed] == []
+
+
+def test_help_texts_written_out_match_the_archives_words():
+    from surfinspect.archive import signatures
+
+    assert f"({', '.join(SIGNOFF_MEANINGS[:2])} or {SIGNOFF_MEANINGS[2]})" in sign.HELP
+    assert f"({', '.join(signatures.DECISIONS)})" in disposition.HELP
