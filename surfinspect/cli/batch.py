@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import Iterator
 
 from .._lazy import module
+from ..errors import InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
