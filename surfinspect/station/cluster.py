@@ -59,13 +59,13 @@ def _task(function: Callable, *args):
     return function(*args)
 
 
-def inspect_bytes(data: bytes, path: str, name: str, recipe: Recipe) -> dict:
+def inspect_bytes(data: bytes, path: str, stem: str, part_key: str, recipe: Recipe) -> dict:
     """One image's bytes inspected on a worker, as :func:`.batch._inspect_one` does it on the station."""
     _one_thread_for_opencv()
     with tempfile.TemporaryDirectory(prefix="surfinspect-part-") as tmp:
         src = Path(tmp) / ("image" + Path(path).suffix)
         src.write_bytes(data)
-        outcome, _ = inspect_path(src, recipe, tmp, name)
+        outcome, _ = inspect_path(src, recipe, tmp, stem, name=part_key)
         if outcome.error is not None:
             return {"error": outcome.error.replace(str(src), path)}
         doc = json.loads(Path(outcome.json_path).read_text(encoding="utf-8"))
@@ -91,7 +91,7 @@ def inspect_on_cluster(
 
         def submit(item):
             key, path, name = item
-            future = client.submit(inspect_bytes, Path(path).read_bytes(), path, name, shared, pure=False)
+            future = client.submit(inspect_bytes, Path(path).read_bytes(), path, name, key, shared, pure=False)
             keys[future.key] = key
             return future
 

@@ -131,7 +131,7 @@ def rejudge_part(task: Task, recipe: Recipe, objects_dir: str) -> dict[str, Any]
     if sha256_file(path) != task.image_sha256:
         return {"verdict": "error", "regions": [], "error": "archived image has changed (hash mismatch)"}
     with tempfile.TemporaryDirectory(prefix="surfinspect-rejudge-") as tmp:
-        outcome, _ = inspect_path(path, recipe, tmp, task.stem)
+        outcome, _ = inspect_path(path, recipe, tmp, task.stem, name=task.part_key)
         if outcome.error is not None:
             return {"verdict": "error", "regions": [], "error": outcome.error.replace(str(path), task.part_key)}
         doc = json.loads(Path(outcome.json_path).read_text(encoding="utf-8"))
