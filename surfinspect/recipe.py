@@ -62,8 +62,12 @@ REGION_DEFAULTS: dict[str, Any] = {
     "min_coherence": 0.2,
     "max_coherence": 0.1,
     "max_deviating_fraction": 0.02,
-    "cell_px": 64,
+    "max_masked_fraction": 0.10,
+    "max_unmeasured_fraction": 0.25,
+    "cell_px": 24,
     "sigma_px": 1.0,
+    "illumination_px": 12.0,
+    "sharpness_period_px": 3.5,
 }
 
 SHAPE_KEYS = ("rect", "polygon", "circle", "annulus")
@@ -121,8 +125,12 @@ class Region:
     min_coherence: float = REGION_DEFAULTS["min_coherence"]
     max_coherence: float = REGION_DEFAULTS["max_coherence"]
     max_deviating_fraction: float = REGION_DEFAULTS["max_deviating_fraction"]
+    max_masked_fraction: float = REGION_DEFAULTS["max_masked_fraction"]
+    max_unmeasured_fraction: float = REGION_DEFAULTS["max_unmeasured_fraction"]
     cell_px: int = REGION_DEFAULTS["cell_px"]
     sigma_px: float = REGION_DEFAULTS["sigma_px"]
+    illumination_px: float = REGION_DEFAULTS["illumination_px"]
+    sharpness_period_px: float = REGION_DEFAULTS["sharpness_period_px"]
     line: int = 0
     lay_symbol: str = ""  # ``lay`` exactly as the recipe's author wrote it ("" when not given)
 
@@ -145,6 +153,7 @@ class Recipe:
     datum: str = "image"
     pixel_size_mm: float | None = None
     camera_rotation_deg: float = 0.0
+    saturation_level: float = 1.0
     description: str = ""
     path: str = "<memory>"
     sha256: str = ""
@@ -324,6 +333,7 @@ _TOP_KEYS = (
     "datum",
     "pixel_size_mm",
     "camera_rotation_deg",
+    "saturation_level",
     "defaults",
     "regions",
 )
@@ -333,8 +343,12 @@ _PARAM_RULES: dict[str, Callable[[_Reader, _Map, str, str], Any]] = {
     "min_coherence": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
     "max_coherence": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
     "max_deviating_fraction": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
+    "max_masked_fraction": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
+    "max_unmeasured_fraction": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=1),
     "cell_px": lambda r, m, k, p: r.number(m, k, p, lo=8, hi=4096, integer=True),
     "sigma_px": lambda r, m, k, p: r.number(m, k, p, lo=0.5, hi=8),
+    "illumination_px": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=512),  # 0: keep the light as it is
+    "sharpness_period_px": lambda r, m, k, p: r.number(m, k, p, lo=0, hi=64),
 }
 
 
@@ -513,6 +527,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
                 "only used with datum: image (the part-edge datum measures the skew)",
             )
         camera_rotation = r.number(doc, "camera_rotation_deg", "", lo=-45, hi=45) or 0.0
+    saturation = r.number(doc, "saturation_level", "", lo=0, hi=1, lo_open=True) if "saturation_level" in doc else 1.0
     description = doc.get("description", "")
     if not isinstance(description, str):
         problems.add(doc.line_of("description"), "description", f"must be text (got {_describe(description)})")
@@ -555,6 +570,7 @@ def parse_recipe(text: str, source: str = "<memory>") -> Recipe:
         datum=datum,
         pixel_size_mm=pixel_size,
         camera_rotation_deg=float(camera_rotation),
+        saturation_level=1.0 if saturation is None else float(saturation),
         description=description,
         path=source,
         sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(),

@@ -32,6 +32,7 @@ class RegionVerdict(str, enum.Enum):
     PASS = "pass"
     FAIL = "fail"
     NO_TEXTURE = "no-texture"
+    REVIEW = "review"  # measured, but what the camera could not see or measure is too much to judge
 
 
 class PartVerdict(str, enum.Enum):
@@ -52,10 +53,10 @@ EXIT_INPUT_ERROR = errors.EXIT_INPUT_ERROR
 
 
 def part_verdict(region_verdicts: Sequence[RegionVerdict]) -> PartVerdict:
-    """Combine region verdicts: any fail rejects, else any no-texture asks for review."""
+    """Combine region verdicts: any fail rejects, else any no-texture or review asks for review."""
     if any(v is RegionVerdict.FAIL for v in region_verdicts):
         return PartVerdict.REJECT
-    if any(v is RegionVerdict.NO_TEXTURE for v in region_verdicts):
+    if any(v in (RegionVerdict.NO_TEXTURE, RegionVerdict.REVIEW) for v in region_verdicts):
         return PartVerdict.REVIEW
     return PartVerdict.ACCEPT
 
@@ -110,6 +111,8 @@ class Patch:
     # (x, y, w, h) in mm in the part frame (from the datum origin, y down), when the recipe gives pixel_size_mm:
     # the box of the patch's cells as a drawing would dimension it (for a rotated frame, the box around them)
     position_mm: tuple[float, float, float, float] | None = None
+    length_px: float = 0.0  # extent of the patch's cells along the patch's own lay
+    cells: int = 0  # number of cells in the patch
 
 
 @dataclass(frozen=True)
@@ -262,6 +265,8 @@ def region_to_dict(r: RegionResult) -> dict:
                 "lay_deg": _num(p.lay_deg, 2),
                 "deviation_deg": _num(p.deviation_deg, 2),
                 "area_px": p.area_px,
+                "length_px": _num(p.length_px, 1),
+                "cells": p.cells,
                 **({"bbox_mm": [_num(v, 3) for v in p.bbox_mm]} if p.bbox_mm is not None else {}),
                 **({"area_mm2": _num(p.area_mm2, 3)} if p.area_mm2 is not None else {}),
                 **({"position_mm": [_num(v, 3) for v in p.position_mm]} if p.position_mm is not None else {}),
@@ -341,6 +346,8 @@ def region_from_dict(d: Mapping[str, Any]) -> RegionResult:
                 lay_deg=float(p["lay_deg"]) if p["lay_deg"] is not None else float("nan"),
                 deviation_deg=float(p["deviation_deg"]) if p["deviation_deg"] is not None else float("nan"),
                 area_px=int(p["area_px"]),
+                length_px=float(p.get("length_px") or 0.0),
+                cells=int(p.get("cells") or 0),
                 bbox_mm=tuple(p["bbox_mm"]) if "bbox_mm" in p else None,
                 area_mm2=p.get("area_mm2"),
                 position_mm=tuple(p["position_mm"]) if "position_mm" in p else None,

@@ -143,8 +143,6 @@ BEING_SPLIT = {
     "surfinspect/recipe.py::parse_recipe",
     # issue 11: the measurement engine
     "surfinspect/measure/datum.py",
-    "surfinspect/measure/judge.py::judge_region",
-    "surfinspect/measure/orientation.py::cell_sums",
 }
 
 

@@ -60,7 +60,7 @@ def _problems(text: str) -> list[str]:
 def test_typo_key_is_named_with_its_line():
     problems = _problems(GOOD.replace("tolerance_deg: 1", "tolerence_deg: 1"))
     assert problems == [
-        "bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_deviating_fraction, cell_px, sigma_px)"
+        "bad.yaml:18: regions[2](band).tolerence_deg: unknown key (allowed: name, rect, polygon, circle, annulus, exclude, lay, lay_deg, centre, tolerance_deg, min_coherence, max_coherence, max_deviating_fraction, max_masked_fraction, max_unmeasured_fraction, cell_px, sigma_px, illumination_px, sharpness_period_px)"
     ]
 
 

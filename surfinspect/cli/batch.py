@@ -16,7 +16,7 @@ import shlex
 import signal
 import threading
 from pathlib import Path
-from typing import Iterator
+from typing import Callable, Iterator
 
 from .._lazy import module
 from ..errors import InputError
@@ -123,11 +123,12 @@ def _raise_stopped(signum: int, frame) -> None:
 
 
 @contextlib.contextmanager
-def _stop_signals_raise() -> Iterator[None]:
+def on_stop_signals(handler: Callable[[int, object], None] = _raise_stopped) -> Iterator[None]:
+    """Call ``handler`` on SIGINT, SIGTERM and SIGHUP inside the block (main thread only), then restore."""
     if threading.current_thread() is not threading.main_thread():
         yield  # handlers can be set in the main thread only
         return
-    previous = {sig: signal.signal(sig, _raise_stopped) for sig in _STOP_SIGNALS}
+    previous = {sig: signal.signal(sig, handler) for sig in _STOP_SIGNALS}
     try:
         yield
     finally:
@@ -135,17 +136,24 @@ def _stop_signals_raise() -> Iterator[None]:
             signal.signal(sig, handler)
 
 
-def run(args: argparse.Namespace, console: Console) -> int:
-    if args.scheduler and args.jobs is not None:
-        raise InputError("--jobs: not with --scheduler (the cluster's workers are the parallelism)")
-    config = batch.BatchConfig(
+def batch_fields(args: argparse.Namespace) -> dict:
+    """The configuration fields ``batch`` and ``watch`` share, from their common arguments."""
+    return dict(
         recipe_path=Path(args.recipe),
         folder=Path(args.folder),
         archive_dir=args.archive,
         batch_id=args.batch_id,
         jobs=args.jobs,
-        scheduler=args.scheduler,
         operator=args.operator,
+    )
+
+
+def run(args: argparse.Namespace, console: Console) -> int:
+    if args.scheduler and args.jobs is not None:
+        raise InputError("--jobs: not with --scheduler (the cluster's workers are the parallelism)")
+    config = batch.BatchConfig(
+        **batch_fields(args),
+        scheduler=args.scheduler,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
         station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
@@ -160,7 +168,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     try:
         if folder is not None:
             folder.claim()
-        with _stop_signals_raise():
+        with on_stop_signals():
             outcome = batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
         progress.close()  # the bar's last line first, then the message

@@ -13,6 +13,7 @@ class Console:
         self.out = out or sys.stdout
         self.err = err or sys.stderr
         self.quiet = quiet
+        self._status_shown = False
 
     @property
     def is_terminal(self) -> bool:
@@ -23,14 +24,40 @@ class Console:
             print(text, file=self.out, flush=True)
 
     def error(self, text: str) -> None:
+        self._end_status()
         print(f"surfinspect: error: {text}", file=self.err, flush=True)
 
     def warn(self, text: str) -> None:
+        self._end_status()
         print(f"surfinspect: warning: {text}", file=self.err, flush=True)
+
+    def note(self, text: str) -> None:
+        """A message for the person at the terminal, on stderr (where stdout carries records)."""
+        if not self.quiet:
+            self._end_status()
+            print(text, file=self.err, flush=True)
+
+    def record(self, line: str) -> None:
+        """One machine-readable line on stdout, flushed at once (JSON lines for scripts)."""
+        print(line, file=self.out, flush=True)
+
+    def status(self, text: str) -> None:
+        """A live status line on stderr, rewritten in place; only on a terminal."""
+        if self.quiet or not self.is_terminal:
+            return
+        self.err.write("\r" + text + "\x1b[K")
+        self.err.flush()
+        self._status_shown = bool(text)
+
+    def _end_status(self) -> None:
+        if self._status_shown:
+            self.err.write("\n")
+            self._status_shown = False
 
     def notice(self, text: str) -> None:
         """Something to act on later that does not stop the run (an old recipe key name, ...)."""
         if not self.quiet:
+            self._end_status()
             print(f"surfinspect: notice: {text}", file=self.err, flush=True)
 
     def table(self, header: Sequence[str], rows: Sequence[Sequence[object]]) -> None:

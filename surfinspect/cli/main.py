@@ -29,6 +29,7 @@ COMMANDS = (
     "check",
     "demo",
     "batch",
+    "watch",
     "keygen",
     "owner",
     "owner-certificate",

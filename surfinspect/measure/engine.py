@@ -18,25 +18,34 @@ import numpy as np
 
 from .._version import __version__
 from ..errors import InputError
-from ..recipe import Recipe, Region, Shape
+from ..recipe import LayPattern, Recipe, Region, Shape
 from ..results import (
     DatumInfo,
     ImageInfo,
     PartResult,
     PartVerdict,
     RecipeInfo,
-    RegionResult,
     part_verdict,
 )
+from .cells import cell_sums, merge_edge_slivers
+from .conditions import block_grid, illumination_background, saturated_pixels
 from .datum import DatumError, find_part_frame
+from .derivatives import gaussian_derivative_kernels
 from .imaging import as_grey_float
 from .judge import RegionMeasurement, judge_region
-from .orientation import cell_sums, noise_gradient_energy, noise_sigma
+from .noise import noise_gradient_energy, noise_sigma
+from .spectrum import spectral_lay, tensor_angle_standard_error
 
 __all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
 
 #: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
 HISTOGRAM_VOTE_STEP = 2
+
+#: The spectral estimate uses at most this many pixels square from the region's centre.
+SPECTRAL_SIDE = 256
+
+#: A region with fewer cells than this has its direction test made on cells a third the size.
+MIN_TEST_CELLS = 64
 
 #: Strips measured at once within one image (OpenCV and NumPy release the GIL).
 THREADS = 2
@@ -261,38 +270,11 @@ def inspect_image(
         )
 
     placed = [region_masks(r, frame, pixels.shape, recipe.path) for r in recipe.regions]
-    noise_energy_by_sigma: dict[float, float] = {}
     sigma_n = noise_sigma(pixels)
-    results: list[RegionResult] = []
-    for region, (bbox, mask, outer, holes) in zip(recipe.regions, placed):
-        sig = region.sigma_px
-        if sig not in noise_energy_by_sigma:
-            noise_energy_by_sigma[sig] = noise_gradient_energy(sigma_n, sig)
-        cells = cell_sums(
-            pixels,
-            mask,
-            bbox,
-            cell_px=region.cell_px,
-            sigma=sig,
-            angle_offset_deg=frame.rotation_deg,
-            vote_step=HISTOGRAM_VOTE_STEP,
-            threads=THREADS,
-        )
-        centre_px = None
-        if region.centre is not None:
-            cx, cy = frame.to_image([region.centre])[0]
-            centre_px = (float(cx), float(cy))
-        m = RegionMeasurement(
-            cells=cells,
-            region_mask_area=float(mask.sum()),
-            noise_energy=noise_energy_by_sigma[sig],
-            rotation_deg=frame.rotation_deg,
-            centre_px=centre_px,
-            outline_px=outer,
-            exclude_px=holes,
-            pixel_size_mm=recipe.pixel_size_mm,
-        )
-        results.append(judge_region(region, m))
+    results = [
+        judge_region(region, _measure_region(pixels, region, where, frame, recipe, sigma_n))
+        for region, where in zip(recipe.regions, placed)
+    ]
     results = [_patches_in_part_frame(r, frame, recipe.pixel_size_mm) for r in results]
     verdict = part_verdict([r.verdict for r in results])
     return PartResult(
@@ -305,6 +287,99 @@ def inspect_image(
         engine_version=__version__,
         datum=datum,
     )
+
+
+def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, recipe: Recipe, sigma_n: float):
+    """Mask what the camera could not see, sum the cells and gather what judging needs."""
+    bbox, mask, outer, holes = where
+    x0, y0, w, h = bbox
+    radius = len(gaussian_derivative_kernels(region.sigma_px)[0]) // 2
+    rows, cols = pixels.shape
+    gy0, gx0 = max(0, y0 - radius), max(0, x0 - radius)
+    grown = saturated_pixels(
+        pixels[gy0 : min(rows, y0 + h + radius), gx0 : min(cols, x0 + w + radius)], recipe.saturation_level, radius
+    )
+    keep = None
+    masked = 0.0
+    if grown is not None:
+        keep = ~grown[y0 - gy0 : y0 - gy0 + h, x0 - gx0 : x0 - gx0 + w]
+        masked = float((mask & ~keep).sum() / max(mask.sum(), 1))
+    cells = cell_sums(
+        pixels,
+        mask,
+        bbox,
+        cell_px=region.cell_px,
+        sigma=region.sigma_px,
+        angle_offset_deg=frame.rotation_deg,
+        vote_step=HISTOGRAM_VOTE_STEP,
+        threads=THREADS,
+        keep=keep,
+        background_sigma=region.illumination_px,
+    )
+    test_cells = None
+    if cells.area.size < MIN_TEST_CELLS and region.lay is LayPattern.DIRECTIONAL:
+        # too few cells for a strong direction test: test on cells of a third the size (cheap: the region is small)
+        test_cells = cell_sums(
+            pixels,
+            mask,
+            bbox,
+            cell_px=max(8, region.cell_px // 3),
+            sigma=region.sigma_px,
+            keep=keep,
+            background_sigma=region.illumination_px,
+        )
+    cells = merge_edge_slivers(cells)
+    spectral = tensor_se = None
+    if region.lay is LayPattern.DIRECTIONAL:
+        spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask if keep is None else mask & keep, sigma_n)
+    centre_px = None
+    if region.centre is not None:
+        cx, cy = frame.to_image([region.centre])[0]
+        centre_px = (float(cx), float(cy))
+    return RegionMeasurement(
+        cells=cells,
+        region_mask_area=float(mask.sum()),
+        noise_energy=noise_gradient_energy(sigma_n, region.sigma_px),
+        rotation_deg=frame.rotation_deg,
+        centre_px=centre_px,
+        outline_px=outer,
+        exclude_px=holes,
+        pixel_size_mm=recipe.pixel_size_mm,
+        masked_fraction=masked,
+        block_grid=_block_grid_sample(pixels, bbox, mask),
+        test_cells=test_cells,
+        spectral=spectral,
+        tensor_standard_error_deg=tensor_se,
+    )
+
+
+def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, sigma_n: float):
+    """The spectral lay and the tensor angle's spectral standard error, from the region's central part.
+
+    At most :data:`SPECTRAL_SIDE` px square, so the cost stays bounded; the standard error is scaled
+    from that part to the whole region (variance inversely proportional to the measured area).
+    """
+    x0, y0, w, h = bbox
+    side = SPECTRAL_SIDE
+    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
+    r1, c1 = min(h, r0 + side), min(w, c0 + side)
+    crop = mask[r0:r1, c0:c1]
+    if crop.sum() < 64:
+        return None, None
+    block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]
+    spectral = spectral_lay(block, crop, noise_sigma=sigma_n)
+    if region.illumination_px > 0:
+        block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
+    se = tensor_angle_standard_error(block, crop, sigma=region.sigma_px)
+    return spectral, se * math.sqrt(float(crop.sum()) / max(float(mask.sum()), 1.0))
+
+
+def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1024):
+    """The block grid of a region, from its central ``side`` x ``side`` px at most (it repeats everywhere)."""
+    x0, y0, w, h = bbox
+    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
+    r1, c1 = min(h, r0 + side), min(w, c0 + side)
+    return block_grid(pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1], mask[r0:r1, c0:c1], origin=(x0 + c0, y0 + r0))
 
 
 def _bit_depth(image: np.ndarray) -> int:

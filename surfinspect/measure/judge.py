@@ -2,33 +2,48 @@
 
 Pure functions. The rules (all thresholds come from the recipe region):
 
-* **No texture**: the region's mean gradient energy is less than
-  :data:`TEXTURE_RATIO_MIN` times what the image's own camera noise would give.
-  Such a region gets no angle at all.
-* **Directional** lay passes when ``|deviation| <= tolerance_deg``, coherence
-  ``>= min_coherence`` and the deviating-patch share ``<= max_deviating_fraction``.
-* **Crossed** lay: each expected direction must be matched by a peak of the
-  orientation histogram within tolerance.
-* **Multidirectional / particulate**: coherence ``<= max_coherence`` and a
-  Rayleigh test on the cell lays does not find a preferred direction.
-* **Circular / radial**: each cell is compared with the direction expected at
-  its own position; the mean deviation and the deviating share are judged.
+* **Review first**: when clipped pixels (glare) cover more than ``max_masked_fraction`` of the
+  region, or more than ``max_unmeasured_fraction`` of the local check's area is unmeasured,
+  the region goes to ``review`` with the reason in words; it is never failed on what could not
+  be seen.
+* **No texture**: the region's gradient energy is less than :data:`TEXTURE_RATIO_MIN` times
+  what the image's own noise gives. Such a region gets no angle at all.
+* **Directional** lay passes when ``|deviation| <= tolerance_deg`` (the lay is the robust
+  combination of the cells, :mod:`.robust`), coherence ``>= min_coherence`` and the
+  deviating-patch share ``<= max_deviating_fraction``.
+* **Crossed**, **multidirectional / particulate**, **circular / radial**: :mod:`.patterns`.
 * **Any**: texture must be present; its direction is not judged.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import cv2
 import numpy as np
 
 from ..recipe import LayPattern, Region
 from ..results import CellGrid, Histogram, Patch, RegionResult, RegionVerdict
-from .orientation import CellSums, axial_mean, noise_gradient_energy, rayleigh_test, tensor_lay, wrap_deviation
+from .axial import axial_mean, wrap_deviation
+from .cells import CellSums
+from .conditions import BlockGrid
+from .derivatives import tensor_lay
+from .noise import noise_gradient_energy
+from .patterns import fit_centre, judge_centred, judge_crossed, judge_nondirectional
+from .robust import robust_lay
+from .spectrum import SpectralLay
+from .uncertainty import COVERAGE_K, STEP_GRADIENT_ENERGY, Budget, cell_uncertainty, combine
+from .verdict import Cells, Verdict, fmt_angle, fmt_signed
 
-__all__ = ["TEXTURE_RATIO_MIN", "RegionMeasurement", "judge_region"]
+__all__ = [
+    "TEXTURE_RATIO_MIN",
+    "TEXTURE_ALPHA",
+    "CELL_MIN_COVER",
+    "RegionMeasurement",
+    "direction_test",
+    "judge_region",
+]
 
 #: Texture is present when gradient energy exceeds this multiple of the noise's
 #: own (signal energy at least three times the noise energy). Common practice
@@ -39,21 +54,18 @@ TEXTURE_RATIO_MIN = 4.0
 #: step^2 / 12) through the default sigma = 1 px derivative: the least noise any image has.
 NOISE_ENERGY_FLOOR = noise_gradient_energy(1.0 / 65535.0 / math.sqrt(12.0), 1.0)
 
-#: A cell takes part in the local check when the region covers at least this share of a full cell.
-CELL_MIN_COVER = 0.5
+#: False-alarm rate of the test for a direction in noise (per region): a region of pure noise, white
+#: or not, is called textured this often (measured in tests/measure/test_texture.py).
+TEXTURE_ALPHA = 1e-3
 
-#: Significance level below which a Rayleigh test says the cells share a direction.
-RAYLEIGH_ALPHA = 0.01
+#: ... and the direction found must carry at least this share of the gradient energy (coherence):
+#: a significant but negligible direction (JPEG quantisation tables are not symmetric: blank panels
+#: at q 95 show coherence 0.02 at p ~ 1e-4) is no lay. Chosen on synthetic cases, no source.
+TEXTURE_MIN_COHERENCE = 0.05
 
-#: A fitted histogram bump counts for a crossed lay when its height is at least this share of
-#: the highest bump's. Chosen on synthetic textures, no source.
-CROSSED_MIN_PROMINENCE = 0.25
-
-#: Blocks needed before a coarser block size enters the uncertainty estimate.
-MIN_UNCERTAINTY_BLOCKS = 6
-
-#: Coverage factor of the reported uncertainty (k = 2, about 95 %), as in the GUM.
-COVERAGE_K = 2.0
+#: A cell takes part in the local check when at least this share of a full cell is measured
+#: (a narrower sliver at the grid's edge is merged into its neighbour first, see ``_merge_slivers``).
+CELL_MIN_COVER = 0.25
 
 
 @dataclass(frozen=True)
@@ -73,14 +85,11 @@ class RegionMeasurement:
     outline_px: tuple
     exclude_px: tuple
     pixel_size_mm: float | None = None
-
-
-def _fmt(v: float) -> str:
-    return f"{v:.1f}°"
-
-
-def _signed(v: float) -> str:
-    return f"{v:+.1f}°"
+    masked_fraction: float = 0.0  # share of the region's pixels left out as clipped (glare)
+    block_grid: BlockGrid | None = None
+    test_cells: CellSums | None = None  # finer cells for the direction test of a small region
+    spectral: SpectralLay | None = None  # the second, independent estimate (image axes)
+    tensor_standard_error_deg: float | None = None  # of the summed tensor's angle, from the spectrum
 
 
 def _cell_lays(m: RegionMeasurement) -> tuple[np.ndarray, np.ndarray]:
@@ -102,46 +111,31 @@ def _expected_per_cell(region: Region, m: RegionMeasurement, centre_px) -> np.nd
     return np.full(shape, np.nan)
 
 
-def fit_centre(m: RegionMeasurement, valid: np.ndarray, *, radial: bool) -> tuple[float, float] | None:
-    """Least-squares centre of circular (or radial) lay from the cell lays.
+def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray, grain=None) -> tuple[Patch, ...]:
+    """Connected groups (8-neighbour) of deviating cells, largest first, with their length along their lay.
 
-    For circular lay every cell's gradient points at the centre, so the centre
-    is the point nearest (in the least-squares sense) to all the lines through
-    the cell centres along their gradient directions; for radial lay, along
-    their lay directions. Weighted by cell energy times coherence.
+    ``grain`` is the mean tensor ``(jxx, jxy, jyy)`` per measured pixel of the cells that follow the
+    region's lay (directional lay). It is taken off each patch's sum first, so that a thin scratch
+    in cells of grain gets the scratch's own direction, not a mixture.
     """
-    lay_img, coh = tensor_lay(m.cells.jxx, m.cells.jxy, m.cells.jyy)
-    line_deg = lay_img if radial else lay_img + 90.0  # direction of the line through the centre
-    t = np.radians(line_deg[valid])
-    # unit normals to the lines, in image px (y down)
-    nx, ny = -np.sin(t) * 1.0, -np.cos(t)
-    p = m.cells.cell_centres()[valid]
-    w = ((m.cells.jxx + m.cells.jyy) * coh)[valid]
-    if p.shape[0] < 3:
-        return None
-    a = np.array([[np.sum(w * nx * nx), np.sum(w * nx * ny)], [np.sum(w * nx * ny), np.sum(w * ny * ny)]])
-    rhs = np.array([np.sum(w * nx * (nx * p[:, 0] + ny * p[:, 1])), np.sum(w * ny * (nx * p[:, 0] + ny * p[:, 1]))])
-    if np.linalg.cond(a) > 1e8:
-        return None
-    cx, cy = np.linalg.solve(a, rhs)
-    return float(cx), float(cy)
-
-
-def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray) -> tuple[Patch, ...]:
-    """Connected groups (8-neighbour) of deviating cells, largest first."""
     n, labels = cv2.connectedComponents(deviating.astype(np.uint8), connectivity=8)
     boxes = m.cells.cell_boxes()
+    area_of = m.cells.region_area if m.cells.region_area is not None else m.cells.area
     out = []
     for k in range(1, n):
         sel = labels == k
         b = boxes[sel]
         x0, y0 = int(b[:, 0].min()), int(b[:, 1].min())
         x1, y1 = int((b[:, 0] + b[:, 2]).max()), int((b[:, 1] + b[:, 3]).max())
-        area = float(m.cells.area[sel].sum())
-        lay_img, _ = tensor_lay(m.cells.jxx[sel].sum(), m.cells.jxy[sel].sum(), m.cells.jyy[sel].sum())
+        area = float(area_of[sel].sum())
+        t = np.array([m.cells.jxx[sel].sum(), m.cells.jxy[sel].sum(), m.cells.jyy[sel].sum()])
+        if grain is not None:
+            t = t - float(m.cells.area[sel].sum()) * np.asarray(grain)
+        lay_img, _ = tensor_lay(*t)
         patch_lay = (lay_img - m.rotation_deg) % 180.0
         exp_mean, _ = axial_mean(expected[sel])
         mm = m.pixel_size_mm
+        length = _extent_along(b, math.radians(lay_img))
         out.append(
             Patch(
                 bbox_px=(x0, y0, x1 - x0, y1 - y0),
@@ -151,10 +145,21 @@ def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray) 
                 area_px=int(round(area)),
                 bbox_mm=None if mm is None else ((x1 - x0) * mm, (y1 - y0) * mm),
                 area_mm2=None if mm is None else area * mm * mm,
+                length_px=length,
+                cells=int(sel.sum()),
             )
         )
     out.sort(key=lambda p: -p.area_fraction)
     return tuple(out)
+
+
+def _extent_along(boxes: np.ndarray, angle_rad: float) -> float:
+    """Length of a set of cell boxes (x, y, w, h) measured along a direction (image angle, y up)."""
+    ux, uy = math.cos(angle_rad), -math.sin(angle_rad)  # the direction in image px (rows down)
+    xs = np.concatenate([boxes[:, 0], boxes[:, 0] + boxes[:, 2]]).astype(float)
+    ys = np.concatenate([boxes[:, 1], boxes[:, 1] + boxes[:, 3]]).astype(float)
+    proj = np.add.outer(xs * ux, ys * uy)
+    return float(proj.max() - proj.min())
 
 
 def _histogram(cells: CellSums) -> Histogram:
@@ -164,278 +169,227 @@ def _histogram(cells: CellSums) -> Histogram:
     return Histogram(tuple(float(v) for v in cells.bin_edges_deg()), tuple(float(v) for v in weights))
 
 
-def _standard_error(lays: np.ndarray, weights: np.ndarray) -> float:
-    """Standard error (degrees) of the weighted axial mean of ``lays``.
-
-    The circular standard deviation of the doubled angles, halved, over the
-    square root of Kish's effective number of samples.
-    """
-    _, r = axial_mean(lays, weights)
-    r = min(max(r, 1e-12), 1.0)
-    s_deg = 0.5 * math.degrees(math.sqrt(-2.0 * math.log(r)))
-    n_eff = weights.sum() ** 2 / np.sum(weights**2)
-    return s_deg / math.sqrt(n_eff)
-
-
-def _uncertainty(lays: np.ndarray, weights: np.ndarray, keep: np.ndarray) -> float | None:
-    """Expanded uncertainty (k = 2) of a region's axial mean from its cell grid.
-
-    Neighbouring cells are not independent when the grain is correlated over
-    more than a cell (long brushing marks), and then the scatter of single
-    cells understates the error of their mean. The standard error is therefore
-    also computed from blocks of 2x2 and 4x4 cells (each block's lay the
-    weighted axial mean of its cells) wherever at least
-    :data:`MIN_UNCERTAINTY_BLOCKS` blocks remain, and the largest is taken
-    (the method of batch means).
-
-    Parameters
-    ----------
-    lays, weights : (rows, cols) ndarray
-        Cell angles (degrees, axial) and weights.
-    keep : (rows, cols) bool ndarray
-        Cells that take part.
-
-    Returns
-    -------
-    float or None
-        ``COVERAGE_K`` times the largest standard error, None with fewer than
-        three cells.
-
-    References
-    ----------
-    .. [1] Flegal, J. M., Jones, G. L. (2010). Batch means and spectral variance
-       estimators in Markov chain Monte Carlo. Annals of Statistics 38(2),
-       1034-1070. :doi:`10.1214/09-AOS735`
-    """
-    if keep.sum() < 3:
-        return None
-    errors = [_standard_error(lays[keep], weights[keep])]
-    doubled = np.radians(2.0 * np.where(keep, lays, 0.0))
-    w = np.where(keep, weights, 0.0)
-    rows, cols = lays.shape
-    for block in (2, 4):
-        starts_r, starts_c = np.arange(0, rows, block), np.arange(0, cols, block)
-        if starts_r.size * starts_c.size < MIN_UNCERTAINTY_BLOCKS:
-            break
-
-        def block_sum(a):
-            return np.add.reduceat(np.add.reduceat(a, starts_r, axis=0), starts_c, axis=1)
-
-        bw = block_sum(w)
-        bc, bs = block_sum(w * np.cos(doubled)), block_sum(w * np.sin(doubled))
-        used = bw > 0
-        if used.sum() < MIN_UNCERTAINTY_BLOCKS:
-            break
-        block_lays = np.mod(0.5 * np.degrees(np.arctan2(bs[used], bc[used])), 180.0)
-        errors.append(_standard_error(block_lays, bw[used]))
-    return COVERAGE_K * max(errors)
-
-
-def _crossed_peaks(hist: Histogram, expected: tuple[float, ...], tolerance: float):
-    """Locate one histogram peak near each expected direction of a crossed lay.
-
-    The histogram (period 180°) is modelled as a floor plus one axial von
-    Mises bump per expected direction, ``c + sum_i A_i exp(k_i (cos 2(t - m_i) - 1))``,
-    fitted by least squares from starting values at the expected directions.
-    Fitting all bumps at once keeps overlapping bumps from pulling each
-    other's peak, which picking the highest bins does not.
-
-    Returns
-    -------
-    list of (peak_deg or None, share)
-        Per expected direction: the fitted peak, or None when its bump is
-        missing (amplitude below :data:`CROSSED_MIN_PROMINENCE` of the largest,
-        or it wandered beyond the search window); ``share`` is the bump's
-        share of all the votes above the floor.
-
-    References
-    ----------
-    .. [1] Mardia, K. V., Jupp, P. E. (2000). Directional Statistics, Wiley,
-       section 3.5.4 (von Mises distribution) and 9.3.2 (axial data).
-       :doi:`10.1002/9780470316979`
-    """
-    from scipy.optimize import least_squares
-
-    w = np.asarray(hist.weights, dtype=np.float64)
-    n = w.size
-    width = 180.0 / n
-    t = np.radians(2 * (np.arange(n) + 0.5) * width)
-    k_count = len(expected)
-
-    def model(p):
-        out = np.full(n, p[0])
-        for i in range(k_count):
-            a, mu, kappa = p[1 + 3 * i : 4 + 3 * i]
-            out += a * np.exp(kappa * (np.cos(t - mu) - 1.0))
-        return out
-
-    floor0 = float(w.min())
-    p0 = [floor0]
-    lo, hi = [0.0], [np.inf]
-    for e in expected:
-        idx = int(np.clip(e / width, 0, n - 1))
-        p0 += [max(float(w[idx]) - floor0, 1e-6), math.radians(2 * e), 4.0]
-        lo += [0.0, -np.inf, 0.2]
-        hi += [np.inf, np.inf, 400.0]
-    fit = least_squares(lambda p: model(p) - w, p0, bounds=(lo, hi))
-    p = fit.x
-    amps = np.array([p[1 + 3 * i] for i in range(k_count)])
-    # votes above the floor in each bump: amplitude times the bump's integral over the circle
-    areas = np.array([p[1 + 3 * i] * np.mean(np.exp(p[3 + 3 * i] * (np.cos(t) - 1.0))) for i in range(k_count)])
-    total = areas.sum()
-    found = []
-    for i, e in enumerate(expected):
-        peak = (math.degrees(p[2 + 3 * i]) / 2.0) % 180.0
-        near = abs(wrap_deviation(peak, e)) <= max(tolerance, width) + 3 * width
-        strong = amps.max() > 0 and amps[i] >= CROSSED_MIN_PROMINENCE * amps.max()
-        if near and strong and total > 0:
-            found.append((peak, float(areas[i] / total)))
-        else:
-            found.append((None, 0.0))
-    return found
-
-
-@dataclass
-class _Verdict:
-    """What the pattern rules decide; collected, then turned into a RegionResult."""
-
-    lay: float | None
-    deviation: float | None = None
-    uncertainty: float | None = None
-    failed: bool = False
-    reasons: list = field(default_factory=list)
-    extra: dict = field(default_factory=dict)
-    deviating: np.ndarray | None = None
-
-    def fail(self, reason: str) -> None:
-        self.failed = True
-        self.reasons.append(reason)
-
-
-@dataclass(frozen=True)
-class _Cells:
-    """The region's cells: lays in the part frame and which cells take part in the checks."""
-
-    lay: np.ndarray
-    coherence: np.ndarray
-    energy: np.ndarray  # jxx + jyy per cell (weights)
-    covered: np.ndarray  # at least CELL_MIN_COVER of the cell in the region
-    textured: np.ndarray  # covered, and gradient energy above the texture threshold
-    clear: np.ndarray  # textured, and coherence at least min_coherence
-
-
-def _cells_of(region: Region, m: RegionMeasurement, noise_energy: float) -> _Cells:
+def _cells_of(region: Region, m: RegionMeasurement, noise_energy: float) -> Cells:
     cells = m.cells
     lay, coh = _cell_lays(m)
-    # against the nominal cell area: a sliver of a cell at the region's edge holds too few pixels
-    # for a trustworthy local lay
+    region_area = cells.region_area if cells.region_area is not None else cells.area
+    # against the nominal cell area: a sliver of a cell holds too few pixels for a trustworthy local lay
     covered = cells.area >= CELL_MIN_COVER * cells.cell_px**2
     energy = cells.jxx + cells.jyy
     textured = covered & (energy / np.maximum(cells.area, 1.0) >= TEXTURE_RATIO_MIN * noise_energy)
-    return _Cells(lay, coh, energy, covered, textured, textured & (coh >= region.min_coherence))
+    clear = textured & (coh >= region.min_coherence)
+    return Cells(lay, coh, energy, covered, textured, clear, (region_area > 0) & ~textured)
 
 
-def _judge_directional(region: Region, c: _Cells, coherence: float, v: _Verdict) -> None:
+def _judge_directional(region: Region, m: RegionMeasurement, c: Cells, coherence: float, v: Verdict) -> None:
     expected = region.lay_deg[0]
+    use = c.textured & (c.energy > 0)
+    weights = c.energy * c.coherence  # the anisotropic energy l1 - l2 of each cell
+    robust_w = weights
+    if use.sum() >= 1:
+        rl = robust_lay(c.lay[use], weights[use])
+        v.extra.update(
+            lay_plain_deg=round(v.lay, 4), outlier_cells=int(rl.outliers.sum()), cell_scatter_deg=round(rl.scale_deg, 3)
+        )
+        v.lay = rl.lay_deg
+        robust_w = np.zeros(c.lay.shape)
+        robust_w[use] = rl.weights
+        v.deviating |= _content_across(region, m, c, use, robust_w > 0)
+    # the scatter of the cells that follow the region's lay; deviating patches and outliers are reported apart
+    keep = c.clear & ~v.deviating & (robust_w > 0)
+    keep = keep if keep.sum() >= 3 else c.clear
+    u_cells = cell_uncertainty(c.lay, np.where(robust_w > 0, robust_w, weights), keep)
+    se = None if u_cells is None else u_cells / COVERAGE_K
+    if m.spectral is not None and m.spectral.method == "lobe" and m.tensor_standard_error_deg is not None:
+        # a broad spectrum (brushed, ground): marks correlated over many cells make the cells' scatter
+        # understate the error; the spectral variance of the tensor angle does not (spectrum.py)
+        se = m.tensor_standard_error_deg if se is None else max(se, m.tensor_standard_error_deg)
+        v.extra["tensor_standard_uncertainty_deg"] = round(m.tensor_standard_error_deg, 5)
+    _estimate(region, m, c, v, keep, weights, se)
     v.deviation = wrap_deviation(v.lay, expected)
     if abs(v.deviation) > region.tolerance_deg:
         v.fail(
-            f"lay {_fmt(v.lay)} is {abs(v.deviation):.1f}° off {_fmt(expected)} (tolerance {region.tolerance_deg:g}°)"
+            f"lay {fmt_angle(v.lay)} is {abs(v.deviation):.1f}° off {fmt_angle(expected)} (tolerance {region.tolerance_deg:g}°)"
         )
     if coherence < region.min_coherence:
         v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
-    # the scatter of the cells that follow the region's lay; deviating patches are reported apart
-    keep = c.clear & ~v.deviating
-    keep = keep if keep.sum() >= 3 else c.clear
-    v.uncertainty = _uncertainty(c.lay, c.energy, keep)
 
 
-def _judge_centred(region: Region, c: _Cells, centre_px, deviation_cells: np.ndarray, v: _Verdict) -> None:
-    """Circular or radial lay: the cells' deviations from the direction expected where they are."""
-    v.lay = None  # the lay turns across the region: there is no one angle to report
-    if centre_px is None:
-        v.fail("no centre could be fitted to the cell lays; give centre: [x, y] in the recipe")
-        return
-    v.extra["centre_px"] = [round(centre_px[0], 2), round(centre_px[1], 2)]
-    dev = deviation_cells[c.clear] % 180.0
-    if dev.size:
-        mean_dev, _ = axial_mean(dev, c.energy[c.clear])
-        v.deviation = wrap_deviation(mean_dev, 0.0)
-        v.uncertainty = _uncertainty(deviation_cells % 180.0, c.energy, c.clear)
-        v.extra["rms_cell_deviation_deg"] = round(float(np.sqrt(np.mean(deviation_cells[c.clear] ** 2))), 3)
-        what = "circles" if region.lay is LayPattern.CIRCULAR else "radii"
-        if abs(v.deviation) > region.tolerance_deg:
-            v.fail(
-                f"lay is on average {abs(v.deviation):.1f}° off the {what} about the centre (tolerance {region.tolerance_deg:g}°)"
+def _estimate(region: Region, m: RegionMeasurement, c: Cells, v: Verdict, keep, weights, se_tensor) -> None:
+    """Combine the tensor lay with the spectral one; the uncertainty budget; review on disagreement or blur."""
+    budget = Budget(statistical=se_tensor if se_tensor is not None else math.nan)
+    if keep.sum() >= 1:  # robust against plain weighting of the cells that follow the lay
+        plain_kept, _ = axial_mean(c.lay[keep], weights[keep])
+        budget.weighting = abs(wrap_deviation(v.lay, plain_kept)) / math.sqrt(3.0)
+    grid = m.block_grid
+    if grid is not None:  # any 8 x 8 step pattern, even one too weak to count as a grid for the texture test
+        s = m.cells
+        aniso = math.hypot(s.jxx.sum() - s.jyy.sum(), 2.0 * s.jxy.sum()) / max(s.area.sum(), 1.0)
+        pull = STEP_GRADIENT_ENERGY * abs(grid.step_col - grid.step_row) / max(aniso, 1e-300)
+        budget.compression = math.degrees(0.5 * math.asin(min(pull, 1.0))) / math.sqrt(3.0)
+    sp = m.spectral
+    if sp is not None and np.isfinite(sp.lay_deg):
+        lay_s = (sp.lay_deg - m.rotation_deg) % 180.0
+        d = wrap_deviation(lay_s, v.lay)
+        v.extra.update(
+            spectral_lay_deg=round(lay_s, 4), spectral_method=sp.method, finest_period_px=round(sp.finest_period_px, 2)
+        )
+        if sp.method == "line" and sp.standard_error_deg:
+            v.extra["spectral_standard_uncertainty_deg"] = round(sp.standard_error_deg, 5)
+            if se_tensor is None:
+                v.lay, budget.statistical = lay_s, sp.standard_error_deg
+            else:
+                v.lay, budget.statistical, budget.disagreement_ratio = combine(
+                    v.lay, se_tensor, lay_s, sp.standard_error_deg
+                )
+            if budget.disagreement_ratio > COVERAGE_K:
+                v.review.append(
+                    f"the tensor and spectral estimates disagree by {abs(d):.2f}° ({budget.disagreement_ratio:.1f} times "
+                    f"their combined standard uncertainty)"
+                )
+        else:
+            # a lobe (broad spectrum) has no model standard error, and the spectrum also holds the cells
+            # the robust lay leaves out (patches, scratches): the difference is reported, not judged
+            v.extra["spectral_difference_deg"] = round(d, 4)
+        # a single line (a grating) has no fine detail by nature: sharpness is judged on broad spectra
+        if sp.method == "lobe" and 0 < region.sharpness_period_px < sp.finest_period_px:
+            v.review.append(
+                f"image not sharp enough: the finest detail above the noise has a period of "
+                f"{sp.finest_period_px:.1f} px (needs {region.sharpness_period_px:g} px or finer); motion or focus blur"
             )
-    # the summed tensor's coherence is low by design here: judge the cells' mean coherence
-    coherence = float(np.average(c.coherence[c.textured], weights=c.energy[c.textured])) if c.textured.any() else 0.0
-    v.extra["mean_cell_coherence"] = round(coherence, 4)
-    if coherence < region.min_coherence:
-        v.fail(f"no clear lay: coherence {coherence:.2f} is below {region.min_coherence:g}")
+    v.extra["uncertainty_budget"] = budget.as_dict()
+    v.uncertainty = None if not np.isfinite(budget.statistical) else budget.expanded()
 
 
-def _judge_crossed(region: Region, histogram: Histogram, v: _Verdict) -> None:
-    peaks = _crossed_peaks(histogram, region.lay_deg, region.tolerance_deg)
-    found, devs = [], []
-    for e, (peak, _) in zip(region.lay_deg, peaks):
-        if peak is None:
-            v.fail(f"no lay found near {_fmt(e)} (crossed lay needs both directions)")
-            found.append(None)
-            devs.append(None)
-            continue
-        d = wrap_deviation(peak, e)
-        found.append(round(peak, 3))
-        devs.append(round(d, 3))
-        if abs(d) > region.tolerance_deg:
-            v.fail(f"lay {_fmt(peak)} is {abs(d):.1f}° off {_fmt(e)} (tolerance {region.tolerance_deg:g}°)")
-    v.extra.update(crossed_lay_deg=found, crossed_deviation_deg=devs)
-    if all(p is not None for p, _ in peaks):
-        shares = [share for _, share in peaks]
-        v.extra["balance"] = round(min(shares) / max(sum(shares), 1e-12), 4)  # weaker direction's share; 0.5 = even
-    known = [d for d in devs if d is not None]
-    v.deviation = max(known, key=abs) if known else None
-    v.lay = found[0]
+#: A cell deviates when what it holds beyond the grain, off the expected lay, is at least this share
+#: of its energy (chosen on synthetic scratches through brushed grain, no source).
+RESIDUAL_SHARE = 0.3
 
 
-def _judge_nondirectional(region: Region, c: _Cells, cells: CellSums, coherence: float, v: _Verdict) -> None:
-    """Multidirectional or particulate lay: no direction may dominate.
+def _content_across(region: Region, m: RegionMeasurement, c: Cells, cells: np.ndarray, inliers: np.ndarray):
+    """Cells whose content beyond the grain runs off the expected lay (a scratch through grain).
 
-    Two Rayleigh tests over the cells: on their lays (a shared direction), and
-    on the phase of the fourth angular harmonic of their orientation histograms
-    (a shared pair of directions at right angles: a crossed lay, whose summed
-    tensor and doubled angles cancel and would pass the first test).
+    A cell crossed by a thin scratch holds grain and scratch; when the two balance, its own lay
+    is unclear or still the grain's, yet what it holds beyond the grain (its tensor less the
+    inlier cells' mean tensor per pixel) is the scratch. The residual's largest eigenvalue is
+    that content: a cell of plain grain with less energy than the mean has a residual with no
+    positive eigenvalue at all.
     """
-    dominant = v.lay
-    v.lay = None
-    if c.textured.sum() >= 2:
-        rt = rayleigh_test(c.lay[c.textured], axial=True)
-        v.extra.update(
-            rayleigh_resultant_length=round(rt.resultant_length, 4),
-            rayleigh_statistic=round(rt.statistic, 3),
-            rayleigh_p=round(rt.p_value, 5),
-        )
-        if rt.p_value < RAYLEIGH_ALPHA:
-            v.fail(
-                f"cells share a direction near {_fmt(rt.mean_deg)} (Rayleigh p = {rt.p_value:.2g} < {RAYLEIGH_ALPHA:g})"
+    if not cells.any() or not inliers.any():
+        return np.zeros(cells.shape, bool)
+    s = m.cells
+    per_px = [a[inliers].sum() / s.area[inliers].sum() for a in (s.jxx, s.jxy, s.jyy)]
+    rxx, rxy, ryy = (a - s.area * g for a, g in zip((s.jxx, s.jxy, s.jyy), per_px))
+    lay_img, _ = tensor_lay(rxx, rxy, ryy)
+    largest = 0.5 * (rxx + ryy + np.sqrt((rxx - ryy) ** 2 + 4.0 * rxy**2))
+    off = np.abs(wrap_deviation(np.mod(lay_img - m.rotation_deg, 180.0), region.lay_deg[0])) > region.tolerance_deg
+    return cells & off & (largest >= RESIDUAL_SHARE * np.maximum(c.energy, 1e-300))
+
+
+def direction_test(cells: CellSums, use: np.ndarray) -> tuple[float, int]:
+    """p-value of "no preferred direction" from the cells' doubled-angle tensor vectors.
+
+    Each cell gives ``v = (jxx - jyy, 2 jxy) / area``; without a preferred direction (noise of any
+    spectrum that is the same in every direction) their mean is zero. Hotelling's T^2 tests that
+    with the cells' own covariance, so no noise model is needed: ``(n - 2) / (2 (n - 1)) T^2``
+    follows F(2, n - 2) (cells are independent when they are larger than the noise's correlation
+    length, as for white noise, 1/f noise, whose gradients are white, and the sigma = 1 derivative).
+
+    Returns
+    -------
+    p_value, n_cells : float, int
+        p is 1.0 with fewer than 3 cells (no test possible).
+
+    References
+    ----------
+    .. [1] Hotelling, H. (1931). The generalization of Student's ratio. Annals of Mathematical
+       Statistics 2(3), 360-378. :doi:`10.1214/aoms/1177732979`
+    """
+    from scipy import stats
+
+    n = int(use.sum())
+    if n < 3:
+        return 1.0, n
+    area = cells.area[use]
+    v = np.stack([(cells.jxx[use] - cells.jyy[use]) / area, 2.0 * cells.jxy[use] / area], axis=1)
+    mean = v.mean(axis=0)
+    cov = np.cov(v, rowvar=False) + np.eye(2) * 1e-30
+    try:
+        t2 = n * float(mean @ np.linalg.solve(cov, mean))
+    except np.linalg.LinAlgError:
+        return (0.0 if np.any(mean != 0) else 1.0), n
+    if not np.isfinite(t2):
+        return 0.0, n
+    return float(stats.f.sf((n - 2) / (2.0 * (n - 1)) * t2, 2, n - 2)), n
+
+
+def _texture(region: Region, m: RegionMeasurement, c: Cells, ratio: float, coherence: float, extra: dict):
+    """Why the region has no measurable texture, or None when it has."""
+    grid = m.block_grid
+    if grid is not None and grid.present:
+        # a JPEG block grid: its steps are not grain. Gradient energy must stand out of what the
+        # compression's own steps give (as white noise of half their variance), and no direction test
+        # is trusted on the grid's horizontal and vertical steps alone
+        floor = noise_gradient_energy(math.sqrt(grid.step_variance / 2.0), region.sigma_px)
+        grid_ratio = ratio * m.noise_energy / max(floor, m.noise_energy, NOISE_ENERGY_FLOOR)
+        extra.update(block_grid_contrast=round(grid.contrast, 2), texture_to_compression=round(grid_ratio, 2))
+        if grid_ratio < TEXTURE_RATIO_MIN:
+            return (
+                f"no measurable texture: gradient energy is {grid_ratio:.1f}x what the JPEG compression's 8x8 blocks "
+                f"give (needs at least {TEXTURE_RATIO_MIN:g}x); the block grid is not grain"
             )
-        centres = np.radians((np.arange(cells.bins) + 0.5) * 180.0 / cells.bins)
-        fourfold = np.tensordot(cells.hist[c.textured], np.exp(4j * centres), axes=([1], [0]))
-        r4 = rayleigh_test(np.degrees(np.angle(fourfold)))
-        v.extra.update(
-            rayleigh_crossed_resultant_length=round(r4.resultant_length, 4), rayleigh_crossed_p=round(r4.p_value, 5)
-        )
-        if r4.p_value < RAYLEIGH_ALPHA:
-            a = (r4.mean_deg / 4.0) % 90.0
-            v.fail(
-                f"cells share a crossed pattern near {_fmt(a)} and {_fmt(a + 90.0)} "
-                f"(Rayleigh p = {r4.p_value:.2g} < {RAYLEIGH_ALPHA:g} on the four-fold harmonic)"
+    if region.lay is LayPattern.DIRECTIONAL:
+        t = m.test_cells if m.test_cells is not None else m.cells
+        p, n = direction_test(t, t.area >= CELL_MIN_COVER * t.cell_px**2)
+        extra.update(direction_p=float(f"{p:.3g}"), direction_cells=n)
+        if n >= 3:
+            if p < TEXTURE_ALPHA and coherence >= TEXTURE_MIN_COHERENCE:
+                return None
+            return (
+                f"no measurable texture: no lay stands out of the noise over {n} cells "
+                f"(p = {p:.2g}, needs < {TEXTURE_ALPHA:g}; coherence {coherence:.2f}, needs "
+                f"{TEXTURE_MIN_COHERENCE:g}); polished, blurred or blank surface"
             )
-    if coherence > region.max_coherence:
-        v.fail(
-            f"dominant direction {_fmt(dominant)} present: coherence {coherence:.2f} exceeds "
-            f"{region.max_coherence:g} for a {region.lay.value} lay"
+    if ratio < TEXTURE_RATIO_MIN:
+        return (
+            f"no measurable texture: gradient energy is {ratio:.1f}x the camera noise's "
+            f"(needs at least {TEXTURE_RATIO_MIN:g}x); polished, blurred or blank surface"
         )
+    return None
+
+
+def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, why: str, c: Cells):
+    nan = np.full(m.cells.area.shape, np.nan)
+    return RegionResult(
+        **base,
+        lay_deg=None,
+        deviation_deg=None,
+        uncertainty_deg=None,
+        deviating_area_fraction=0.0,
+        patches=(),
+        verdict=RegionVerdict.NO_TEXTURE,
+        reasons=(why,),
+        cells=CellGrid(m.cells.origin_px, m.cells.cell_px, nan, c.coherence, nan, np.zeros(nan.shape, bool)),
+        extra=extra,
+    )
+
+
+def _review_reasons(region: Region, m: RegionMeasurement, c: Cells, v: Verdict) -> None:
+    """Conditions under which the measurement cannot be defended: a person must look."""
+    if m.masked_fraction > region.max_masked_fraction:
+        v.review.append(
+            f"glare covers {100 * m.masked_fraction:.0f}% of the region (clipped pixels left out; "
+            f"allowed {100 * region.max_masked_fraction:g}%)"
+        )
+    if region.lay in (LayPattern.DIRECTIONAL, LayPattern.CIRCULAR, LayPattern.RADIAL):
+        region_area = m.cells.region_area if m.cells.region_area is not None else m.cells.area
+        share = float(region_area[c.unmeasured].sum() / max(region_area.sum(), 1.0))
+        v.extra["unmeasured_fraction"] = round(share, 4)
+        if share > region.max_unmeasured_fraction:
+            v.review.append(
+                f"{100 * share:.0f}% of the region's cells could not be measured (no texture above the noise, "
+                f"masked or too small; allowed {100 * region.max_unmeasured_fraction:g}%)"
+            )
 
 
 def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
@@ -458,7 +412,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     # an image with no noise at all (synthetic, or clipped flat) still has quantisation noise:
     # floor the noise at that of a 16-bit image, so a flat surface is never called textured
     noise_energy = max(m.noise_energy, NOISE_ENERGY_FLOOR)
-    ratio = (sums.jxx.sum() + sums.jyy.sum()) / max(m.region_mask_area, 1.0) / noise_energy
+    ratio = (sums.jxx.sum() + sums.jyy.sum()) / max(sums.area.sum(), 1.0) / noise_energy
     histogram = _histogram(sums)
     c = _cells_of(region, m, noise_energy)
     base = dict(
@@ -472,25 +426,10 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         exclude_px=m.exclude_px,
         coherence=float(coherence),
     )
-    extra: dict = {"texture_to_noise": round(float(ratio), 2)}
-
-    if ratio < TEXTURE_RATIO_MIN:
-        nan = np.full(sums.area.shape, np.nan)
-        return RegionResult(
-            **base,
-            lay_deg=None,
-            deviation_deg=None,
-            uncertainty_deg=None,
-            deviating_area_fraction=0.0,
-            patches=(),
-            verdict=RegionVerdict.NO_TEXTURE,
-            reasons=(
-                f"no measurable texture: gradient energy is {ratio:.1f}x the camera noise's "
-                f"(needs at least {TEXTURE_RATIO_MIN:g}x); polished, blurred or blank surface",
-            ),
-            cells=CellGrid(sums.origin_px, sums.cell_px, nan, c.coherence, nan, np.zeros(nan.shape, bool)),
-            extra=extra,
-        )
+    extra: dict = {"texture_to_noise": round(float(ratio), 2), "masked_fraction": round(m.masked_fraction, 4)}
+    why = _texture(region, m, c, ratio, coherence, extra)
+    if why is not None:
+        return _no_texture(region, m, base, extra, why, c)
 
     centre_px = m.centre_px
     if region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL) and centre_px is None:
@@ -498,39 +437,54 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         extra["centre_fitted"] = True
     expected = _expected_per_cell(region, m, centre_px)
     deviation_cells = wrap_deviation(c.lay, expected)
-    v = _Verdict(lay=lay, extra=extra, deviating=np.zeros(sums.area.shape, dtype=bool))
+    v = Verdict(lay=lay, extra=extra, deviating=np.zeros(sums.area.shape, dtype=bool))
     if region.lay in (LayPattern.DIRECTIONAL, LayPattern.CIRCULAR, LayPattern.RADIAL):
         # local check: cells with clear texture whose lay deviates beyond tolerance
         v.deviating = c.clear & (np.abs(deviation_cells) > region.tolerance_deg)
     if region.lay is LayPattern.DIRECTIONAL:
-        _judge_directional(region, c, coherence, v)
+        _judge_directional(region, m, c, coherence, v)
     elif region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL):
-        _judge_centred(region, c, centre_px, deviation_cells, v)
+        judge_centred(region, c, centre_px, deviation_cells, v)
     elif region.lay is LayPattern.CROSSED:
-        _judge_crossed(region, histogram, v)
+        judge_crossed(region, histogram, v)
     elif region.lay in (LayPattern.MULTIDIRECTIONAL, LayPattern.PARTICULATE):
-        _judge_nondirectional(region, c, sums, coherence, v)
+        judge_nondirectional(region, c, sums, coherence, v)
     # LayPattern.ANY: texture is present, nothing more is judged
+    _review_reasons(region, m, c, v)
+    return _result(region, m, base, c, v, expected)
 
-    patches = _patches(v.deviating, m, expected) if v.deviating.any() else ()
+
+def _result(region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdict, expected) -> RegionResult:
+    sums = m.cells
+    grain = None
+    follow = c.clear & ~v.deviating
+    if region.lay is LayPattern.DIRECTIONAL and follow.any():
+        grain = [float(a[follow].sum() / sums.area[follow].sum()) for a in (sums.jxx, sums.jxy, sums.jyy)]
+    patches = _patches(v.deviating, m, expected, grain) if v.deviating.any() else ()
     deviating = float(sum(p.area_fraction for p in patches))
     if deviating > region.max_deviating_fraction:
         biggest = patches[0]
         v.fail(
             f"{100 * deviating:.1f}% of the area deviates (allowed {100 * region.max_deviating_fraction:g}%): "
             f"{len(patches)} patch{'es' if len(patches) > 1 else ''}, largest {100 * biggest.area_fraction:.1f}% "
-            f"with lay {_fmt(biggest.lay_deg)}"
+            f"with lay {fmt_angle(biggest.lay_deg)}, {biggest.length_px:.0f} px long"
         )
-    if not v.failed:
+    if v.review:
+        verdict = RegionVerdict.REVIEW
+        reasons = v.review + [f"measured on the rest: {r}" for r in v.reasons]
+    else:
+        verdict = RegionVerdict.FAIL if v.failed else RegionVerdict.PASS
+        reasons = list(v.reasons)
+    if not v.failed and not v.review:
         if region.lay is LayPattern.DIRECTIONAL:
-            v.reasons.append(
-                f"lay {_fmt(lay)} within {region.tolerance_deg:g}° of {_fmt(region.lay_deg[0])} ({_signed(v.deviation)})"
+            reasons.append(
+                f"lay {fmt_angle(v.lay)} within {region.tolerance_deg:g}° of {fmt_angle(region.lay_deg[0])} "
+                f"({fmt_signed(v.deviation)})"
             )
         elif region.lay is LayPattern.ANY:
-            v.reasons.append("texture present (direction not judged)")
+            reasons.append("texture present (direction not judged)")
         else:
-            v.reasons.append(f"{region.lay.value} lay as required")
-
+            reasons.append(f"{region.lay.value} lay as required")
     return RegionResult(
         **base,
         lay_deg=v.lay,
@@ -538,8 +492,8 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
         uncertainty_deg=v.uncertainty,
         deviating_area_fraction=deviating,
         patches=patches,
-        verdict=RegionVerdict.FAIL if v.failed else RegionVerdict.PASS,
-        reasons=tuple(v.reasons),
+        verdict=verdict,
+        reasons=tuple(reasons),
         cells=CellGrid(
             origin_px=sums.origin_px,
             cell_px=sums.cell_px,

@@ -26,6 +26,14 @@ __all__ = [
     "polished_blank",
     "to_uint8",
     "to_uint16",
+    "add_scratch",
+    "add_glare",
+    "add_streak",
+    "illumination_ramp",
+    "vignette",
+    "motion_blur",
+    "defocus",
+    "jpeg_roundtrip",
 ]
 
 
@@ -216,3 +224,109 @@ def to_uint8(image: np.ndarray) -> np.ndarray:
 
 def to_uint16(image: np.ndarray) -> np.ndarray:
     return np.clip(np.rint(np.asarray(image) * 65535.0), 0, 65535).astype(np.uint16)
+
+
+# ------------------------------------------------------------ photo conditions
+# What a shop photo adds to a surface: scratches, glare, uneven light, blur and compression.
+# Each takes and returns a float32 image in [0, 1] (rows downward).
+
+
+def add_scratch(
+    image: np.ndarray,
+    start_px: tuple[float, float],
+    end_px: tuple[float, float],
+    *,
+    width_px: float = 3.0,
+    depth: float = 0.3,
+) -> np.ndarray:
+    """A dark straight scratch from ``start_px`` to ``end_px`` (x, y image px), anti-aliased.
+
+    The scratch darkens by ``depth`` (on the [0, 1] scale) with a smooth profile
+    ``exp(-0.5 (d / (width/2.355))^2)`` across it (``width_px`` is its full width at half depth).
+    """
+    rows, cols = image.shape
+    yy, xx = np.mgrid[0:rows, 0:cols].astype(np.float64)
+    (x0, y0), (x1, y1) = start_px, end_px
+    length = math.hypot(x1 - x0, y1 - y0)
+    ux, uy = (x1 - x0) / length, (y1 - y0) / length
+    along = (xx - x0) * ux + (yy - y0) * uy
+    across = -(xx - x0) * uy + (yy - y0) * ux
+    s = width_px / 2.355
+    profile = np.exp(-0.5 * (across / s) ** 2) * ((along >= 0) & (along <= length))
+    return np.clip(image - depth * profile, 0.0, 1.0).astype(np.float32)
+
+
+def add_glare(image: np.ndarray, centre_px: tuple[float, float], radius_px: float, *, peak: float = 1.6) -> np.ndarray:
+    """A specular highlight: a Gaussian bright spot that clips at 1 over its middle."""
+    rows, cols = image.shape
+    yy, xx = np.mgrid[0:rows, 0:cols].astype(np.float64)
+    r2 = (xx - centre_px[0]) ** 2 + (yy - centre_px[1]) ** 2
+    return np.clip(image + peak * np.exp(-0.5 * r2 / radius_px**2), 0.0, 1.0).astype(np.float32)
+
+
+def add_streak(image: np.ndarray, angle_deg: float, offset_px: float, width_px: float, *, peak: float = 1.6):
+    """The reflection of a tube light: a bright band along ``angle_deg`` (part frame), clipped at 1.
+
+    ``offset_px`` is the band's signed distance from the image centre; the band's profile across is
+    Gaussian with standard deviation ``width_px / 2``.
+    """
+    rows, cols = image.shape
+    x, y_up = _coords((rows, cols))
+    x = x - (cols - 1) / 2.0
+    y_up = y_up + (rows - 1) / 2.0
+    t = math.radians(angle_deg)
+    across = -math.sin(t) * x + math.cos(t) * y_up - offset_px
+    return np.clip(image + peak * np.exp(-0.5 * (across / (width_px / 2.0)) ** 2), 0.0, 1.0).astype(np.float32)
+
+
+def illumination_ramp(image: np.ndarray, levels: float, *, angle_deg: float = 30.0) -> np.ndarray:
+    """Add a linear brightness ramp of ``levels`` (on the [0, 1] scale) across the image along ``angle_deg``."""
+    rows, cols = image.shape
+    x, y_up = _coords((rows, cols))
+    t = math.radians(angle_deg)
+    u = (x - (cols - 1) / 2.0) * math.cos(t) + (y_up + (rows - 1) / 2.0) * math.sin(t)
+    span = abs(cols * math.cos(t)) + abs(rows * math.sin(t))
+    return np.clip(image + levels * u / span, 0.0, 1.0).astype(np.float32)
+
+
+def vignette(image: np.ndarray, strength: float = 0.5) -> np.ndarray:
+    """Darken towards the corners: brightness ``1 - strength * (r / r_corner)^2`` (a lens's falloff)."""
+    rows, cols = image.shape
+    yy, xx = np.mgrid[0:rows, 0:cols].astype(np.float64)
+    r2 = (xx - (cols - 1) / 2.0) ** 2 + (yy - (rows - 1) / 2.0) ** 2
+    falloff = 1.0 - strength * r2 / r2.max()
+    return np.clip(image * falloff, 0.0, 1.0).astype(np.float32)
+
+
+def motion_blur(image: np.ndarray, length_px: int, angle_deg: float = 0.0) -> np.ndarray:
+    """Blur along a straight path of ``length_px`` pixels at ``angle_deg`` (a moving part or camera)."""
+    import cv2
+
+    k = np.zeros((length_px, length_px), np.float32)
+    c = (length_px - 1) / 2.0
+    t = math.radians(angle_deg)
+    for s in np.linspace(-c, c, 4 * length_px):
+        k[int(round(c - s * math.sin(t))), int(round(c + s * math.cos(t)))] = 1.0
+    k /= k.sum()
+    return cv2.filter2D(np.ascontiguousarray(image, np.float32), -1, k, borderType=cv2.BORDER_REFLECT_101)
+
+
+def defocus(image: np.ndarray, radius_px: float) -> np.ndarray:
+    """Out-of-focus blur: a uniform disc of ``radius_px`` (the geometric-optics blur spot)."""
+    import cv2
+
+    r = int(math.ceil(radius_px))
+    yy, xx = np.mgrid[-r : r + 1, -r : r + 1]
+    k = (xx**2 + yy**2 <= radius_px**2).astype(np.float32)
+    k /= k.sum()
+    return cv2.filter2D(np.ascontiguousarray(image, np.float32), -1, k, borderType=cv2.BORDER_REFLECT_101)
+
+
+def jpeg_roundtrip(image: np.ndarray, quality: int) -> np.ndarray:
+    """Save as an 8-bit JPEG at ``quality`` (OpenCV's libjpeg) and decode it again."""
+    import cv2
+
+    ok, buf = cv2.imencode(".jpg", to_uint8(image), [cv2.IMWRITE_JPEG_QUALITY, int(quality)])
+    if not ok:
+        raise RuntimeError("JPEG encoding failed")
+    return cv2.imdecode(buf, cv2.IMREAD_GRAYSCALE).astype(np.float32) / np.float32(255.0)

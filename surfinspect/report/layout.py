@@ -35,7 +35,7 @@ _FRAME_W = PAGE_SIZE[0] - 2 * _MARGIN
 _PICTURE_MAX_H = 340.0
 _GLYPH_SPACING_PT = 12.0  # denser glyphs cover the photo on paper
 _VERDICT_ORDER = {PartVerdict.REJECT: 0, PartVerdict.REVIEW: 1, PartVerdict.ACCEPT: 2}
-_REGION_SEVERITY = {RegionVerdict.FAIL: 2, RegionVerdict.NO_TEXTURE: 1, RegionVerdict.PASS: 0}
+_REGION_SEVERITY = {RegionVerdict.FAIL: 2, RegionVerdict.NO_TEXTURE: 1, RegionVerdict.REVIEW: 1, RegionVerdict.PASS: 0}
 
 _BODY = ParagraphStyle("body", fontName=SANS, fontSize=8, leading=10)
 _SMALL = ParagraphStyle("small", fontName=SANS, fontSize=7, leading=8.6)

@@ -67,6 +67,7 @@ REGION_LOOKS: dict[RegionVerdict, RegionLook] = {
     RegionVerdict.PASS: RegionLook("PASS", PALETTE["pass"], None),
     RegionVerdict.FAIL: RegionLook("FAIL", PALETTE["fail"], (4.0, 2.5)),
     RegionVerdict.NO_TEXTURE: RegionLook("NO-TEXTURE", PALETTE["no-texture"], (1.0, 1.6)),
+    RegionVerdict.REVIEW: RegionLook("REVIEW", PALETTE["no-texture"], (1.0, 1.6)),
 }
 
 #: Part verdicts: word, colour, and a shape for print (circle, crossed square, triangle).

@@ -1,5 +1,5 @@
 """Running parts: the per-part runner shared by inspect and demo, batches in a process pool, the
-demo scenario. Imports every room below it.
+demo scenario, the line station (folder watcher, journal, OPC UA server). Imports every room below it.
 """
 
 from .._lazy import attach
@@ -16,11 +16,14 @@ __getattr__, __dir__, __all__ = attach(
             "TEST_HOLD_FROM_PART_ENV",
             "discover_images",
             "run_batch",
+            "open_batch",
+            "archive_inspected",
             "batch_exit_code",
             "regions_csv",
             "render_batch_report",
             "export_batch",
         ),
         "demo": ("DEMO_PARTS", "make_demo_parts", "plate_on_fixture"),
+        "watch": ("WatchConfig", "JudgedPart", "StationStatus", "WatchOutcome", "Station"),
     },
 )

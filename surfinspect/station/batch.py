@@ -33,7 +33,7 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path, PurePosixPath
-from typing import Callable, Sequence
+from typing import Callable, Iterable, Sequence
 
 import cv2
 import numpy as np
@@ -57,6 +57,9 @@ __all__ = [
     "TEST_HOLD_FROM_PART_ENV",
     "discover_images",
     "run_batch",
+    "open_batch",
+    "check_station_key",
+    "archive_inspected",
     "batch_exit_code",
     "regions_csv",
     "render_batch_report",
@@ -264,20 +267,9 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with open_archive(config.archive_dir, create=True) as arc:
-        if config.station_key is not None:  # refused before any work, not at the close
-            arc.register().require_signer(
-                config.station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
-            )
+        check_station_key(arc, config.station_key)
         hashed = {key: _hash_file(path) for key, path in images}
-        plan = arc.start_batch(
-            config.batch_id,
-            recipe_name=recipe.name,
-            recipe_revision=recipe.revision,
-            recipe_path=recipe.path,
-            recipe_sha256=recipe.sha256,
-            parts=[(key, hashed[key][0]) for key, _ in images],
-            operator=config.operator,
-        )
+        plan = open_batch(arc, config.batch_id, recipe, [(key, hashed[key][0]) for key, _ in images], config.operator)
         recorder = _Recorder(arc, config.batch_id, dict(images), {k: h for k, (h, _) in hashed.items()}, plan, on_part)
         tasks = []
         for position, (key, _) in enumerate(images):
@@ -312,6 +304,59 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         interruption=interruption,
         exit_code=batch_exit_code(parts),
     )
+
+
+def check_station_key(arc: archive_mod.Archive, station_key: SigningKey | None) -> None:
+    """Refuse, before any work, a station key the archive's register does not let sign a batch close."""
+    if station_key is not None:
+        arc.register().require_signer(
+            station_key.fingerprint, archive_mod.utc_now(), "--station-key", station_allowed=True
+        )
+
+
+def open_batch(
+    arc: archive_mod.Archive,
+    batch_id: str,
+    recipe: Recipe,
+    parts: Sequence[tuple[str, str | None]],
+    operator: str | None = None,
+) -> archive_mod.BatchPlan:
+    """Open the batch of ``parts`` (part key, image SHA-256 or None) judged with ``recipe``, or find it to resume."""
+    return arc.start_batch(
+        batch_id,
+        recipe_name=recipe.name,
+        recipe_revision=recipe.revision,
+        recipe_path=recipe.path,
+        recipe_sha256=recipe.sha256,
+        parts=parts,
+        operator=operator,
+    )
+
+
+def archive_inspected(
+    arc: archive_mod.Archive,
+    batch_id: str,
+    recipe: Recipe,
+    parts: Sequence[tuple[str, Path, str | None]],
+    outputs: Iterable[dict],
+    *,
+    operator: str | None = None,
+    station_key: SigningKey | None = None,
+) -> archive_mod.BatchRow:
+    """Record parts inspected elsewhere (by ``watch``) exactly as ``batch`` records its own, then close the batch.
+
+    ``parts``: (part key, image file, image SHA-256 or None) in batch order; ``outputs``: one output per
+    part as :func:`_inspect_one` returns it. Parts recorded by an interrupted close are skipped; the
+    report and CSV are written (the close signed with ``station_key``) as at the end of :func:`run_batch`.
+    """
+    plan = open_batch(arc, batch_id, recipe, [(key, sha) for key, _, sha in parts], operator)
+    recorder = _Recorder(arc, batch_id, {k: p for k, p, _ in parts}, {k: sha for k, _, sha in parts}, plan, None)
+    pending = set(plan.pending)
+    for out in outputs:
+        if out["part_key"] in pending:
+            recorder.worker_output(out)
+    batch = arc.batch(batch_id)
+    return batch if batch.is_finished else _finish(arc, batch_id, station_key)
 
 
 class _Recorder:

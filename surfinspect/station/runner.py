@@ -17,7 +17,7 @@ import numpy as np
 from ..errors import InputError
 from ..fsutil import write_text_atomic
 from ..measure.engine import inspect_image
-from ..measure.imaging import IMAGE_SUFFIXES, read_image
+from ..measure.imaging import IMAGE_SUFFIXES, LoadedImage, read_image
 from ..recipe import Recipe
 from ..results import EXIT_INPUT_ERROR, PartResult, PartVerdict, dumps, exit_code
 
@@ -29,6 +29,8 @@ __all__ = [
     "output_stems",
     "part_names",
     "inspect_path",
+    "judge_path",
+    "part_error_text",
     "find_images",
     "run_exit_code",
     "write_part_report",
@@ -58,6 +60,18 @@ def output_stems(paths: Sequence[str | Path]) -> list[str]:
         seen[stem] = n + 1
         out.append(stem if n == 0 else f"{stem}-{n + 1}")
     return out
+
+
+def judge_path(path: str | Path, recipe: Recipe, name: str) -> tuple[LoadedImage, PartResult]:
+    """Read one image and inspect it (no file is written); raises InputError as :func:`read_image` and the engine."""
+    loaded = read_image(path)
+    return loaded, inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
+
+
+def part_error_text(exc: InputError, path: str | Path) -> str:
+    """The one-line reason a part was not inspected; a recipe problem found on an image (a region outside it) names it."""
+    text = str(exc)
+    return text if str(path) in text else f"{path}: {text}"
 
 
 def part_names(paths: Sequence[str | Path]) -> list[str]:
@@ -94,19 +108,14 @@ def inspect_path(
     from ..report.overlay import write_overlay_png
 
     try:
-        loaded = read_image(path)
-        result = inspect_image(loaded.pixels, recipe, name=name, image_info=loaded.info)
+        loaded, result = judge_path(path, recipe, name)
         out = Path(out_dir)
         json_path = out / f"{stem}.json"
         overlay_path = out / f"{stem}.overlay.png"
         write_overlay_png(overlay_path, loaded.pixels, result, max_side=OVERLAY_MAX_SIDE)
         write_text_atomic(json_path, dumps(result))
     except InputError as exc:
-        text = str(exc)
-        # a recipe problem found on this image (a region outside it) must say which image
-        if str(path) not in text:
-            text = f"{path}: {text}"
-        return PartOutcome(path=str(path), stem=stem, error=text, name=name), None
+        return PartOutcome(path=str(path), stem=stem, error=part_error_text(exc, path), name=name), None
     outcome = PartOutcome(
         path=str(path), stem=stem, result=result, json_path=str(json_path), overlay_path=str(overlay_path), name=name
     )

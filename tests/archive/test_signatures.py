@@ -315,7 +315,9 @@ def test_a_signoff_survives_parts_recorded_meanwhile_but_not_a_rewritten_history
     def sign_pdf_while_history_is_rewritten(*args, **kwargs):
         with arc.Archive(root) as other:  # another process, at the head the record was signed over
             seq = other.chain_head()[0]
-        sql(root, "UPDATE events SET sha256 = '0' || substr(sha256, 2) WHERE seq = ?", (seq,))
+        # change the first hex digit (a fixed '0' would change nothing when the hash starts with 0)
+        flip = "CASE substr(sha256, 1, 1) WHEN '0' THEN '1' ELSE '0' END || substr(sha256, 2)"
+        sql(root, f"UPDATE events SET sha256 = {flip} WHERE seq = ?", (seq,))
         return real_sign_pdf(*args, **kwargs)
 
     with arc.Archive(root) as a:

@@ -1,0 +1,352 @@
+"""Per-cell sums of a region: structure tensor, area and orientation histograms, in strips."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+from .derivatives import gaussian_derivative_kernels
+
+__all__ = ["STRIP_ROWS", "CellSums", "cell_sums", "merge_edge_slivers"]
+
+#: Rows per strip: a multiple of the cell size near this many rows is used.
+STRIP_ROWS = 512
+
+
+@dataclass(frozen=True)
+class CellSums:
+    """Per-cell sums over a region's pixels on a grid of square cells.
+
+    All arrays have shape ``(rows, cols)`` except ``hist`` (rows, cols, bins).
+    Cell (i, j) covers image columns ``x0 + j*cell_px`` to ``x0 + (j+1)*cell_px``
+    (clipped to the region's bounding box) and the rows likewise.
+
+    Attributes
+    ----------
+    jxx, jxy, jyy : structure tensor sums (part frame, y up), float64
+    area : number of measured pixels in the cell (region pixels that are neither masked nor
+        within a kernel radius of the image border)
+    region_area : number of region pixels in the cell, measured or not
+    hist : magnitude-weighted lay histogram, bins of ``180/bins`` degrees
+        centred at ``(k + 0.5) * 180 / bins``, votes split linearly
+    """
+
+    origin_px: tuple[int, int]
+    cell_px: int
+    shape_px: tuple[int, int]  # (height, width) of the measured box
+    jxx: np.ndarray
+    jxy: np.ndarray
+    jyy: np.ndarray
+    area: np.ndarray
+    hist: np.ndarray
+    region_area: np.ndarray | None = None  # region pixels per cell, measured or not (None: same as area)
+
+    @property
+    def bins(self) -> int:
+        return self.hist.shape[-1]
+
+    def bin_edges_deg(self) -> np.ndarray:
+        return np.linspace(0.0, 180.0, self.bins + 1)
+
+    def cell_boxes(self) -> np.ndarray:
+        """(rows, cols, 4) array of ``x, y, w, h`` of each cell in image pixels."""
+        rows, cols = self.area.shape
+        x0, y0 = self.origin_px
+        h, w = self.shape_px
+        xs = np.minimum(np.arange(cols + 1) * self.cell_px, w)
+        ys = np.minimum(np.arange(rows + 1) * self.cell_px, h)
+        xs[-1], ys[-1] = w, h  # the last cell reaches the box's edge (it may hold a merged sliver)
+        out = np.zeros((rows, cols, 4), dtype=np.int64)
+        out[..., 0] = x0 + xs[None, :-1]
+        out[..., 1] = y0 + ys[:-1, None]
+        out[..., 2] = np.diff(xs)[None, :]
+        out[..., 3] = np.diff(ys)[:, None]
+        return out
+
+    def cell_centres(self) -> np.ndarray:
+        """(rows, cols, 2) array of cell centres ``x, y`` in image pixels."""
+        b = self.cell_boxes().astype(np.float64)
+        return np.stack([b[..., 0] + b[..., 2] / 2.0, b[..., 1] + b[..., 3] / 2.0], axis=-1)
+
+
+def cell_sums(
+    image: np.ndarray,
+    mask: np.ndarray,
+    bbox: tuple[int, int, int, int],
+    *,
+    cell_px: int = 32,
+    sigma: float = 1.0,
+    bins: int = 36,
+    angle_offset_deg: float = 0.0,
+    vote_step: int = 1,
+    threads: int = 1,
+    keep: np.ndarray | None = None,
+    background_sigma: float = 0.0,
+    interior_only: bool = True,
+) -> CellSums:
+    """Structure tensor and orientation histogram summed per cell of a region.
+
+    Steps, in strips of rows so that memory stays a few strip-sized buffers:
+
+    1. Gaussian-derivative gradients of the strip (with a halo of image rows
+       above and below, so strips join seamlessly), after subtracting the
+       smooth illumination background when ``background_sigma`` > 0.
+    2. Products ``gx^2, gx gy, gy^2`` weighted by the measured pixels (region
+       mask, ``keep``, and the image interior), summed per cell (block sums of
+       a zero-padded strip).
+    3. The lay angle of every pixel votes its gradient magnitude into the two
+       nearest histogram bins of its cell, split linearly.
+
+    Parameters
+    ----------
+    image : (M, N) float32 ndarray
+        The whole image (the halo comes from it).
+    mask : (h, w) bool ndarray
+        Region pixels inside ``bbox``.
+    bbox : (x, y, w, h)
+        The region's bounding box in image pixels; cells are aligned to its
+        top-left corner.
+    cell_px : int
+        Cell side in pixels.
+    sigma : float
+        Derivative scale in pixels.
+    bins : int
+        Histogram bins over [0, 180).
+    angle_offset_deg : float
+        Subtracted from every lay angle before binning, so that histograms
+        are in a rotated part frame. The tensor sums stay in image axes (rotate
+        the resulting angle instead).
+    vote_step : int
+        Histogram votes come from every ``vote_step``-th pixel along rows and
+        columns (1: every pixel). The tensor sums always use every pixel.
+        Gradients at ``sigma`` >= 1 px vary smoothly over neighbouring pixels,
+        so a step of 2 keeps the histogram's shape (tests/measure/test_orientation.py
+        measures the difference) at a quarter of the vote counting, which
+        dominates the run time.
+    threads : int
+        Strips processed at once (OpenCV and NumPy release the GIL).
+    keep : (h, w) bool ndarray, optional
+        Region pixels that may be measured (False: masked, e.g. saturated).
+    background_sigma : float
+        Scale (px) of the illumination background removed before the
+        derivatives (:func:`.conditions.illumination_background`); 0 keeps the image as it is.
+    interior_only : bool
+        Measure only pixels whose derivative kernel lies wholly inside the
+        image, so that no mirrored pixel beyond the border enters a sum.
+
+    Returns
+    -------
+    CellSums
+
+    References
+    ----------
+    .. [1] Dalal, N., Triggs, B. (2005). Histograms of oriented gradients for
+       human detection. Proc. CVPR, 886-893. :doi:`10.1109/CVPR.2005.177`
+    """
+    x0, y0, w, h = (int(v) for v in bbox)
+    rows_img, cols_img = image.shape
+    if mask.shape != (h, w):
+        raise ValueError(f"mask shape {mask.shape} does not match bbox size {(h, w)}")
+    if x0 < 0 or y0 < 0 or x0 + w > cols_img or y0 + h > rows_img:
+        raise ValueError(f"bbox {bbox} lies outside the image of {cols_img}x{rows_img}")
+    n_rows, n_cols = -(-h // cell_px), -(-w // cell_px)
+    strips = _Strips(image, mask, keep, (x0, y0, w, h), cell_px, sigma, interior_only, background_sigma)
+    strips.votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, strips.w_pad)
+    jxx, jxy, jyy, area = (np.zeros((n_rows, n_cols)) for _ in range(4))
+    hist = np.zeros((n_rows, n_cols, bins))
+    from concurrent.futures import ThreadPoolExecutor
+
+    # the vote counting (np.bincount) holds the GIL; the filters of the next strip run meanwhile
+    with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
+        for cell_row0, n_strip, sums, strip_hist in pool.map(strips, range(0, n_rows, strips.strip_cells)):
+            sl = slice(cell_row0, cell_row0 + n_strip)
+            jxx[sl], jxy[sl], jyy[sl], area[sl] = sums
+            hist[sl] = strip_hist.reshape(n_strip, n_cols, bins)
+    if mask.all():  # whole cells, clipped at the box's edge
+        ext_r = np.diff(np.minimum(np.arange(n_rows + 1) * cell_px, h)).astype(np.float64)
+        ext_c = np.diff(np.minimum(np.arange(n_cols + 1) * cell_px, w)).astype(np.float64)
+        region_area = np.outer(ext_r, ext_c)
+    else:
+        region_area = _padded_block_sum(mask, cell_px, n_rows, n_cols)
+    return CellSums(
+        origin_px=(x0, y0),
+        cell_px=cell_px,
+        shape_px=(h, w),
+        jxx=jxx,
+        jxy=jxy,
+        jyy=jyy,
+        area=area,
+        hist=hist,
+        region_area=region_area,
+    )
+
+
+class _Strips:
+    """One strip of cell rows at a time: gradients, masked products, block sums and votes."""
+
+    def __init__(
+        self, image, mask, keep, box, cell_px: int, sigma: float, interior_only: bool, background_sigma: float
+    ):
+        x0, y0, w, h = box
+        rows_img, cols_img = image.shape
+        self.image, self.box, self.cell_px = image, box, cell_px
+        self.smooth, self.deriv = gaussian_derivative_kernels(sigma)
+        self.halo = halo = len(self.smooth) // 2
+        self.weights, self.inner = _measured_pixels(mask, keep, box, image.shape, halo if interior_only else 0)
+        self.strip_cells = max(1, STRIP_ROWS // cell_px)
+        self.cx0, self.cx1 = max(0, x0 - halo), min(cols_img, x0 + w + halo)
+        self.w_pad = -(-w // cell_px) * cell_px
+        self.background = None
+        self.votes: _Votes | None = None
+        if background_sigma > 0:
+            from .conditions import illumination_background
+
+            by0, by1 = max(0, y0 - halo), min(rows_img, y0 + h + halo)
+            self.background = illumination_background(
+                image[by0:by1, self.cx0 : self.cx1], background_sigma, origin=(self.cx0, by0)
+            )
+
+    def gradients(self, r0: int, r1: int, h_pad: int):
+        """gx, gy (y up) of box rows r0:r1 in zero-padded buffers a whole number of cells wide."""
+        x0, y0, w, _ = self.box
+        ry0, ry1 = max(0, y0 + r0 - self.halo), min(self.image.shape[0], y0 + r1 + self.halo)
+        block = np.ascontiguousarray(self.image[ry0:ry1, self.cx0 : self.cx1], dtype=np.float32)
+        if self.background is not None:
+            block -= self.background.sample(ry0, ry1, self.cx0, self.cx1)
+        top, left = y0 + r0 - ry0, x0 - self.cx0
+        inner = (slice(top, top + (r1 - r0)), slice(left, left + w))
+        gx = np.zeros((h_pad, self.w_pad), np.float32)
+        gy = np.zeros((h_pad, self.w_pad), np.float32)
+        border = cv2.BORDER_REFLECT_101
+        gx[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, self.deriv, self.smooth, borderType=border)[inner]
+        gy[: r1 - r0, :w] = cv2.sepFilter2D(block, cv2.CV_32F, self.smooth, self.deriv, borderType=border)[inner]
+        np.negative(gy, out=gy)  # rows grow downward; the part frame's y grows upward
+        return gx, gy
+
+    def __call__(self, cell_row0: int):
+        cell_px, h = self.cell_px, self.box[3]
+        r0 = cell_row0 * cell_px  # strip rows relative to the box
+        r1 = min(h, r0 + self.strip_cells * cell_px)
+        n_strip_cells = -(-(r1 - r0) // cell_px)
+        gx, gy = self.gradients(r0, r1, n_strip_cells * cell_px)
+        m = np.zeros_like(gx)
+        # rows and columns of this strip whose kernel lies inside the image (box coordinates - r0)
+        in_r0, in_r1, in_c0, in_c1 = self.inner
+        a0, a1 = max(0, in_r0 - r0), max(0, min(r1, in_r1) - r0)
+        if self.weights is None:  # a full box: only the border band (if any) is left out, by slicing
+            m[a0:a1, in_c0:in_c1] = 1.0
+            for g in (gx, gy):
+                g[:a0] = 0.0
+                g[a1:] = 0.0
+                g[:, :in_c0] = 0.0
+                g[:, in_c1:] = 0.0
+        else:
+            m[a0:a1, in_c0:in_c1] = self.weights[r0 + a0 : r0 + a1, in_c0:in_c1]
+            gx *= m  # masked gradients: products and magnitudes vanish outside the measured pixels
+            gy *= m
+        area = _block_sum(m, cell_px)
+        del m
+        sums = (_block_sum(gx * gx, cell_px), _block_sum(gx * gy, cell_px), _block_sum(gy * gy, cell_px), area)
+        return cell_row0, n_strip_cells, sums, self.votes.count(gx, gy, n_strip_cells)
+
+
+def merge_edge_slivers(sums: CellSums) -> CellSums:
+    """Merge a last row or column of cells narrower than half a cell into its neighbour.
+
+    Cells are aligned to the region box's top-left corner, so its right and bottom edges may
+    leave a strip too narrow for a local lay of its own; merged, every pixel of the region belongs
+    to a cell that is checked (the merged cell is up to 1.5 cells long).
+    """
+    h, w = sums.shape_px
+    arrays = {k: getattr(sums, k) for k in ("jxx", "jxy", "jyy", "area", "hist", "region_area")}
+    for axis, extent in ((0, h), (1, w)):
+        n = arrays["area"].shape[axis]
+        if n < 2 or extent - (n - 1) * sums.cell_px >= sums.cell_px / 2:
+            continue
+        for k, a in arrays.items():
+            if a is None:
+                continue
+            a = np.moveaxis(a, axis, 0)
+            merged = a[:-1].copy()
+            merged[-1] += a[-1]
+            arrays[k] = np.moveaxis(merged, 0, axis)
+    return CellSums(origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, **arrays)
+
+
+def _measured_pixels(mask, keep, bbox, image_shape, border: int):
+    """Measured pixels of the box: (None or a bool array of region pixels not masked, interior rectangle).
+
+    The rectangle ``(r0, r1, c0, c1)`` (box coordinates) holds the pixels whose kernel lies inside
+    the image; the array is None when every pixel of the box belongs to the region and none is masked.
+    """
+    x0, y0, w, h = bbox
+    rows_img, cols_img = image_shape
+    inner = (
+        max(0, border - y0),
+        min(h, rows_img - border - y0),
+        max(0, border - x0),
+        min(w, cols_img - border - x0),
+    )
+    full = bool(mask.all()) and (keep is None or bool(keep.all()))
+    return (None if full else (mask if keep is None else mask & keep)), inner
+
+
+def _padded_block_sum(a: np.ndarray, cell: int, n_rows: int, n_cols: int) -> np.ndarray:
+    padded = np.zeros((n_rows * cell, n_cols * cell), np.float32)
+    padded[: a.shape[0], : a.shape[1]] = a
+    return _block_sum(padded, cell)
+
+
+class _Votes:
+    """Magnitude-weighted lay votes of a strip, split linearly between the two nearest bins of a cell."""
+
+    def __init__(self, bins: int, offset: float, step: int, cell_px: int, n_cols: int, w_pad: int):
+        self.bins, self.offset, self.step, self.cell_px, self.n_cols = bins, offset, step, cell_px, n_cols
+        self.stride = 4 * bins + 2  # vote slots per cell, see count()
+        self.col_slot = (np.arange(w_pad, dtype=np.intp) // cell_px * self.stride)[::step]
+
+    def count(self, gx: np.ndarray, gy: np.ndarray, n_strip_cells: int) -> np.ndarray:
+        bins, stride, step = self.bins, self.stride, self.step
+        if step > 1:
+            gx = np.ascontiguousarray(gx[::step, ::step])
+            gy = np.ascontiguousarray(gy[::step, ::step])
+        magnitude = cv2.magnitude(gx, gy)
+        angle = cv2.phase(gx, gy, angleInDegrees=True)  # gradient direction in [0, 360), error ~0.01 deg
+        # lay = gradient + 90 - offset (mod 180). Rather than a costly per-pixel modulo, bin the
+        # unreduced angle: position t = (angle + 90 - offset) * bins / 180 + bins + 0.5 lies in
+        # [0.5, 3.5 bins + 0.5) for an offset in [0, 180); k = floor(t) indexes `stride` slots per
+        # cell, which are folded back modulo `bins` on the small histogram afterwards.
+        angle += np.float32(90.0 - self.offset)
+        angle *= np.float32(bins / 180.0)
+        angle += np.float32(bins + 0.5)
+        upper = angle.astype(np.intp)  # floor, the values are positive
+        angle -= upper  # share of the vote that goes to the upper bin
+        h_pad = n_strip_cells * self.cell_px
+        upper += (np.arange(0, h_pad, step, dtype=np.intp) // self.cell_px * (self.n_cols * stride))[:, None]
+        upper += self.col_slot[None, :]
+        to_upper = magnitude * angle
+        magnitude -= to_upper
+        size = n_strip_cells * self.n_cols * stride
+        up = np.bincount(upper.ravel(), weights=to_upper.ravel(), minlength=size)
+        lo = np.bincount(upper.ravel(), weights=magnitude.ravel(), minlength=size)
+        return _fold_votes(up, lo, bins, stride)
+
+
+def _block_sum(a: np.ndarray, cell: int) -> np.ndarray:
+    """Sums over non-overlapping ``cell`` x ``cell`` blocks of a padded array (float64 out)."""
+    r, c = a.shape
+    rows = a.reshape(r // cell, cell, c).sum(axis=1)  # contiguous rows first: the fast order
+    return rows.reshape(r // cell, c // cell, cell).sum(axis=2).astype(np.float64)
+
+
+def _fold_votes(upper: np.ndarray, lower: np.ndarray, bins: int, stride: int) -> np.ndarray:
+    """Fold per-cell vote slots k (upper bin k, lower bin k - 1) into ``bins`` bins mod 180 deg."""
+    up = upper.reshape(-1, stride)
+    lo = lower.reshape(-1, stride)
+    k = np.arange(stride)
+    hist = np.zeros((up.shape[0], bins))
+    for slots, shift in ((up, 0), (lo, -1)):
+        np.add.at(hist.T, (k + shift) % bins, slots.T)
+    return hist
