@@ -1,20 +1,16 @@
 """Batches: inspect a folder of images in parallel into the archive, resumable.
 
-A batch is one folder of images judged with one recipe under one batch id.
-The parent process plans the batch (every image's hash goes into the archive
-first), worker processes inspect the images, and the parent records each part
-in the archive the moment its result arrives. A batch that is stopped part-way
-(a killed process, a power cut) is finished by running the same command
-again: parts already recorded are not inspected again, and the id stays bound
-to the images it was started with.
+A batch is one folder of images judged with one recipe under one batch id. The parent plans it
+(every image's hash into the archive first), worker processes (or a Dask cluster's) inspect, and the
+parent records each part as its result arrives. A stopped batch (a killed process, a power cut) is
+finished by running the same command again: recorded parts are not inspected again.
 
 Outcome per part: accept, reject or review as the engine decides, or
 ``error`` when the image cannot be read (reported with the reason, counted,
-listed, never dropped). The exit code is that of ``inspect`` over the parts,
-with an error or a part not yet inspected counting as "needs review": 1 when
-any part is rejected, else 3 when any part needs review, has an error or is
-still missing, else 0. (2, an input error, is kept for problems that stop the
-whole batch: a bad recipe, a missing folder, a batch id bound to other images.)
+listed, never dropped). The exit code is that of ``inspect`` over the parts, an error or a part not
+yet inspected counting as "needs review": 1 when any part is rejected, else 3 when any part needs
+review, has an error or is still missing, else 0. (2, an input error, is kept for problems that stop
+the whole batch: a bad recipe, a missing folder, a batch id bound to other images.)
 """
 
 from __future__ import annotations
@@ -32,6 +28,7 @@ from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from datetime import datetime
+from functools import partial
 from pathlib import Path, PurePosixPath
 from typing import Callable, Iterable, Sequence
 
@@ -40,13 +37,14 @@ import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
-from ..archive.location import open_archive, parse_location
+from ..archive.location import open_archive
 from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, sha256_file, write_bytes_atomic
 from ..measure.imaging import read_image
 from ..recipe import Recipe, load_recipe
 from ..results import PartVerdict, SignOff
+from .cluster import on_cluster
 from .runner import find_images, inspect_path, output_stems
 
 __all__ = [
@@ -98,14 +96,14 @@ CSV_COLUMNS = (
 class BatchConfig:
     recipe_path: Path
     folder: Path
-    archive_dir: Path | str  # a folder or a postgresql:// URL (archive.location)
+    archive_dir: Path
     batch_id: str
     jobs: int | None = None  # None: every core
     operator: str | None = None
     recursive: bool = False
     out_dir: Path | None = None
     station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
-    scheduler: str | None = None  # tcp://HOST:PORT: inspect on a Dask cluster's workers (station.cluster)
+    scheduler: str | None = None  # tcp://HOST:PORT: on a Dask cluster (station.cluster); archive_dir: folder or URL
 
 
 @dataclass(frozen=True)
@@ -259,9 +257,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
     archive_mod.check_batch_id(config.batch_id)
     recipe = load_recipe(config.recipe_path)
-    own_folders = [parse_location(config.archive_dir).objects_dir] + (
-        [config.out_dir] if config.out_dir is not None else []
-    )
+    own_folders = [config.archive_dir] + ([config.out_dir] if config.out_dir is not None else [])
     images = discover_images(config.folder, recursive=config.recursive, exclude=own_folders)
     # every output is checked before the first image is hashed or anything is recorded
     if config.out_dir is not None:
@@ -279,15 +275,8 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
                 recorder.error(key, hashed[key][1])
             else:
                 tasks.append((position, key))
-        if tasks and config.scheduler:
-            from .cluster import inspect_on_cluster
-
-            names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
-            items = [(key, str(recorder.paths[key]), names[key]) for _, key in tasks]
-            inspect_on_cluster(config.scheduler, recipe, items, recorder.worker_output)
-            interruption = None
-        else:
-            interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
+        run = partial(on_cluster, config.scheduler) if config.scheduler else partial(_inspect_pending, jobs=config.jobs)
+        interruption = run(recipe, tasks, recorder) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
             batch = _finish(arc, config.batch_id, config.station_key)

@@ -118,3 +118,13 @@ def map_on_cluster(scheduler: str, function: Callable, tasks: Iterable, *args) -
         return client.gather(futures)
     finally:
         client.close()
+
+
+def on_cluster(scheduler: str, recipe: Recipe, tasks, recorder) -> None:
+    """A batch's (position, part key) tasks inspected on the cluster, each recorded as it arrives."""
+    from .runner import output_stems
+
+    names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
+    inspect_on_cluster(
+        scheduler, recipe, [(k, str(recorder.paths[k]), names[k]) for _, k in tasks], recorder.worker_output
+    )
