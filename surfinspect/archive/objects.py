@@ -26,12 +26,19 @@ class ObjectStore:
     def __init__(self, root: str | os.PathLike):
         self.root = Path(root) / OBJECTS_DIR
 
+    @classmethod
+    def at(cls, folder: str | os.PathLike) -> "ObjectStore":
+        """The store in ``folder`` itself (an archive whose index is a database)."""
+        store = cls.__new__(cls)
+        store.root = Path(folder)
+        return store
+
     def make(self) -> None:
         try:
             self.root.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             raise InputError(
-                f"--archive {self.root.parent}: cannot make its {OBJECTS_DIR} folder ({exc.strerror or exc})"
+                f"--archive: cannot make the folder {self.root} for the archived files ({exc.strerror or exc})"
             )
 
     def path(self, sha256: str) -> Path:

@@ -67,7 +67,7 @@ def _require_intact(archive: Archive, what: str, batch_id: str | None = None) ->
     if report.problems:
         more = f" (and {len(report.problems) - 1} more)" if len(report.problems) > 1 else ""
         raise InputError(
-            f"{archive.root}: {what} refused: the archive does not verify: {report.problems[0]}{more}; "
+            f"{archive.location}: {what} refused: the archive does not verify: {report.problems[0]}{more}; "
             "run `surfinspect verify` and have the findings cleared first"
         )
 
@@ -113,7 +113,7 @@ def init_owner(archive: Archive, owner_key: signing.SigningKey, printed_name: st
     owner = archive.register().owner
     if owner is not None:
         raise InputError(
-            f"{archive.root}: the archive already has an owner ({owner.printed_name}, key {owner.key_fingerprint[:16]}…, "
+            f"{archive.location}: the archive already has an owner ({owner.printed_name}, key {owner.key_fingerprint[:16]}…, "
             f"since {owner.enrolled_at_utc}); the owner is set once"
         )
     _require_intact(archive, "setting the owner")

@@ -1,6 +1,6 @@
 """The archive: an indexed, content-addressed, audit-chained store of batches, sign-offs and dispositions.
 
-An archive is one folder::
+An archive is one folder (or a PostgreSQL index and an object folder: :mod:`.location`)::
 
     DIR/index.sqlite        the index (tables in :mod:`.schema`), behind :class:`.backend.IndexBackend`
     DIR/objects/ab/cdef...  every stored file, named by the SHA-256 of its bytes (:mod:`.objects`)
@@ -24,10 +24,11 @@ from pathlib import Path
 from typing import Any, Iterator, Mapping, Sequence
 
 from ..errors import InputError
-from ..fsutil import ensure_output_dir, sha256_bytes
+from ..fsutil import sha256_bytes
 from . import chain, signing
 from .backend import IndexBackend, IndexBusy, IndexDamaged
 from .chain import GENESIS_SHA256, EventKind
+from .location import check_folder, open_index, parse_location
 from .objects import ObjectStore
 from .records import (
     ERROR_SCHEMA,
@@ -50,7 +51,7 @@ from .schema import (
     SignoffRow,
     row_type,
 )
-from .sqlite_backend import INDEX_NAME, SQLiteBackend
+from .sqlite_backend import INDEX_NAME
 
 __all__ = [
     "ARCHIVE_FORMAT",
@@ -85,22 +86,16 @@ class Archive:
     """
 
     def __init__(self, root: str | os.PathLike, *, create: bool = False, backend: IndexBackend | None = None):
-        self.root = Path(root)
-        if self.root.exists() and not self.root.is_dir():
-            allowed = "an archive folder, or a new name to make one" if create else "an archive folder"
-            raise InputError(f"--archive {self.root}: not a folder (a file of that name exists; allowed: {allowed})")
-        index = self.root / INDEX_NAME
-        if backend is None and not index.exists():
-            if not create:
-                raise InputError(
-                    f"{self.root}: not a surfinspect archive (no {INDEX_NAME}; run `surfinspect batch` first)"
-                )
-            ensure_output_dir(self.root, "--archive")
-        try:
-            self.index = backend or SQLiteBackend(self.root)
-        except IndexDamaged as exc:
-            raise InputError(f"{index}: cannot open the archive index ({exc})") from None
-        self.objects = ObjectStore(self.root)
+        where = parse_location(root)
+        self.location = where.display  # for messages: the folder, or the database URL without a password
+        self.root = where.root
+        if where.is_database:
+            self.objects = ObjectStore.at(where.objects_dir)
+        else:
+            check_folder(self.root, create=create, has_backend=backend is not None)
+            self.objects = ObjectStore(self.root)
+        backend = backend or open_index(where)
+        self.index = backend
         try:
             existed = self.index.exists()
             if existed:  # an existing file is checked before anything is written into it or beside it
@@ -250,7 +245,7 @@ class Archive:
         row = self.find_batch(batch_id)
         if row is None:
             known = ", ".join(b.batch_id for b in self.batches()[-5:]) or "none"
-            raise InputError(f"{self.root}: --batch-id: no batch {batch_id!r} in this archive (latest: {known})")
+            raise InputError(f"{self.location}: --batch-id: no batch {batch_id!r} in this archive (latest: {known})")
         return row
 
     def parts(self, batch_id: str) -> list[PartRow]:
@@ -577,7 +572,7 @@ class Archive:
         found = self.chain_head() if exact else (n, self._event_sha(n))
         if found != (n, sha):
             raise InputError(
-                f"{self.root}: the archive changed while the record was being signed; run the command again"
+                f"{self.location}: the archive changed while the record was being signed; run the command again"
             )
 
     def _event_sha(self, seq: int) -> str | None:
@@ -589,7 +584,7 @@ class Archive:
     def _require_number(self, table: str, where: Mapping[str, Any], column: str, number: int) -> None:
         if (self.index.max_value(table, column, where) or 0) + 1 != number:
             raise InputError(
-                f"{self.root}: another {column.replace('_', ' ')} was stored meanwhile; run the command again"
+                f"{self.location}: another {column.replace('_', ' ')} was stored meanwhile; run the command again"
             )
 
     def record_verification(self, batch_id: str | None, problems: Sequence[str]) -> int:

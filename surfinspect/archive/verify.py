@@ -33,6 +33,7 @@ from ..fsutil import write_text_atomic
 from . import checks, legacy_v1, pdf_checks, signed_checks
 from .backend import IndexBusy, IndexDamaged
 from .checks import Context
+from .location import ArchiveLocation, parse_location
 from .sqlite_backend import INDEX_NAME, SQLiteBackend
 from .store import Archive, utc_now
 
@@ -95,10 +96,27 @@ def _check_anchor(ctx: Context, anchor: dict[str, Any]) -> None:
         ctx.fail(f"anchor: audit event {n} is not the one anchored: the history up to it was rewritten or re-chained")
 
 
-def _unreadable_reason(root: Path, exc: InputError) -> str:
-    """Why the index cannot be opened, in the database's own words where it has some."""
+def _unreadable_index(where: ArchiveLocation, exc: InputError) -> str | None:
+    """Why an index that is there cannot be opened as an archive, in the database's own words where it has
+    some; None when there is no index at all (the location is not an archive: a usage error)."""
+    if where.is_database:
+        from .postgres_backend import PostgresBackend
+
+        try:
+            backend = PostgresBackend(where.conninfo)
+        except InputError:
+            return None  # no server or no database: a usage error, as it was
+        try:
+            return str(exc) if backend.columns_found() else None
+        except (IndexDamaged, IndexBusy):
+            return str(exc)
+        finally:
+            backend.close()
+    index = where.root / INDEX_NAME
+    if not (index.is_file() and index.stat().st_size > 0):
+        return None
     try:
-        backend = SQLiteBackend(root)
+        backend = SQLiteBackend(where.root)
     except IndexDamaged as damaged:
         return f"{INDEX_NAME} cannot be opened ({damaged})"
     try:
@@ -129,17 +147,18 @@ def verify_archive(
         index that exists but cannot be read is a problem in the report.
     """
     if not isinstance(archive, Archive):
-        root = Path(archive)
-        if legacy_v1.format_of(root) == legacy_v1.FORMAT_1:
+        where = parse_location(archive)
+        root = where.root
+        if not where.is_database and legacy_v1.format_of(root) == legacy_v1.FORMAT_1:
             if anchor is not None:
                 raise InputError("--anchor: anchors are kept for archives of the current format only")
             return VerifyReport(*legacy_v1.verify_format_1(root, batch_id))
         try:
-            arc = Archive(root)
+            arc = Archive(archive)
         except InputError as exc:
-            index = root / INDEX_NAME
-            if index.is_file() and index.stat().st_size > 0:
-                return VerifyReport([f"index: {_unreadable_reason(root, exc)}; nothing recorded in it can be checked"])
+            reason = _unreadable_index(where, exc)
+            if reason is not None:
+                return VerifyReport([f"index: {reason}; nothing recorded in it can be checked"])
             raise
         try:
             return verify_archive(arc, batch_id, anchor=anchor, shared_only=shared_only)

@@ -47,4 +47,7 @@ def check_number(
 
 def batch_owner(archive: str | Path, batch_id: str) -> str:
     """Whose files an output folder holds when a batch's files are copied there (batch --out, show --out)."""
-    return f"batch {batch_id} of the archive {Path(archive).resolve()}"
+    from ..archive.location import is_database_url, parse_location
+
+    where = parse_location(archive).display if is_database_url(archive) else Path(archive).resolve()
+    return f"batch {batch_id} of the archive {where}"

@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Callable, Iterator
 
 from .._lazy import module
-from ..errors import EXIT_INPUT_ERROR
+from ..errors import EXIT_INPUT_ERROR, InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
@@ -30,6 +30,7 @@ from .console import Console
 archive = module("surfinspect.archive.store")
 backend = module("surfinspect.archive.backend")
 sqlite3 = module("sqlite3")
+location = module("surfinspect.archive.location")
 batch = module("surfinspect.station.batch")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
@@ -38,7 +39,12 @@ HELP = "inspect every image in a folder (in parallel) into the archive, with rep
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="folder of images (PNG, TIFF, JPEG, BMP)")
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument(
         "--batch-id",
         required=True,
@@ -46,6 +52,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="the batch id; run again with the same id to finish a stopped batch",
     )
     parser.add_argument("--jobs", type=int, metavar="N", help="worker processes (default: every core)")
+    parser.add_argument(
+        "--scheduler",
+        metavar="tcp://HOST:PORT",
+        help="inspect on this Dask scheduler's workers instead (images are sent to them; the archive stays here)",
+    )
     parser.add_argument("--operator", metavar="NAME", help="operator name for the report")
     parser.add_argument("--recursive", action="store_true", help="take images from sub-folders too")
     parser.add_argument(
@@ -134,7 +145,7 @@ def batch_fields(args: argparse.Namespace) -> dict:
     return dict(
         recipe_path=Path(args.recipe),
         folder=Path(args.folder),
-        archive_dir=Path(args.archive),
+        archive_dir=args.archive,
         batch_id=args.batch_id,
         jobs=args.jobs,
         operator=args.operator,
@@ -142,8 +153,11 @@ def batch_fields(args: argparse.Namespace) -> dict:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
+    if args.scheduler and args.jobs is not None:
+        raise InputError("--jobs: not with --scheduler (the cluster's workers are the parallelism)")
     config = batch.BatchConfig(
         **batch_fields(args),
+        scheduler=args.scheduler,
         recursive=args.recursive,
         out_dir=Path(args.out) if args.out else None,
         station_key=open_key(args.station_key, args.passphrase_env, "--station-key") if args.station_key else None,
@@ -222,7 +236,7 @@ def _write_failure(exc: BaseException) -> str:
 
 def _say_where_the_report_is(args: argparse.Namespace, console: Console) -> None:
 
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         report = arc.batch(args.batch_id).report_sha256
         if report is None:
             return

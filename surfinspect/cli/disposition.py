@@ -10,12 +10,18 @@ from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a part judged reject or review, or not-inspected"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch")
     parser.add_argument("--part", required=True, metavar="PART", help="the part's key in the batch (its file name)")
     parser.add_argument("--decision", required=True, choices=signatures.DECISIONS, help="what becomes of the part")
@@ -24,7 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         arc.part(args.batch_id, args.part)  # an unknown batch or part is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

@@ -42,6 +42,8 @@ COMMANDS = (
     "disposition",
     "verify",
     "show",
+    "archive",
+    "rejudge",
     "target",
     "bias",
     "gauge",

@@ -15,6 +15,7 @@ from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "give an archive its owner once (the key that enrols and revokes signers)"
 
@@ -22,14 +23,19 @@ HELP = "give an archive its owner once (the key that enrols and revokes signers)
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     init = sub.add_parser("init", help="set the owner of an archive (made when missing)")
-    init.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
+    init.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     init.add_argument("--name", required=True, metavar="PRINTED NAME", help="the owner's name as printed on records")
     add_key_arguments(init, "--key", "the owner's private key file (from keygen)")
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
     key = open_key(args.key, args.passphrase_env, "--key")
-    with archive.Archive(args.archive, create=True) as arc:
+    with location.open_archive(args.archive, create=True) as arc:
         row = signatures.init_owner(arc, key, args.name)
         archive_id = arc.archive_id
     console.info(f"archive {args.archive} (id {archive_id}): owner {row.printed_name}, key {row.key_fingerprint}")

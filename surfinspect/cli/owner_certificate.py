@@ -21,6 +21,7 @@ from .console import Console
 
 pki = module("surfinspect.archive.pki")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "export the archive owner's certificate (the one customers trust to check signed reports)"
 
@@ -29,7 +30,12 @@ _ENCODINGS = {".pem": "PEM", ".cer": "DER", ".crt": "DER", ".der": "DER"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
 
 
@@ -40,7 +46,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
     check_output_file("--out", args.out, suffixes=tuple(_ENCODINGS))
     encoding = getattr(serialization.Encoding, _ENCODINGS[args.out[args.out.rfind(".") :].lower()])
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         register = arc.register()
         cert = pki.owner_certificate_of(arc, register)
         if cert is None:

@@ -17,13 +17,19 @@ from ._checks import batch_owner
 from .console import Console
 
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 batch = module("surfinspect.station.batch")
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
     parser.add_argument(
         "--out",
@@ -49,7 +55,7 @@ def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
 def run(args: argparse.Namespace, console: Console) -> int:
     if args.out and args.batch_id is None:
         raise InputError("--out: needs --batch-id (the batch whose files to copy out)")
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         if args.batch_id is None:
             _show_batches(arc, console)
             return 0
@@ -86,7 +92,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
             ]
         )
     if not rows:
-        console.info(f"archive {arc.root}: no batches yet")
+        console.info(f"archive {arc.location}: no batches yet")
         return
     console.table(
         [

@@ -20,13 +20,19 @@ from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 batch = module("surfinspect.station.batch")
 
 HELP = "sign a finished batch off (released, withheld or examined) and store the signed report"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
     add_key_arguments(parser, "--key", "the signer's private key file (enrolled in the archive's register)")
     parser.add_argument(
@@ -44,7 +50,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     if args.out:
         check_output_file("--out", args.out, suffixes=(".pdf",), not_same_as=[("the --key file", args.key)])
         out = Path(args.out)
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         arc.batch(args.batch_id)  # an unknown batch is named before the key is opened
         key = open_key(args.key, args.passphrase_env, "--key")
         if not key.protected:

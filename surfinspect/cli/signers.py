@@ -16,6 +16,7 @@ from .console import Console
 signatures = module("surfinspect.archive.signatures")
 signing = module("surfinspect.archive.signing")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "enrol, revoke and list the keys that may sign in an archive"
 
@@ -23,7 +24,12 @@ HELP = "enrol, revoke and list the keys that may sign in an archive"
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     add = sub.add_parser("add", help="enrol a public key under a printed name and role")
-    add.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    add.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     add.add_argument("--pub", required=True, metavar="KEY.pub", help="the signer's public key file (from keygen)")
     add.add_argument("--name", required=True, metavar="PRINTED NAME", help="the name printed on what the key signs")
     add.add_argument(
@@ -31,18 +37,28 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     add_key_arguments(add, "--by", "the archive owner's private key file")
     revoke = sub.add_parser("revoke", help="withdraw an enrolled key from now on")
-    revoke.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    revoke.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     revoke.add_argument(
         "--key-fingerprint", required=True, metavar="HEX", help="the key's fingerprint (8 or more leading digits)"
     )
     revoke.add_argument("--reason", default="", metavar="TEXT", help="why the key is withdrawn (kept in the record)")
     add_key_arguments(revoke, "--by", "the archive owner's private key file")
     listing = sub.add_parser("list", help="list the owner and every enrolled key")
-    listing.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    listing.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
-    with archive.Archive(args.archive) as arc:
+    with location.open_archive(args.archive) as arc:
         if args.action == "list":
             _list(arc, console)
             return 0
@@ -60,7 +76,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 def _list(arc: archive.Archive, console: Console) -> None:
     reg = arc.register()
     if reg.owner is None:
-        console.info(f"archive {arc.root}: no owner yet (surfinspect owner init); nothing can be signed in it")
+        console.info(f"archive {arc.location}: no owner yet (surfinspect owner init); nothing can be signed in it")
         return
     console.info(
         f"owner: {reg.owner.printed_name}, key {reg.owner.key_fingerprint} (since {reg.owner.enrolled_at_utc})"

@@ -17,13 +17,19 @@ from .console import Console
 
 legacy_v1 = module("surfinspect.archive.legacy_v1")
 archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 verifier = module("surfinspect.archive.verify")
 
 HELP = "check an archive's index, audit chain, signer register, signatures and files (exit 0 intact, 1 not)"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument(
         "--batch-id",
         metavar="ID",
@@ -40,7 +46,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace, console: Console) -> int:
     anchor = verifier.read_anchor(args.anchor) if args.anchor else None
-    first_format = legacy_v1.format_of(args.archive) == legacy_v1.FORMAT_1
+    first_format = (
+        not location.is_database_url(args.archive) and legacy_v1.format_of(args.archive) == legacy_v1.FORMAT_1
+    )
     if args.export_anchor:
         if first_format:
             raise InputError("--export-anchor: anchors are kept for archives of the current format only")
@@ -68,7 +76,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
 def _record(args: argparse.Namespace, problems: list[str], console: Console) -> str:
     """Record the check in the audit trail, write the anchor when asked, and say who owns the archive."""
     try:
-        with archive.Archive(args.archive) as arc:
+        with location.open_archive(args.archive) as arc:
             arc.record_verification(args.batch_id, problems)
             events, head = arc.chain_head()
             owner = arc.register().owner

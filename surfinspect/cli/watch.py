@@ -28,7 +28,12 @@ HELP = "judge each image as it arrives in a folder, publish verdicts (JSON lines
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="the folder the camera writes images into")
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder (made when missing)")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument(
         "--batch-id", required=True, metavar="ID", help="the batch id; run again with the same id to go on after a stop"
     )

@@ -1,12 +1,9 @@
 """Batches: inspect a folder of images in parallel into the archive, resumable.
 
-A batch is one folder of images judged with one recipe under one batch id.
-The parent process plans the batch (every image's hash goes into the archive
-first), worker processes inspect the images, and the parent records each part
-in the archive the moment its result arrives. A batch that is stopped part-way
-(a killed process, a power cut) is finished by running the same command
-again: parts already recorded are not inspected again, and the id stays bound
-to the images it was started with.
+A batch is one folder of images judged with one recipe under one batch id. The parent plans it
+(every image's hash into the archive first), worker processes (or a Dask cluster's) inspect, and the
+parent records each part as its result arrives. A stopped batch (a killed process, a power cut) is
+finished by running the same command again: recorded parts are not inspected again.
 
 Outcome per part: accept, reject or review as the engine decides, or
 ``error`` when the image cannot be read (reported with the reason, counted,
@@ -46,6 +43,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures import TimeoutError as FutureTimeout  # builtin TimeoutError from 3.11 on, not on 3.10
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
+from functools import partial
 from pathlib import Path
 from typing import Callable, Iterable, Sequence
 
@@ -53,6 +51,7 @@ import cv2
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.location import open_archive
 from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import ensure_output_dir, write_bytes_atomic
@@ -60,6 +59,7 @@ from ..inputs import env_limit, escape_text
 from ..recipe import Recipe, load_recipe
 from ..results import EXIT_INPUT_ERROR, PartVerdict
 from .batch_outputs import CSV_COLUMNS, export_batch, regions_csv, render_batch_report
+from .cluster import on_cluster
 from .intake import MAX_NAME_BYTES, FoundPart, _hash_file, discover_images
 from .runner import inspect_path, output_stems
 
@@ -108,6 +108,7 @@ class BatchConfig:
     recursive: bool = False
     out_dir: Path | None = None
     station_key: SigningKey | None = None  # enrolled station key: signs the chain head at the batch close
+    scheduler: str | None = None  # tcp://HOST:PORT: on a Dask cluster (station.cluster); archive_dir: folder or URL
 
 
 @dataclass(frozen=True)
@@ -231,7 +232,7 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
     # every output is checked before the first image is hashed or anything is recorded
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
-    with archive_mod.Archive(config.archive_dir, create=True) as arc:
+    with open_archive(config.archive_dir, create=True) as arc:
         check_station_key(arc, config.station_key)
         # a refused entry is not read at all: it has no hash, and its record says why
         hashed = {f.key: (None, f.refusal) if f.refusal else _hash_file(f.path) for f in images}
@@ -246,7 +247,8 @@ def run_batch(config: BatchConfig, *, on_part: Callable[[PartDone], None] | None
                 recorder.error(found.key, hashed[found.key][1])
             else:
                 tasks.append((position, found.key))
-        interruption = _inspect_pending(recipe, tasks, recorder, jobs=config.jobs) if tasks else None
+        run = partial(on_cluster, config.scheduler) if config.scheduler else partial(_inspect_pending, jobs=config.jobs)
+        interruption = run(recipe, tasks, recorder) if tasks else None
         batch = arc.batch(config.batch_id)
         if interruption is None and not batch.is_finished:
             batch, interruption = _finish(arc, config.batch_id, config.station_key)

@@ -34,6 +34,7 @@ from typing import Callable
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.location import open_archive, parse_location
 from ..archive.signing import SigningKey
 from ..errors import InputError
 from ..fsutil import sha256_file
@@ -58,7 +59,7 @@ RECORD_BACKLOG = 4
 class WatchConfig:
     recipe_path: Path
     folder: Path
-    archive_dir: Path
+    archive_dir: Path | str  # a folder or a postgresql:// URL (archive.location); the journal sits in its root
     batch_id: str
     jobs: int = 1
     operator: str | None = None
@@ -206,14 +207,14 @@ class Station:
         recipe = load_recipe(cfg.recipe_path)
         if not cfg.folder.is_dir():
             raise InputError(f"{cfg.folder}: not a folder (the folder the camera writes into)")
-        with archive_mod.Archive(cfg.archive_dir, create=True) as arc:
+        with open_archive(cfg.archive_dir, create=True) as arc:
             batch.check_station_key(arc, cfg.station_key)
             existing = arc.find_batch(cfg.batch_id)
             if existing is not None and existing.is_finished:
                 raise InputError(
                     f"--batch-id: batch {cfg.batch_id!r} was closed at {existing.finished_at}; use a new batch id"
                 )
-            spool = Spool(cfg.archive_dir, cfg.batch_id, recipe.sha256)
+            spool = Spool(parse_location(cfg.archive_dir).root, cfg.batch_id, recipe.sha256)
             if existing is not None and not len(spool):
                 raise InputError(
                     f"--batch-id: batch {cfg.batch_id!r} is a folder batch of `surfinspect batch`; use a new batch id"

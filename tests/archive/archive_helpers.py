@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import sqlite3
 from dataclasses import dataclass
@@ -139,12 +140,15 @@ def render(signoff: results.SignOff) -> bytes:
     return finish_archival(buf.getvalue(), info)
 
 
-def full_archive(tmp_path, *, station=True, signoff=True, disposition=True):
-    """An archive with a register, one batch (accept, reject, error) closed by a station key, a sign-off, a disposition."""
+def full_archive(tmp_path, *, station=True, signoff=True, disposition=True, root=None):
+    """An archive with a register, one batch (accept, reject, error) closed by a station key, a sign-off, a disposition.
+
+    ``root``: where to make it (a :class:`Site`); by default the folder ``tmp_path / "archive"``.
+    """
     recipe_path = tmp_path / "lw-220.yaml"
     recipe_path.write_text(RECIPE_TEXT)
     images = write_images(tmp_path / "in", PARTS)
-    root = tmp_path / "archive"
+    root = tmp_path / "archive" if root is None else root
     keys = Keys(
         signing.SigningKey.generate(), signing.SigningKey.generate("forged label"), signing.SigningKey.generate()
     )
@@ -158,16 +162,56 @@ def full_archive(tmp_path, *, station=True, signoff=True, disposition=True):
     return root, keys
 
 
+class Site(str):
+    """An archive location as ``--archive`` takes it (a folder, or a PostgreSQL URL) that also behaves as
+    the folder the stored files hang from (``site / "objects"``, ``site.parent``), so that one test body
+    tampers with either backend. ``server`` and ``dbname`` are set for PostgreSQL."""
+
+    def __new__(cls, folder, server=None, dbname=None):
+        text = str(folder) if server is None else server.archive_url(dbname, folder / "objects")
+        site = super().__new__(cls, text)
+        site.folder, site.server, site.dbname = folder, server, dbname
+        return site
+
+    @property
+    def is_postgres(self) -> bool:
+        return self.server is not None
+
+    @property
+    def parent(self):
+        return self.folder.parent
+
+    def __truediv__(self, other):
+        return self.folder / other
+
+    @contextlib.contextmanager
+    def connect(self):
+        """A raw connection to the index, outside the tool (as a person with SQL access would tamper)."""
+        if self.is_postgres:
+            db = self.server.psql_conn(self.dbname)
+        else:
+            db = sqlite3.connect(self.folder / arc.INDEX_NAME)
+        try:
+            yield db
+        finally:
+            db.close()
+
+    def statement(self, text: str) -> str:
+        return text.replace("?", "%s") if self.is_postgres else text
+
+
 def sql(root, statement, params=()):
-    db = sqlite3.connect(root / arc.INDEX_NAME)
-    with db:
-        db.execute(statement, params)
-    db.close()
+    site = root if isinstance(root, Site) else Site(root)
+    with site.connect() as db:
+        if site.is_postgres:
+            with db.transaction():
+                db.execute(site.statement(statement), params)
+        else:
+            with db:
+                db.execute(statement, params)
 
 
 def query(root, statement, params=()):
-    db = sqlite3.connect(root / arc.INDEX_NAME)
-    try:
-        return db.execute(statement, params).fetchall()
-    finally:
-        db.close()
+    site = root if isinstance(root, Site) else Site(root)
+    with site.connect() as db:
+        return [tuple(r) for r in db.execute(site.statement(statement), params).fetchall()]

@@ -11,9 +11,15 @@ from surfinspect.archive.backend import IndexBackend, IndexDamaged
 from surfinspect.archive.sqlite_backend import SQLiteBackend
 
 
-@pytest.fixture(params=[SQLiteBackend], ids=lambda cls: cls.__name__)
+@pytest.fixture(params=["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)])
 def backend(request, tmp_path):
-    index = request.param(tmp_path)
+    if request.param == "sqlite":
+        index = SQLiteBackend(tmp_path)
+    else:
+        from surfinspect.archive.postgres_backend import PostgresBackend
+
+        server = request.getfixturevalue("pg_server")
+        index = PostgresBackend(server.url(request.getfixturevalue("pg_database")))
     index.create_schema()
     yield index
     index.close()
@@ -74,7 +80,7 @@ def test_names_outside_the_schema_never_reach_the_database(backend):
 def test_a_broken_constraint_is_index_damage(backend):
     with backend.write():
         backend.insert("files", _file_row(1))
-    with pytest.raises(IndexDamaged, match="UNIQUE constraint failed"):
+    with pytest.raises(IndexDamaged, match="UNIQUE constraint failed|duplicate key value violates unique constraint"):
         with backend.write():
             backend.insert("files", _file_row(1))
 
