@@ -7,26 +7,6 @@ import os
 import numpy as np
 import pytest
 
-from surfinspect import parse_recipe
-
-
-def directional_recipe(rect, lay_deg, *, tolerance_deg=3.0, cell_px=32, extra=""):
-    x, y, w, h = rect
-    return parse_recipe(
-        f"""
-recipe: test-panel
-revision: 1
-regions:
-  - name: face
-    rect: [{x}, {y}, {w}, {h}]
-    lay_deg: {lay_deg}
-    tolerance_deg: {tolerance_deg}
-    cell_px: {cell_px}
-{extra}
-""",
-        "test.yaml",
-    )
-
 
 @pytest.fixture
 def rng():

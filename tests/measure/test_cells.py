@@ -58,7 +58,7 @@ def test_area_counts_measured_pixels_and_region_area_counts_the_region():
 @pytest.mark.parametrize("where", ["full frame", "40 px top-left corner", "strip on the top edge"])
 def test_engine_lay_at_the_border_is_unbiased(where):
     # the whole engine (robust lay, spectral combination) on noise-free gratings at the border
-    from conftest import directional_recipe
+    from recipe_helpers import directional_recipe
 
     from surfinspect import inspect_image
 

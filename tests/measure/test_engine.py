@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from conftest import directional_recipe
+from recipe_helpers import directional_recipe
 
 from surfinspect import InputError, inspect_image, parse_recipe, result_from_json, result_to_json
 from surfinspect.measure import synth

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import directional_recipe
+from recipe_helpers import directional_recipe
 
 from surfinspect import inspect_image, parse_recipe
 from surfinspect.measure import synth

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 import pytest
-from conftest import directional_recipe
+from recipe_helpers import directional_recipe
 
 from surfinspect import inspect_image
 from surfinspect.measure import synth
