@@ -88,6 +88,7 @@ class Archive:
     def __init__(self, root: str | os.PathLike, *, create: bool = False, backend: IndexBackend | None = None):
         where = parse_location(root)
         self.location = where.display  # for messages: the folder, or the database URL without a password
+        self.opened_as = where.text  # to open the same archive in another process (a URL keeps its password)
         self.root = where.root
         if where.is_database:
             self.objects = ObjectStore.at(where.objects_dir)

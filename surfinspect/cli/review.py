@@ -13,13 +13,18 @@ from .._lazy import module
 from ..errors import InputError
 from .console import Console
 
-archive = module("surfinspect.archive.store")
+location = module("surfinspect.archive.location")
 
 HELP = "serve the review station: look at batches and parts in a browser, record dispositions, sign off"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--archive", required=True, metavar="DIR", help="the archive folder")
+    parser.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
     parser.add_argument(
         "--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1: this computer only)"
     )
@@ -43,8 +48,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
         key_dir = Path(args.key_dir)
         if not key_dir.is_dir():
             raise InputError(f"--key-dir {args.key_dir}: not a folder (allowed: the folder that holds the key files)")
-    root = Path(args.archive)
-    with archive.Archive(root) as arc:  # refuses a damaged or foreign index before the server starts
+    root = args.archive
+    with location.open_archive(root) as arc:  # refuses a damaged or foreign index before the server starts
         batches = len(arc.batches())
     remote = not is_loopback(args.host)
     config = ReviewConfig(root, read_only=args.read_only, key_dir=key_dir, remote=remote)

@@ -27,6 +27,7 @@ from starlette.templating import Jinja2Templates
 
 from ..archive import signatures
 from ..archive import store as archive
+from ..archive.location import open_archive
 from ..errors import InputError
 from ..results import CAUTION
 from . import actions, media, pages
@@ -39,7 +40,7 @@ _DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
 @dataclass(frozen=True)
 class ReviewConfig:
-    archive_root: Path
+    archive_root: str | Path  # a folder or a PostgreSQL URL, as --archive takes it
     read_only: bool = False
     key_dir: Path | None = None
     remote: bool = False  # served on an address other than loopback
@@ -90,7 +91,7 @@ class _Views:
     # -- plumbing
 
     def _open(self) -> archive.Archive:
-        return archive.Archive(self.config.archive_root)
+        return open_archive(self.config.archive_root)
 
     def render(self, request: Request, name: str, context: dict, status: int = 200) -> Response:
         session = request.cookies.get(SESSION_COOKIE)

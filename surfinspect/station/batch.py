@@ -492,7 +492,7 @@ def _finish(
 
 
 def _render_report_file(archive_dir: str, batch_id: str, generated_at: str, out: str) -> None:
-    with archive_mod.Archive(archive_dir) as arc:
+    with open_archive(archive_dir) as arc:
         write_bytes_atomic(out, render_batch_report(arc, batch_id, generated_at=generated_at))
 
 
@@ -510,7 +510,7 @@ def _render_report_in_own_process(
     with tempfile.TemporaryDirectory(prefix="surfinspect-report-") as tmp:
         out = Path(tmp) / "report.pdf"
         with ProcessPoolExecutor(max_workers=1, mp_context=_pool_context()) as pool:
-            future = pool.submit(_render_report_file, str(arc.root), batch_id, generated_at, str(out))
+            future = pool.submit(_render_report_file, arc.opened_as, batch_id, generated_at, str(out))
             try:
                 future.result(timeout=timeout_s)
             except BrokenProcessPool:

@@ -125,6 +125,11 @@ def on_cluster(scheduler: str, recipe: Recipe, tasks, recorder) -> None:
     from .runner import output_stems
 
     names = dict(zip(recorder.paths, output_stems(list(recorder.paths))))
-    inspect_on_cluster(
-        scheduler, recipe, [(k, str(recorder.paths[k]), names[k]) for _, k in tasks], recorder.worker_output
-    )
+
+    def record(out: dict) -> None:  # the cluster sends the bytes themselves, not files on this station
+        if "error" in out:
+            recorder.error(out["part_key"], out["error"])
+        else:
+            recorder.record_result(out["part_key"], out["result_json"], out["overlay_png"])
+
+    inspect_on_cluster(scheduler, recipe, [(k, str(recorder.paths[k]), names[k]) for _, k in tasks], record)
