@@ -52,8 +52,9 @@ def run(args: argparse.Namespace, console: Console) -> int:
         written = folder.finish()
     counts = verdict_counts(o.result for o in all_outcomes if o.result is not None)
     code = run_exit_code(all_outcomes)
+    console.info("")  # a blank line before the summary (info escapes a newline inside a line)
     console.info(
-        f"\ndemo: {counts['accept']} accept, {counts['reject']} reject, {counts['review']} review; "
+        f"demo: {counts['accept']} accept, {counts['reject']} reject, {counts['review']} review; "
         f"wrote {len(written)} file(s) to {folder.path}/ (exit code {code}: the demo batch holds rejects and a blank on purpose)"
     )
     return code

@@ -134,6 +134,7 @@ def test_demo_runs_the_scenario(tmp_path: Path):
     p = run("demo", "--out", tmp_path / "demo", "--project", ROOT)
     assert p.returncode == 1, p.stderr  # the demo batch holds rejects on purpose
     assert "4 accept, 3 reject, 1 review" in p.stdout
+    assert "\\" not in p.stdout  # no escaped control character in our own messages
     verdicts = {f.stem: json.loads(f.read_text())["verdict"] for f in (tmp_path / "demo").rglob("*.json")}
     assert verdicts["lw-220-0003"] == "reject" and verdicts["lw-220-0005"] == "review"
     assert verdicts["cp-14-0001"] == "accept" and verdicts["cp-14-0003"] == "reject"
