@@ -212,9 +212,11 @@ class _Strips:
         """gx, gy (y up) of box rows r0:r1 in zero-padded buffers a whole number of cells wide."""
         x0, y0, w, _ = self.box
         ry0, ry1 = max(0, y0 + r0 - self.halo), min(self.image.shape[0], y0 + r1 + self.halo)
-        block = np.ascontiguousarray(self.image[ry0:ry1, self.cx0 : self.cx1], dtype=np.float32)
-        if self.background is not None:
-            block -= self.background.sample(ry0, ry1, self.cx0, self.cx1)
+        view = self.image[ry0:ry1, self.cx0 : self.cx1]
+        if self.background is None:
+            block = np.ascontiguousarray(view, dtype=np.float32)
+        else:  # a new array: a full-width view is the caller's image, and neighbouring strips share rows
+            block = np.subtract(view, self.background.sample(ry0, ry1, self.cx0, self.cx1), dtype=np.float32)
         top, left = y0 + r0 - ry0, x0 - self.cx0
         inner = (slice(top, top + (r1 - r0)), slice(left, left + w))
         gx = np.zeros((h_pad, self.w_pad), np.float32)

@@ -414,3 +414,17 @@ def test_uncertainty_covers_the_error_about_95_percent_of_the_time():
         ratios.append(region.uncertainty_deg)
     assert covered >= 34  # at least 85 % of 40
     assert np.mean(ratios) < 0.5  # and it is not uselessly wide
+
+
+def test_a_full_width_region_leaves_the_image_alone_and_measures_the_same_twice():
+    # A strip of a full-width region is a view of the image itself: removing the illumination
+    # background in place once changed the caller's pixels, and the rows two strips share twice
+    # (a false deviating band at the strip joint, different from run to run).
+    img = synth.brushed_panel((600, 320), 30.0, seed=1).astype(np.float32)
+    before = img.copy()
+    recipe = directional_recipe((0, 0, 320, 600), 30.0, cell_px=24)
+    first = inspect_image(img, recipe).regions[0]
+    np.testing.assert_array_equal(img, before)
+    second = inspect_image(img, recipe).regions[0]
+    assert first.lay_deg == second.lay_deg and first.patches == second.patches == ()
+    assert first.verdict is RegionVerdict.PASS
