@@ -44,6 +44,8 @@ def saturated_pixels(block: np.ndarray, level: float = 1.0, radius_px: int = 4) 
     (M, N) bool ndarray, or None when nothing is clipped.
     """
     threshold = np.float32(min(level, 1.0) - SATURATION_CODE_MARGIN)
+    if block.size == 0 or np.max(block) < threshold:  # one fast pass: nothing clipped (NaN goes on)
+        return None
     clipped = block >= threshold
     if not clipped.any():
         return None

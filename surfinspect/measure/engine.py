@@ -188,7 +188,8 @@ def region_masks(region: Region, frame: Frame, image_shape: tuple[int, int], rec
     def as_tuple(ring: np.ndarray):
         return tuple((float(x), float(y)) for x, y in ring)
 
-    return (xmin, ymin, w, h), mask.astype(bool), tuple(as_tuple(r) for r in outer), tuple(as_tuple(r) for r in holes)
+    # 0/1 bytes viewed as bool: no copy
+    return (xmin, ymin, w, h), mask.view(bool), tuple(as_tuple(r) for r in outer), tuple(as_tuple(r) for r in holes)
 
 
 def _patches_in_part_frame(result, frame: Frame, pixel_size_mm: float | None):
@@ -270,7 +271,7 @@ def inspect_image(
         )
 
     placed = [region_masks(r, frame, pixels.shape, recipe.path) for r in recipe.regions]
-    sigma_n = noise_sigma(pixels)
+    sigma_n = noise_sigma(pixels, threads=THREADS)
     results = [
         judge_region(region, _measure_region(pixels, region, where, frame, recipe, sigma_n))
         for region, where in zip(recipe.regions, placed)
@@ -301,9 +302,12 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     )
     keep = None
     masked = 0.0
+    region_px = measured_px = np.count_nonzero(mask)
     if grown is not None:
         keep = ~grown[y0 - gy0 : y0 - gy0 + h, x0 - gx0 : x0 - gx0 + w]
-        masked = float((mask & ~keep).sum() / max(mask.sum(), 1))
+        hidden = np.count_nonzero(mask & ~keep)
+        masked = float(hidden / max(region_px, 1))
+        measured_px = region_px - hidden
     cells = cell_sums(
         pixels,
         mask,
@@ -331,14 +335,14 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     cells = merge_edge_slivers(cells)
     spectral = tensor_se = None
     if region.lay is LayPattern.DIRECTIONAL:
-        spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask if keep is None else mask & keep, sigma_n)
+        spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask, keep, sigma_n, measured_px)
     centre_px = None
     if region.centre is not None:
         cx, cy = frame.to_image([region.centre])[0]
         centre_px = (float(cx), float(cy))
     return RegionMeasurement(
         cells=cells,
-        region_mask_area=float(mask.sum()),
+        region_mask_area=float(region_px),
         noise_energy=noise_gradient_energy(sigma_n, region.sigma_px),
         rotation_deg=frame.rotation_deg,
         centre_px=centre_px,
@@ -353,25 +357,27 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     )
 
 
-def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, sigma_n: float):
+def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask, keep, sigma_n: float, measured_px: int):
     """The spectral lay and the tensor angle's spectral standard error, from the region's central part.
 
     At most :data:`SPECTRAL_SIDE` px square, so the cost stays bounded; the standard error is scaled
-    from that part to the whole region (variance inversely proportional to the measured area).
+    from that part to the whole region's ``measured_px`` pixels (region pixels not masked; variance
+    inversely proportional to the measured area).
     """
     x0, y0, w, h = bbox
     side = SPECTRAL_SIDE
     r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
     r1, c1 = min(h, r0 + side), min(w, c0 + side)
-    crop = mask[r0:r1, c0:c1]
-    if crop.sum() < 64:
+    crop = mask[r0:r1, c0:c1] if keep is None else mask[r0:r1, c0:c1] & keep[r0:r1, c0:c1]
+    crop_px = np.count_nonzero(crop)
+    if crop_px < 64:
         return None, None
     block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]
     spectral = spectral_lay(block, crop, noise_sigma=sigma_n)
     if region.illumination_px > 0:
         block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
     se = tensor_angle_standard_error(block, crop, sigma=region.sigma_px)
-    return spectral, se * math.sqrt(float(crop.sum()) / max(float(mask.sum()), 1.0))
+    return spectral, se * math.sqrt(float(crop_px) / max(float(measured_px), 1.0))
 
 
 def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1024):
