@@ -155,19 +155,17 @@ def cell_sums(
     n_rows, n_cols = -(-h // cell_px), -(-w // cell_px)
     full = np.count_nonzero(mask) == mask.size
     strips = _Strips(image, mask, keep, (x0, y0, w, h), cell_px, sigma, interior_only, background_sigma, full)
-    strips.votes = votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, w)
+    strips.votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, w)
     jxx, jxy, jyy, area = (np.zeros((n_rows, n_cols)) for _ in range(4))
-    slots = np.zeros((2, n_rows * n_cols * votes.stride))  # raw vote slots, folded into bins at the end
+    hist = np.zeros((n_rows, n_cols, bins))
     from concurrent.futures import ThreadPoolExecutor
 
     # the vote counting (np.bincount) holds the GIL; the filters of the next strip run meanwhile
     with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        for cell_row0, n_strip, sums, (up, lo) in pool.map(strips, range(0, n_rows, strips.strip_cells)):
+        for cell_row0, n_strip, sums, strip_hist in pool.map(strips, range(0, n_rows, strips.strip_cells)):
             sl = slice(cell_row0, cell_row0 + n_strip)
             jxx[sl], jxy[sl], jyy[sl], area[sl] = sums
-            at = slice(cell_row0 * n_cols * votes.stride, (cell_row0 + n_strip) * n_cols * votes.stride)
-            slots[0, at], slots[1, at] = up, lo
-    hist = _fold_votes(slots[0], slots[1], bins, votes.stride).reshape(n_rows, n_cols, bins)
+            hist[sl] = strip_hist.reshape(n_strip, n_cols, bins)
     if full:  # whole cells, clipped at the box's edge
         region_area = np.outer(_span_counts(0, h, cell_px, n_rows), _span_counts(0, w, cell_px, n_cols))
     else:
@@ -305,8 +303,9 @@ def _measured_pixels(mask, keep, bbox, image_shape, border: int, full: bool):
         max(0, border - x0),
         min(w, cols_img - border - x0),
     )
-    full = full and (keep is None or np.count_nonzero(keep) == keep.size)
-    return (None if full else (mask if keep is None else mask & keep)), inner
+    if keep is None or np.count_nonzero(keep) == keep.size:
+        return (None if full else mask), inner
+    return (keep if full else mask & keep), inner
 
 
 def _span_counts(lo: int, hi: int, cell: int, n_cells: int) -> np.ndarray:
@@ -323,8 +322,8 @@ class _Votes:
         self.stride = 4 * bins + 2  # vote slots per cell, see count()
         self.col_slot = (np.arange(width, dtype=np.intp) // cell_px * self.stride)[::step]
 
-    def count(self, gx: np.ndarray, gy: np.ndarray, n_strip_cells: int) -> tuple[np.ndarray, np.ndarray]:
-        """Vote slots of the strip's cells, ``stride`` per cell: (upper-bin shares, lower-bin shares)."""
+    def count(self, gx: np.ndarray, gy: np.ndarray, n_strip_cells: int) -> np.ndarray:
+        """Histograms of the strip's cells, (cells, bins)."""
         bins, stride, step = self.bins, self.stride, self.step
         gx = np.ascontiguousarray(gx[::step, ::step])
         gy = np.ascontiguousarray(gy[::step, ::step])
@@ -347,7 +346,7 @@ class _Votes:
         size = n_strip_cells * self.n_cols * stride
         up = np.bincount(upper.ravel(), weights=to_upper.ravel(), minlength=size)
         lo = np.bincount(upper.ravel(), weights=magnitude.ravel(), minlength=size)
-        return up, lo
+        return _fold_votes(up, lo, bins, stride)
 
 
 def _block_sum(a: np.ndarray, cell: int, n_cols: int, dtype=np.float32) -> np.ndarray:
@@ -368,11 +367,18 @@ def _block_sum(a: np.ndarray, cell: int, n_cols: int, dtype=np.float32) -> np.nd
 
 
 def _fold_votes(upper: np.ndarray, lower: np.ndarray, bins: int, stride: int) -> np.ndarray:
-    """Fold per-cell vote slots k (upper bin k, lower bin k - 1) into ``bins`` bins mod 180 deg."""
+    """Fold per-cell vote slots k (upper bin k, lower bin k - 1) into ``bins`` bins mod 180 deg.
+
+    Each cell's slots are laid out in whole turns of ``bins`` (upper slot k at position k, lower
+    slot k at ``bins - 1 + k``, so that position modulo ``bins`` is the bin) and the turns summed
+    in order: every bin adds its upper slots, then its lower ones, by increasing k.
+    """
     up = upper.reshape(-1, stride)
     lo = lower.reshape(-1, stride)
-    k = np.arange(stride)
-    hist = np.zeros((up.shape[0], bins))
-    for slots, shift in ((up, 0), (lo, -1)):
-        np.add.at(hist.T, (k + shift) % bins, slots.T)
-    return hist
+    n_up = -(-stride // bins)
+    n_lo = -(-(stride + bins - 1) // bins)
+    turns = np.zeros((up.shape[0], n_up + n_lo, bins))
+    flat = turns.reshape(up.shape[0], -1)
+    flat[:, :stride] = up
+    flat[:, n_up * bins + bins - 1 : n_up * bins + bins - 1 + stride] = lo
+    return turns.sum(axis=1)

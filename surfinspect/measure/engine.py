@@ -304,8 +304,9 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     masked = 0.0
     region_px = measured_px = np.count_nonzero(mask)
     if grown is not None:
-        keep = ~grown[y0 - gy0 : y0 - gy0 + h, x0 - gx0 : x0 - gx0 + w]
-        hidden = np.count_nonzero(mask & ~keep)
+        grown = grown[y0 - gy0 : y0 - gy0 + h, x0 - gx0 : x0 - gx0 + w]
+        keep = ~grown
+        hidden = np.count_nonzero(grown if region_px == mask.size else mask & grown)
         masked = float(hidden / max(region_px, 1))
         measured_px = region_px - hidden
     cells = cell_sums(
@@ -385,7 +386,10 @@ def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1
     x0, y0, w, h = bbox
     r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
     r1, c1 = min(h, r0 + side), min(w, c0 + side)
-    return block_grid(pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1], mask[r0:r1, c0:c1], origin=(x0 + c0, y0 + r0))
+    crop = mask[r0:r1, c0:c1]
+    if np.count_nonzero(crop) == crop.size:
+        crop = None  # the same sums, without weighting every step by one
+    return block_grid(pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1], crop, origin=(x0 + c0, y0 + r0))
 
 
 def _bit_depth(image: np.ndarray) -> int:

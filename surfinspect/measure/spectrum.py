@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy import fft, optimize
@@ -95,12 +96,21 @@ def finest_period(power, fx, fy, noise: float, *, step: float = 1.0 / 64.0) -> f
     period. A blurred image loses its fine detail first (defocus and motion blur are low-pass
     filters), so this is the sharpness figure; inf when no ring stands out.
     """
-    f = np.hypot(fx, fy)
+    ok, ring, counts = _rings(np.hypot(fx, fy), step)
+    return _finest(power, ok, ring, counts, noise, step)
+
+
+def _rings(f: np.ndarray, step: float):
+    """Pixels within the rings of ``step`` cycles per pixel up to 0.5, their ring index, and the pixels per ring."""
     ring = np.floor(f / step).astype(np.intp)
     n = int(0.5 / step) + 1
     ok = ring < n
-    sums = np.bincount(ring[ok], power[ok], n)
-    counts = np.bincount(ring[ok], None, n)
+    return ok, ring[ok], np.bincount(ring[ok], None, n)
+
+
+def _finest(power, ok, ring, counts, noise: float, step: float) -> float:
+    n = counts.size
+    sums = np.bincount(ring, power[ok], n)
     mean = sums / np.maximum(counts, 1)
     above = np.nonzero((mean >= 2.0 * max(noise, 1e-300)) & (np.arange(n) >= 1))[0]
     return float(1.0 / ((above.max() + 1) * step)) if above.size else float("inf")
@@ -112,16 +122,37 @@ def _window(shape: tuple[int, int], mask: np.ndarray | None) -> np.ndarray:
 
 
 def _periodogram(block: np.ndarray, w: np.ndarray, pad: int):
-    """|FFT|^2 of the windowed, mean-removed block, zero-padded ``pad`` times; frequencies (x, y up)."""
+    """|FFT|^2 of the windowed, mean-removed block, zero-padded ``pad`` times; the transform's (M, N)."""
     a = np.asarray(block, dtype=np.float64)
     mean = np.sum(w * a) / np.sum(w)
     rows, cols = a.shape
     shape = (pad * rows, pad * cols)
     spec = fft.rfft2(w * (a - mean), s=shape, workers=-1)
     power = spec.real**2 + spec.imag**2
-    fx = np.broadcast_to(fft.rfftfreq(shape[1])[None, :], power.shape)
-    fy = np.broadcast_to(-fft.fftfreq(shape[0])[:, None], power.shape)  # rows grow downward
-    return power, fx, fy, mean
+    return power, shape, mean
+
+
+@lru_cache(maxsize=8)
+def _geometry(shape: tuple[int, int], bins: int, band: tuple[float, float]):
+    """What depends only on the transform's size, computed once per size: frequencies, band, votes, rings.
+
+    The periodogram of a region's central part has the same size on every image, so this is shared.
+    """
+    fx = np.broadcast_to(fft.rfftfreq(shape[1])[None, :], (shape[0], shape[1] // 2 + 1))
+    fy = np.broadcast_to(-fft.fftfreq(shape[0])[:, None], fx.shape)  # rows grow downward
+    f = np.hypot(fx, fy)
+    sel = (f >= band[0]) & (f <= band[1])
+    # the rfft half-plane holds each direction once; its x = 0 column holds both signs of fy
+    lay = np.mod(np.degrees(np.arctan2(fy[sel], fx[sel])) + 90.0, 180.0)
+    weight = np.where(fx[sel] > 0, 2.0, 1.0)  # the mirrored half-plane, not stored by rfft
+    pos = lay / (180.0 / bins) - 0.5
+    lo = np.floor(pos).astype(np.intp)
+    frac = pos - lo
+    votes = (sel, weight, lo % bins, (lo + 1) % bins, 1.0 - frac, frac)
+    out = dict(fx=fx, fy=fy, band=sel, votes=votes, rings=_rings(f, 1.0 / 64.0))
+    for v in [fx, fy, sel, weight, *votes[2:], *out["rings"]]:
+        v.flags.writeable = False
+    return out
 
 
 def angular_power_spectrum(
@@ -163,23 +194,15 @@ def angular_power_spectrum(
        IEEE Trans. Audio and Electroacoustics 15(2), 70-73. :doi:`10.1109/TAU.1967.1161901`
     """
     w = _window(block.shape, mask)
-    power, fx, fy, _ = _periodogram(block, w, pad)
-    return _angular(power, fx, fy, noise_sigma**2 * float(np.sum(w * w)), bins, band)
+    power, shape, _ = _periodogram(block, w, pad)
+    geometry = _geometry(shape, bins, tuple(band))
+    return _angular(power, geometry, noise_sigma**2 * float(np.sum(w * w)), bins, band)
 
 
-def _angular(power, fx, fy, noise: float, bins: int, band: tuple[float, float]) -> AngularSpectrum:
-    f = np.hypot(fx, fy)
-    sel = (f >= band[0]) & (f <= band[1])
-    # the rfft half-plane holds each direction once; its x = 0 column holds both signs of fy
-    lay = np.mod(np.degrees(np.arctan2(fy[sel], fx[sel])) + 90.0, 180.0)
+def _angular(power, geometry: dict, noise: float, bins: int, band: tuple[float, float]) -> AngularSpectrum:
+    sel, weight, lower, upper, to_lower, to_upper = geometry["votes"]
     p = np.maximum(power[sel] - noise, 0.0)
-    weight = np.where(fx[sel] > 0, 2.0, 1.0)  # the mirrored half-plane, not stored by rfft
-    pos = lay / (180.0 / bins) - 0.5
-    lo = np.floor(pos).astype(np.intp)
-    frac = pos - lo
-    hist = np.bincount(lo % bins, weight * p * (1.0 - frac), bins) + np.bincount(
-        (lo + 1) % bins, weight * p * frac, bins
-    )
+    hist = np.bincount(lower, weight * p * to_lower, bins) + np.bincount(upper, weight * p * to_upper, bins)
     return AngularSpectrum((np.arange(bins) + 0.5) * 180.0 / bins, hist, noise, band)
 
 
@@ -261,16 +284,18 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
     """
     a = np.asarray(block, dtype=np.float64)
     w = _window(a.shape, mask)
-    power, fx, fy, mean = _periodogram(a, w, pad)
-    spectrum = _angular(power, fx, fy, noise_sigma**2 * float(np.sum(w * w)), 180, (F_MIN, 0.5))
-    f = np.hypot(fx, fy)
-    band = (f >= F_MIN) & (f <= 0.5)
+    power, shape, mean = _periodogram(a, w, pad)
+    geometry = _geometry(shape, 180, (F_MIN, 0.5))
+    fx, fy, band = geometry["fx"], geometry["fy"], geometry["band"]
+    spectrum = _angular(power, geometry, noise_sigma**2 * float(np.sum(w * w)), 180, (F_MIN, 0.5))
     signal = np.maximum(power - spectrum.noise_power, 0.0) * band
     peaks = spectral_peaks(spectrum, 1)
+
+    def finest() -> float:
+        return _finest(power, *geometry["rings"], spectrum.noise_power, 1.0 / 64.0)
+
     if not peaks:
-        return SpectralLay(
-            float("nan"), "lobe", 0.0, None, spectrum, finest_period(power, fx, fy, spectrum.noise_power)
-        )
+        return SpectralLay(float("nan"), "lobe", 0.0, None, spectrum, finest())
     k = np.unravel_index(int(np.argmax(signal)), signal.shape)
     f0 = np.array([fx[k], fy[k]])
     # a line: its main lobe (3 x 3 padded bins) holds most of the band's power above what the noise
@@ -292,8 +317,7 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
     lobe = 2.0 * sum(float(signal[r, c]) for r, c in cells)
     rest = float(np.sum(count * signal)) - float(np.sum(count * band)) * spectrum.noise_power / math.e
     if lobe < LINE_SHARE * max(rest, lobe, 1e-300):
-        finest = finest_period(power, fx, fy, spectrum.noise_power)
-        return SpectralLay(peaks[0].lay_deg, "lobe", float(np.hypot(*f0)), None, spectrum, finest)
+        return SpectralLay(peaks[0].lay_deg, "lobe", float(np.hypot(*f0)), None, spectrum, finest())
     rows, cols = a.shape
     wa = w * (a - mean)
     xs = np.arange(cols, dtype=np.float64)
@@ -314,8 +338,7 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
             _orientation_crb(mask if mask is not None else np.ones(a.shape, bool), lay, amplitude / noise_sigma, k_rad)
         )
         se *= math.sqrt(HANN_VARIANCE_FACTOR)
-    finest = finest_period(power, fx, fy, spectrum.noise_power)
-    return SpectralLay(lay, "line", float(math.hypot(fxo, fyo)), se, spectrum, finest)
+    return SpectralLay(lay, "line", float(math.hypot(fxo, fyo)), se, spectrum, finest())
 
 
 def _orientation_crb(mask: np.ndarray, lay_deg: float, snr: float, k_rad: float) -> float:
