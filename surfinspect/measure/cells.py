@@ -261,7 +261,7 @@ class _Strips:
             area = _block_sum(m, cell_px, self.n_cols)
             del m
         n = self.n_cols
-        sums = (_block_sum(gx * gx, cell_px, n), _block_sum(gx * gy, cell_px, n), _block_sum(gy * gy, cell_px, n), area)
+        sums = tuple(_block_sum(p, cell_px, n, times=q) for p, q in ((gx, gx), (gx, gy), (gy, gy))) + (area,)
         return cell_row0, n_strip_cells, sums, self.votes.count(gx, gy, n_strip_cells)
 
 
@@ -321,6 +321,17 @@ class _Votes:
         self.bins, self.offset, self.step, self.cell_px, self.n_cols = bins, offset, step, cell_px, n_cols
         self.stride = 4 * bins + 2  # vote slots per cell, see count()
         self.col_slot = (np.arange(width, dtype=np.intp) // cell_px * self.stride)[::step]
+        self._first_slots: dict[int, np.ndarray] = {}
+
+    def _slots(self, rows: int) -> np.ndarray:
+        """(rows, columns) index of each voting pixel's cell's first slot; the same for every full strip."""
+        out = self._first_slots.get(rows)
+        if out is None:
+            row_slot = (
+                np.arange(0, self.step * rows, self.step, dtype=np.intp) // self.cell_px * (self.n_cols * self.stride)
+            )
+            out = self._first_slots[rows] = row_slot[:, None] + self.col_slot[None, :]
+        return out
 
     def count(self, gx: np.ndarray, gy: np.ndarray, n_strip_cells: int) -> np.ndarray:
         """Histograms of the strip's cells, (cells, bins)."""
@@ -336,11 +347,10 @@ class _Votes:
         angle += np.float32(90.0 - self.offset)
         angle *= np.float32(bins / 180.0)
         angle += np.float32(bins + 0.5)
-        upper = angle.astype(np.intp)  # floor, the values are positive
-        angle -= upper  # share of the vote that goes to the upper bin
-        rows = step * gx.shape[0]
-        upper += (np.arange(0, rows, step, dtype=np.intp) // self.cell_px * (self.n_cols * stride))[:, None]
-        upper += self.col_slot[None, :]
+        whole = np.floor(angle)
+        upper = whole.astype(np.intp)
+        angle -= whole  # share of the vote that goes to the upper bin (exact: t < 256 in float32)
+        upper += self._slots(gx.shape[0])
         to_upper = magnitude * angle
         magnitude -= to_upper
         size = n_strip_cells * self.n_cols * stride
@@ -349,20 +359,28 @@ class _Votes:
         return _fold_votes(up, lo, bins, stride)
 
 
-def _block_sum(a: np.ndarray, cell: int, n_cols: int, dtype=np.float32) -> np.ndarray:
-    """Sums over ``cell`` x ``cell`` blocks of ``a`` (any strides), the last row and column of blocks
-    clipped at its edge; float64 out.
+def _block_sum(a: np.ndarray, cell: int, n_cols: int, dtype=np.float32, times: np.ndarray | None = None) -> np.ndarray:
+    """Sums over ``cell`` x ``cell`` blocks of ``a`` (or of ``a * times``), any strides; float64 out.
 
-    Rows are summed first (contiguous rows: the fast order), then the row sums, zero-padded to
-    ``n_cols`` whole blocks, along the columns.
+    The last row and column of blocks are clipped at the array's edge. Rows are summed first
+    (contiguous rows: the fast order; a product is summed without storing it, by ``einsum``), then
+    the row sums, zero-padded to ``n_cols`` whole blocks, along the columns.
     """
     r, w = a.shape
     n_r, whole = r // cell, (r // cell) * cell
     rows = np.zeros((-(-r // cell), n_cols * cell), dtype)
-    if n_r:
-        rows[:n_r, :w] = a[:whole].reshape(n_r, cell, w).sum(axis=1, dtype=dtype)
-    if whole < r:
-        rows[n_r, :w] = a[whole:].sum(axis=0, dtype=dtype)
+    if times is None:
+        if n_r:
+            rows[:n_r, :w] = a[:whole].reshape(n_r, cell, w).sum(axis=1, dtype=dtype)
+        if whole < r:
+            rows[n_r, :w] = a[whole:].sum(axis=0, dtype=dtype)
+    else:
+        if n_r:
+            rows[:n_r, :w] = np.einsum(
+                "ijk,ijk->ik", a[:whole].reshape(n_r, cell, w), times[:whole].reshape(n_r, cell, w)
+            )
+        if whole < r:
+            rows[n_r, :w] = np.einsum("jk,jk->k", a[whole:], times[whole:])
     return rows.reshape(rows.shape[0], n_cols, cell).sum(axis=2, dtype=dtype).astype(np.float64)
 
 
