@@ -387,16 +387,17 @@ def _block_sum(a: np.ndarray, cell: int, n_cols: int, dtype=np.float32, times: n
 def _fold_votes(upper: np.ndarray, lower: np.ndarray, bins: int, stride: int) -> np.ndarray:
     """Fold per-cell vote slots k (upper bin k, lower bin k - 1) into ``bins`` bins mod 180 deg.
 
-    Each cell's slots are laid out in whole turns of ``bins`` (upper slot k at position k, lower
-    slot k at ``bins - 1 + k``, so that position modulo ``bins`` is the bin) and the turns summed
-    in order: every bin adds its upper slots, then its lower ones, by increasing k.
+    Whole turns of ``bins`` slots are added in order: every bin adds its upper slots, then its
+    lower ones, by increasing k.
     """
     up = upper.reshape(-1, stride)
     lo = lower.reshape(-1, stride)
-    n_up = -(-stride // bins)
-    n_lo = -(-(stride + bins - 1) // bins)
-    turns = np.zeros((up.shape[0], n_up + n_lo, bins))
-    flat = turns.reshape(up.shape[0], -1)
-    flat[:, :stride] = up
-    flat[:, n_up * bins + bins - 1 : n_up * bins + bins - 1 + stride] = lo
-    return turns.sum(axis=1)
+    hist = up[:, :bins].copy()
+    for k in range(bins, stride, bins):  # upper slot k goes to bin k mod bins
+        n = min(bins, stride - k)
+        hist[:, :n] += up[:, k : k + n]
+    hist[:, bins - 1] += lo[:, 0]  # lower slot k goes to bin (k - 1) mod bins
+    for k in range(1, stride, bins):
+        n = min(bins, stride - k)
+        hist[:, :n] += lo[:, k : k + n]
+    return hist
