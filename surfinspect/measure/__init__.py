@@ -32,7 +32,7 @@ __getattr__, __dir__, __all__ = attach(
             "direction_test",
             "judge_region",
         ),
-        "cells": ("merge_edge_slivers",),
+        "cells": ("merge_edge_slivers", "merge_outline_slivers"),
         "robust": ("RobustLay", "robust_lay"),
         "spectrum": (
             "AngularSpectrum",

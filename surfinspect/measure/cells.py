@@ -9,7 +9,7 @@ import numpy as np
 
 from .derivatives import gaussian_derivative_kernels
 
-__all__ = ["STRIP_ROWS", "CellSums", "cell_sums", "merge_edge_slivers"]
+__all__ = ["STRIP_ROWS", "SLIVER_SHARE", "CellSums", "cell_sums", "merge_edge_slivers", "merge_outline_slivers"]
 
 #: Rows per strip: a multiple of the cell size near this many rows is used. Small enough that a
 #: strip's arrays stay in a core's cache (on 12 MP, 128 rows took half the time of 512).
@@ -43,6 +43,9 @@ class CellSums:
     area: np.ndarray
     hist: np.ndarray
     region_area: np.ndarray | None = None  # region pixels per cell, measured or not (None: same as area)
+    #: where a sliver's pixels went (:func:`merge_outline_slivers`): the flat index of the cell now
+    #: holding them, -1 for a cell that holds its own; None when nothing was merged
+    merged_into: np.ndarray | None = None
 
     @property
     def bins(self) -> int:
@@ -286,6 +289,69 @@ def merge_edge_slivers(sums: CellSums) -> CellSums:
             merged[-1] += a[-1]
             arrays[k] = np.moveaxis(merged, 0, axis)
     return CellSums(origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, **arrays)
+
+
+#: A cell holding fewer region pixels than this share of a full cell is merged into a neighbour.
+SLIVER_SHARE = 0.5
+
+_SIDES = ((-1, 0), (1, 0), (0, -1), (0, 1))
+_CORNERS = ((-1, -1), (-1, 1), (1, -1), (1, 1))
+
+
+def merge_outline_slivers(sums: CellSums) -> CellSums:
+    """Merge every cell holding less than half a cell of region pixels into a neighbouring cell.
+
+    A circle, an annulus, a polygon or a turned rectangle cuts the square grid at its outline and
+    leaves slivers too small for a local lay of their own. Smallest first, each sliver goes to the
+    neighbour sharing a side with it that holds the most region pixels (a corner neighbour when no
+    side neighbour holds any), sums and histogram included; a sliver that received others passes
+    them on. So every region pixel belongs to a checked cell of at least half a cell (but in a
+    region smaller than that altogether). ``merged_into`` records where each sliver went; the
+    sliver itself is left empty.
+    """
+    if sums.region_area is None:
+        return sums
+    arrays = {k: getattr(sums, k).copy() for k in ("jxx", "jxy", "jyy", "area", "hist", "region_area")}
+    pixels = arrays["region_area"]
+    rows, cols = pixels.shape
+    half = SLIVER_SHARE * sums.cell_px**2
+    flat = {k: a.reshape(rows * cols, -1) for k, a in arrays.items()}
+    held = pixels.ravel()  # a view: follows the merges
+    parent = np.full(rows * cols, -1, dtype=np.intp)
+    for i in sorted(np.flatnonzero((pixels > 0) & (pixels < half)), key=lambda k: (held[k], k)):
+        if not 0 < held[i] < half:  # grew by merges meanwhile
+            continue
+        r, c = divmod(int(i), cols)
+        best = -1
+        for sides in (_SIDES, _CORNERS):
+            for dr, dc in sides:
+                if 0 <= r + dr < rows and 0 <= c + dc < cols:
+                    j = (r + dr) * cols + c + dc
+                    if held[j] > 0 and (best < 0 or held[j] > held[best]):
+                        best = j
+            if best >= 0:
+                break
+        if best < 0:
+            continue
+        for a in flat.values():
+            a[best] += a[i]
+            a[i] = 0
+        parent[i] = best
+    if not (parent >= 0).any():
+        return sums
+    merged_into = parent.copy()
+    for i in np.flatnonzero(parent >= 0):  # follow each chain to the cell that holds the pixels now
+        j = parent[i]
+        while parent[j] >= 0:
+            j = parent[j]
+        merged_into[i] = j
+    return CellSums(
+        origin_px=sums.origin_px,
+        cell_px=sums.cell_px,
+        shape_px=sums.shape_px,
+        merged_into=merged_into.reshape(rows, cols),
+        **arrays,
+    )
 
 
 def _measured_pixels(mask, keep, bbox, image_shape, border: int, full: bool):

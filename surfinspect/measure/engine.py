@@ -27,7 +27,7 @@ from ..results import (
     RecipeInfo,
     part_verdict,
 )
-from .cells import cell_sums, merge_edge_slivers
+from .cells import cell_sums, merge_edge_slivers, merge_outline_slivers
 from .conditions import block_grid, illumination_background, saturated_pixels
 from .datum import DatumError, find_part_frame
 from .derivatives import gaussian_derivative_kernels
@@ -333,7 +333,7 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
             keep=keep,
             background_sigma=region.illumination_px,
         )
-    cells = merge_edge_slivers(cells)
+    cells = merge_outline_slivers(merge_edge_slivers(cells))
     spectral = tensor_se = None
     if region.lay is LayPattern.DIRECTIONAL:
         spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask, keep, sigma_n, measured_px)

@@ -64,7 +64,8 @@ TEXTURE_ALPHA = 1e-3
 TEXTURE_MIN_COHERENCE = 0.05
 
 #: A cell takes part in the local check when at least this share of a full cell is measured
-#: (a narrower sliver at the grid's edge is merged into its neighbour first, see ``_merge_slivers``).
+#: (a sliver of less than half a cell is merged into a neighbour first: ``cells.merge_edge_slivers`` at the box's
+#: edges, ``cells.merge_outline_slivers`` at an outline).
 CELL_MIN_COVER = 0.25
 
 
@@ -118,7 +119,8 @@ def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray, 
     region's lay (directional lay). It is taken off each patch's sum first, so that a thin scratch
     in cells of grain gets the scratch's own direction, not a mixture.
     """
-    n, labels = cv2.connectedComponents(deviating.astype(np.uint8), connectivity=8)
+    merged = _merged(m.cells)
+    n, labels = cv2.connectedComponents(_spread(deviating, m.cells).astype(np.uint8), connectivity=8)
     boxes = m.cells.cell_boxes()
     area_of = m.cells.region_area if m.cells.region_area is not None else m.cells.area
     out = []
@@ -133,7 +135,7 @@ def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray, 
             t = t - float(m.cells.area[sel].sum()) * np.asarray(grain)
         lay_img, _ = tensor_lay(*t)
         patch_lay = (lay_img - m.rotation_deg) % 180.0
-        exp_mean, _ = axial_mean(expected[sel])
+        exp_mean, _ = axial_mean(expected[sel & ~merged])
         mm = m.pixel_size_mm
         length = _extent_along(b, math.radians(lay_img))
         out.append(
@@ -146,11 +148,26 @@ def _patches(deviating: np.ndarray, m: RegionMeasurement, expected: np.ndarray, 
                 bbox_mm=None if mm is None else ((x1 - x0) * mm, (y1 - y0) * mm),
                 area_mm2=None if mm is None else area * mm * mm,
                 length_px=length,
-                cells=int(sel.sum()),
+                cells=int((sel & ~merged).sum()),
             )
         )
     out.sort(key=lambda p: -p.area_fraction)
     return tuple(out)
+
+
+def _merged(cells: CellSums) -> np.ndarray:
+    """Cells whose pixels were merged into a neighbour (slivers at an outline)."""
+    return np.zeros(cells.area.shape, bool) if cells.merged_into is None else cells.merged_into >= 0
+
+
+def _spread(values: np.ndarray, cells: CellSums) -> np.ndarray:
+    """``values`` per cell, each merged sliver given the value of the cell that holds its pixels."""
+    if cells.merged_into is None:
+        return values
+    out = values.copy()
+    where = cells.merged_into >= 0
+    out[where] = values.reshape(-1)[cells.merged_into[where]]
+    return out
 
 
 def _extent_along(boxes: np.ndarray, angle_rad: float) -> float:
@@ -369,7 +386,9 @@ def _no_texture(region: Region, m: RegionMeasurement, base: dict, extra: dict, w
         patches=(),
         verdict=RegionVerdict.NO_TEXTURE,
         reasons=(why,),
-        cells=CellGrid(m.cells.origin_px, m.cells.cell_px, nan, c.coherence, nan, np.zeros(nan.shape, bool)),
+        cells=CellGrid(
+            m.cells.origin_px, m.cells.cell_px, nan, _spread(c.coherence, m.cells), nan, np.zeros(nan.shape, bool)
+        ),
         extra=extra,
     )
 
@@ -494,13 +513,13 @@ def _result(region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdi
         patches=patches,
         verdict=verdict,
         reasons=tuple(reasons),
-        cells=CellGrid(
+        cells=CellGrid(  # a merged sliver shows the cell that holds its pixels
             origin_px=sums.origin_px,
             cell_px=sums.cell_px,
-            lay_deg=np.where(c.textured, c.lay, np.nan),
-            coherence=np.where(c.covered, c.coherence, np.nan),
-            expected_deg=np.where(c.covered, expected, np.nan),
-            deviating=v.deviating,
+            lay_deg=_spread(np.where(c.textured, c.lay, np.nan), sums),
+            coherence=_spread(np.where(c.covered, c.coherence, np.nan), sums),
+            expected_deg=_spread(np.where(c.covered, expected, np.nan), sums),
+            deviating=_spread(v.deviating, sums),
         ),
         extra=v.extra,
     )

@@ -11,7 +11,9 @@ from recipe_helpers import directional_recipe
 
 from surfinspect import inspect_image, parse_recipe
 from surfinspect.measure import synth
-from surfinspect.measure.cells import cell_sums, merge_edge_slivers
+from surfinspect.measure.cells import cell_sums, merge_edge_slivers, merge_outline_slivers
+from surfinspect.measure.engine import frame_for, region_masks
+from surfinspect.measure.judge import CELL_MIN_COVER
 from surfinspect.recipe import REGION_DEFAULTS
 from surfinspect.results import RegionVerdict
 
@@ -76,3 +78,34 @@ def test_unmeasurable_cells_are_not_deviating_and_too_many_send_the_region_to_re
     assert region.verdict is RegionVerdict.REVIEW
     assert "could not be measured" in region.reasons[0]
     assert 0.35 < region.extra["unmeasured_fraction"] < 0.55
+
+
+@pytest.mark.parametrize("shape", ["circle: [224, 224, 170]", "annulus: [224, 224, 80, 170]"])
+def test_slivers_at_a_curved_outline_are_merged_so_every_pixel_is_in_a_checked_cell(shape):
+    # Analytic truth: the region's own mask (region_masks) and a 48 px re-brushed patch at lay + 90
+    # centred on the outer outline at 60 deg, half of it inside the region (synth.brushed_panel)
+    lay, cell = 30.0, 24
+    x, y = int(224 + 170 * np.cos(np.radians(60))) - 24, int(224 - 170 * np.sin(np.radians(60))) - 24
+    img = synth.brushed_panel(SHAPE, lay, seed=3, shading=0.0, patch_rect=(x, y, 48, 48), patch_lay_deg=lay + 90.0)
+    recipe = parse_recipe(f"recipe: t\nrevision: 1\nregions:\n  - name: r\n    {shape}\n    lay_deg: {lay}\n")
+    frame, _ = frame_for(recipe, img)
+    bbox, mask, _, _ = region_masks(recipe.regions[0], frame, img.shape)
+    sums = merge_edge_slivers(cell_sums(img, mask, bbox, cell_px=cell))
+    assert ((sums.region_area > 0) & (sums.region_area < cell * cell / 2)).sum() > 10  # the outline leaves slivers
+    merged = merge_outline_slivers(sums)
+    # no pixel and no energy lost; every cell left holds at least half a cell of the region
+    assert merged.region_area.sum() == mask.sum() and merged.jxx.sum() == pytest.approx(sums.jxx.sum())
+    held = merged.region_area[merged.region_area > 0]
+    assert held.min() >= cell * cell / 2 and (merged.area[merged.region_area > 0] >= CELL_MIN_COVER * cell**2).all()
+    # every region pixel's cell is such a cell, or was merged into one next to it
+    n_rows, n_cols = merged.area.shape
+    rows, cols = np.nonzero(mask)  # the last row and column of cells hold the box's edge (merge_edge_slivers)
+    flat = np.minimum(rows // cell, n_rows - 1) * n_cols + np.minimum(cols // cell, n_cols - 1)
+    holder = np.where(merged.merged_into.ravel()[flat] >= 0, merged.merged_into.ravel()[flat], flat)
+    assert (merged.region_area.ravel()[holder] >= cell * cell / 2).all()
+    assert np.abs(holder // n_cols - flat // n_cols).max() <= 2 and np.abs(holder % n_cols - flat % n_cols).max() <= 2
+    # the engine checks them all: every cell with region pixels has a coherence, and the rim patch is found
+    region = inspect_image(img, recipe).regions[0]
+    assert np.isfinite(region.cells.coherence[sums.region_area > 0]).all()
+    assert any(p.bbox_px[0] <= x + 24 <= p.bbox_px[0] + p.bbox_px[2] for p in region.patches), region.patches
+    assert any(p.bbox_px[1] <= y + 24 <= p.bbox_px[1] + p.bbox_px[3] for p in region.patches), region.patches
