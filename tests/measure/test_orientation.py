@@ -124,17 +124,15 @@ def test_cell_histogram_linear_votes_match_direct_sum():
     np.testing.assert_allclose(cs.area, expected_area)
 
 
-def test_strips_join_seamlessly():
+def test_strips_join_seamlessly(monkeypatch):
     # Memory is bounded by working in strips; the result must not depend on the strip height.
+    from surfinspect.measure import cells
+
     img = synth.brushed_panel((300, 200), 71.0, seed=6)
     mask = np.ones((300, 200), bool)
-    a = o.cell_sums(img, mask, (0, 0, 200, 300), cell_px=20)
-    old = o.STRIP_ROWS
-    try:
-        o.STRIP_ROWS = 40
-        b = o.cell_sums(img, mask, (0, 0, 200, 300), cell_px=20)
-    finally:
-        o.STRIP_ROWS = old
+    a = o.cell_sums(img, mask, (0, 0, 200, 300), cell_px=20, background_sigma=12.0)
+    monkeypatch.setattr(cells, "STRIP_ROWS", 40)  # the module that cuts the strips reads it
+    b = o.cell_sums(img, mask, (0, 0, 200, 300), cell_px=20, background_sigma=12.0, threads=2)
     np.testing.assert_allclose(a.jxx, b.jxx, rtol=1e-5)
     np.testing.assert_allclose(a.hist, b.hist, rtol=1e-5, atol=1e-9)
 
