@@ -49,7 +49,14 @@ def best_of(n: int, fn) -> float:
     return best
 
 
-def speed() -> None:
+def timed(fn) -> float:
+    t = time.perf_counter()
+    fn()
+    return time.perf_counter() - t
+
+
+def speed(runs: int = 7) -> None:
+    import cv2
     from skimage.feature import hog
 
     from surfinspect import inspect_image, parse_recipe
@@ -57,21 +64,28 @@ def speed() -> None:
     rows, cols = 3000, 4000
     img = brushed(rows, cols)
     recipe = parse_recipe(RECIPE.format(w=cols, h=rows))
+    img32 = np.ascontiguousarray(img, dtype=np.float32)
     inspect_image(img, recipe)  # warm-up (imports, thread pools)
-    t_ours = best_of(3, lambda: inspect_image(img, recipe))
+    # on a shared machine the load changes from second to second: each inspect_image is paired with
+    # the faster of the blurs just before and just after it, and the ratios' median is reported
+    ours, ratios = [], []
+    for _ in range(runs):
+        before = timed(lambda: cv2.GaussianBlur(img32, (0, 0), 1.0))
+        ours.append(timed(lambda: inspect_image(img, recipe)))
+        after = timed(lambda: cv2.GaussianBlur(img32, (0, 0), 1.0))
+        ratios.append(ours[-1] / min(before, after))
+    t_ours = min(ours)
     t_hog = best_of(
         2, lambda: hog(img, orientations=9, pixels_per_cell=(16, 16), cells_per_block=(1, 1), feature_vector=False)
     )
-    print(f"image                     {cols}x{rows} = {rows * cols / 1e6:.0f} MP, one full-frame region")
-    print(f"inspect_image             {t_ours:8.3f} s")
-    print(f"skimage hog (reference)   {t_hog:8.3f} s")
-    import cv2
-
-    img32 = np.ascontiguousarray(img, dtype=np.float32)
     t_blur = best_of(5, lambda: cv2.GaussianBlur(img32, (0, 0), 1.0))
-    print(f"speed-up over hog         {t_hog / t_ours:8.1f} x   (target >= 10)")
+    print(f"image                     {cols}x{rows} = {rows * cols / 1e6:.0f} MP, one full-frame region")
+    print(f"inspect_image             {t_ours:8.3f} s   (best of {runs}; median {np.median(ours):.3f} s)")
+    print(f"skimage hog (reference)   {t_hog:8.3f} s")
+    print(f"speed-up over hog         {t_hog / t_ours:8.1f} x   (target >= 10; best against best)")
     print(f"cv2.GaussianBlur sigma 1  {t_blur:8.3f} s")
-    print(f"inspect_image / blur      {t_ours / t_blur:8.1f} x   (target <= 6)")
+    print(f"inspect_image / blur      {np.median(ratios):8.1f} x   (target <= 6; median of {runs} paired runs)")
+    print(f"  best against best       {t_ours / t_blur:8.1f} x")
 
 
 def _memory_child() -> None:
