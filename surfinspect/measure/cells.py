@@ -98,8 +98,8 @@ def cell_sums(
        above and below, so strips join seamlessly), after subtracting the
        smooth illumination background when ``background_sigma`` > 0.
     2. Products ``gx^2, gx gy, gy^2`` weighted by the measured pixels (region
-       mask, ``keep``, and the image interior), summed per cell (block sums of
-       a zero-padded strip).
+       mask, ``keep``, and the image interior), summed per cell (rows of a cell
+       first, by ``einsum``, then the columns; no product is stored).
     3. The lay angle of every pixel votes its gradient magnitude into the two
        nearest histogram bins of its cell, split linearly.
 
