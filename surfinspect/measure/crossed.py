@@ -255,44 +255,64 @@ def spectral_families(
     f_c = float(np.sum(q * freq) / total) if total > 0 else 0.0
     resolution = angular_resolution_deg(side, f_c)
     floor = max(float(np.median(spectrum.power)), 1e-300)
-    bins = _peaks(spectrum.power, resolution, count)
-    correlation = _correlation_factor(w, pad)
-    signal_2d = np.maximum(power - noise, 0.0) * band
-    rows_idx, cols_idx = np.nonzero(band)
-    found = []
-    for i, k in enumerate(bins):
+    candidates = _peaks(spectrum.power, resolution, count + 3)
+    ctx = _Lobes(a, w, mean, fx, fy, power, noise, noise_sigma, mask, pad, phi, q, raw, freq, weight, band)
+    found: list[Family] = []
+    for k in candidates:
         start = (k + 0.5) * spectrum.bin_width_deg
-        others = [(j + 0.5) * spectrum.bin_width_deg for j in bins if j != k]
+        others = [(j + 0.5) * spectrum.bin_width_deg for j in candidates if j != k]
         half = (_half_height(spectrum.power, k) + 0.5) * spectrum.bin_width_deg
-        half = max(half, resolution / 2.0, 2.0 * spectrum.bin_width_deg)
         if others:
             half = min(half, 0.45 * min(abs(wrap_deviation(start, o)) for o in others))
-        lay, sel = _centroid(phi, q, start, half)
-        lobe_q = float(q[sel].sum())
-        f_lobe = float(np.sum(q[sel] * freq[sel]) / lobe_q) if lobe_q > 0 else 0.0
-        method, se = "lobe", lobe_standard_error(phi[sel], raw[sel], noise, weight[sel], correlation)
-        if lobe_q > 0:
-            top = int(np.argmax(np.where(sel, q, -1.0)))
-            at = (int(rows_idx[top]), int(cols_idx[top]))
-            if line_lobe_power(signal_2d, at, pad * a.shape[1]) >= LINE_SHARE * lobe_q:
-                f0 = np.array([fx[at], fy[at]])
-                lay, f_lobe, se_line = refine_line(a, w, mean, f0, float(power[at]), noise_sigma, mask)
-                method, se = "line", se_line
+        half = max(half, resolution / 2.0, 2.0 * spectrum.bin_width_deg)
         contrast = (float(spectrum.power[k]) - floor) / floor
-        found.append(
-            Family(
-                lay,
-                se if se is None or np.isfinite(se) else None,
-                0.0,
-                lobe_q / total if total > 0 else 0.0,
-                contrast,
-                method,
-                f_lobe,
-                half,
-            )
-        )
+        fam = ctx.refine(start, half, contrast, total)
+        # a peak within a stronger family's lobe, or closer to it than its own frequency resolves (a long
+        # scratch along the grain: a line at low frequency), is part of that family
+        if any(
+            abs(wrap_deviation(fam.lay_deg, g.lay_deg))
+            < max(angular_resolution_deg(side, fam.frequency), g.half_width_deg)
+            for g in found
+        ):
+            continue
+        found.append(fam)
+        if len(found) == count:
+            break
     found = _with_shares(_clean_lines(a, w, mean, found, float(np.max(power)), noise_sigma, mask), phi, q)
     return SpectralFamilies(tuple(found), spectrum, resolution, pixels)
+
+
+class _Lobes:
+    """One region's periodogram ordinates in the band, and the refinement of one peak among them."""
+
+    def __init__(self, a, w, mean, fx, fy, power, noise, noise_sigma, mask, pad, phi, q, raw, freq, weight, band):
+        self.a, self.w, self.mean, self.fx, self.fy, self.power = a, w, mean, fx, fy, power
+        self.noise, self.noise_sigma, self.mask, self.pad = noise, noise_sigma, mask, pad
+        self.phi, self.q, self.raw, self.freq, self.weight = phi, q, raw, freq, weight
+        self.signal = np.maximum(power - noise, 0.0) * band
+        self.rows, self.cols = np.nonzero(band)
+        self.correlation = _correlation_factor(w, pad)
+
+    def refine(self, start: float, half: float, contrast: float, total: float) -> Family:
+        """A lobe's direction: its re-centred centroid, or the refined Fourier peak when it is a line."""
+        phi, q = self.phi, self.q
+        lay, sel = _centroid(phi, q, start, half)
+        lobe_q = float(q[sel].sum())
+        f_lobe = float(np.sum(q[sel] * self.freq[sel]) / lobe_q) if lobe_q > 0 else 0.0
+        method = "lobe"
+        se = lobe_standard_error(phi[sel], self.raw[sel], self.noise, self.weight[sel], self.correlation)
+        if lobe_q > 0:
+            top = int(np.argmax(np.where(sel, q, -1.0)))
+            at = (int(self.rows[top]), int(self.cols[top]))
+            if line_lobe_power(self.signal, at, self.pad * self.a.shape[1]) >= LINE_SHARE * lobe_q:
+                f0 = np.array([self.fx[at], self.fy[at]])
+                lay, f_lobe, se = refine_line(
+                    self.a, self.w, self.mean, f0, float(self.power[at]), self.noise_sigma, self.mask
+                )
+                method = "line"
+        se = se if se is None or np.isfinite(se) else None
+        share = lobe_q / total if total > 0 else 0.0
+        return Family(lay, se, 0.0, share, contrast, method, f_lobe, half)
 
 
 def _sinusoid(a: np.ndarray, mask, lay_deg: float, frequency: float) -> np.ndarray:
