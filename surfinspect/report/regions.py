@@ -96,7 +96,14 @@ def _measured_text(region: RegionResult, d: Mapping) -> str:
         return "no single lay"
     if pattern == "crossed" and isinstance(d["extra"].get("crossed_lay_deg"), list):
         found = d["extra"]["crossed_lay_deg"]
-        return " / ".join("not found" if v is None else format_angle(v, axial=True) for v in found)
+        unc = d["extra"].get("crossed_uncertainty_deg")
+        unc = unc if isinstance(unc, list) and len(unc) == len(found) else [None] * len(found)
+        return " / ".join(
+            "not found"
+            if v is None
+            else format_angle(v, axial=True) + (f", U = {format_angle(u)}" if isinstance(u, (int, float)) else "")
+            for v, u in zip(found, unc)
+        )
     if d["lay_deg"] is None:
         return "—"
     text = format_angle(d["lay_deg"], axial=True)
