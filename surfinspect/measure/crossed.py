@@ -384,6 +384,7 @@ def family_energy_per_cell(
     noise_sigma: float = 0.0,
     half_width_deg: float = 45.0,
     window_cells: float = 2.0,
+    with_total: bool = False,
 ) -> np.ndarray:
     """Spectral energy near each family's direction, cell by cell: ``(rows, cols, k)``.
 
@@ -391,7 +392,8 @@ def family_energy_per_cell(
     inside the box where it would leave it); the ordinates of its periodogram within
     ``half_width_deg`` of a family's direction (the nearer family when two are that close), above
     the band's lowest frequency at which the window still resolves ``half_width_deg``, count
-    for that family, the white noise's power subtracted.
+    for that family, the white noise's power subtracted. With ``with_total`` a last channel holds
+    the cell's whole energy in that band.
     """
     x0, y0, w, h = (int(v) for v in bbox)
     rows, cols = n_cells
@@ -408,12 +410,13 @@ def family_energy_per_cell(
     f_low = max(F_MIN, 2.0 / (side * math.radians(max(half_width_deg, 1.0))))
     inband = (f >= f_low) & (f <= 0.5)
     weight = half_plane_count(f.shape[1], side)[None, :] * inband
-    select = np.stack([(nearest == i) & (dev[..., i] <= half_width_deg) for i in range(lays.size)], axis=-1)
+    sectors = [(nearest == i) & (dev[..., i] <= half_width_deg) for i in range(lays.size)]
+    select = np.stack(sectors + ([np.ones_like(nearest, bool)] if with_total else []), axis=-1)
     select = select * weight[..., None]
     noise = noise_sigma**2 * float(np.sum(win.astype(np.float64) ** 2))
     r_start = np.clip(np.arange(rows) * cell_px + cell_px // 2 - side // 2, 0, h - side) + y0
     c_start = np.clip(np.arange(cols) * cell_px + cell_px // 2 - side // 2, 0, w - side) + x0
-    out = np.zeros((rows, cols, lays.size))
+    out = np.zeros((rows, cols, select.shape[-1]))
     offsets = np.arange(side)
     for i, r in enumerate(r_start):
         tiles = image[r : r + side][:, c_start[:, None] + offsets[None, :]]  # (side, cols, side)

@@ -50,6 +50,14 @@ SPECTRAL_SIDE = 256
 #: (its angular resolution grows with the side: 2 / (side f) radians, see ``crossed.angular_resolution_deg``).
 CROSSED_SIDE = 512
 
+#: The cells of a crossed region are checked for marks off both families when these lie at least this
+#: far apart (a quarter of it, 15 deg, is then about what a cell's window of 48 px resolves).
+OFF_CHECK_MIN_SEPARATION = 80.0
+
+#: ... and when the region as a whole holds at most this share of its cells' energy off both families
+#: (crossed regions: 0.01-0.13; gratings of period 20, too coarse for a 48 px window: about 1).
+OFF_CHECK_MAX_REGION_SHARE = 0.2
+
 #: A region with fewer cells than this has its direction test made on cells a third the size.
 MIN_TEST_CELLS = 64
 
@@ -409,16 +417,32 @@ def _crossed_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, 
     if len(present) < 2 or min(cells.shape_px) < 16:
         return families, None
     lays = [f.lay_deg for f in present[:2]]
-    half = min(45.0, 0.5 * abs(wrap_deviation(lays[0], lays[1])))
+    separation = abs(wrap_deviation(lays[0], lays[1]))
+    box = (x0, y0, cells.shape_px[1], cells.shape_px[0])
     energy = family_energy_per_cell(
         pixels,
-        (x0, y0, cells.shape_px[1], cells.shape_px[0]),
+        box,
         cells.cell_px,
         cells.area.shape,
         lays,
         noise_sigma=sigma_n,
-        half_width_deg=half,
+        half_width_deg=min(45.0, separation / 2),
     )
+    if separation >= OFF_CHECK_MIN_SEPARATION:  # the energy off both families: within a quarter of the separation
+        near = family_energy_per_cell(
+            pixels,
+            box,
+            cells.cell_px,
+            cells.area.shape,
+            lays,
+            noise_sigma=sigma_n,
+            half_width_deg=separation / 4,
+            with_total=True,
+        )
+        off = 1.0 - near[..., :2].sum(axis=-1) / np.maximum(near[..., 2], 1e-300)
+        region_off = 1.0 - float(near[..., :2].sum()) / max(float(near[..., 2].sum()), 1e-300)
+        if region_off <= OFF_CHECK_MAX_REGION_SHARE:  # else the marks lie below what a cell's window resolves
+            energy = np.concatenate([energy, np.where(near[..., 2] > 0, off, 0.0)[..., None]], axis=-1)
     return families, energy
 
 

@@ -92,7 +92,7 @@ class RegionMeasurement:
     spectral: SpectralLay | None = None  # the second, independent estimate (image axes)
     tensor_standard_error_deg: float | None = None  # of the summed tensor's angle, from the spectrum
     families: SpectralFamilies | None = None  # crossed lay: the families of marks in the spectrum (image axes)
-    family_cells: np.ndarray | None = None  # (rows, cols, 2) their spectral energy per cell
+    family_cells: np.ndarray | None = None  # (rows, cols, 2 or 3) their spectral energy per cell; share off both
 
 
 def _cell_lays(m: RegionMeasurement) -> tuple[np.ndarray, np.ndarray]:

@@ -166,3 +166,17 @@ def test_lobe_standard_error_covers_the_scatter_over_textures():
     errors, ses = np.array(errors), np.array(ses)
     assert np.mean(errors <= 2 * ses) >= 0.9
     assert np.mean(ses) <= 3 * np.sqrt(np.mean(errors**2))
+
+
+def test_a_patch_brushed_between_the_two_families_is_found():
+    # re-brushed at 75 deg, 45 deg from both families: each family's share of the cells stays even
+    # there, so it is the energy off both directions that finds it
+    shape = (SIDE, SIDE)
+    tex = synth.brushed_texture(shape, 30, seed=1) + synth.brushed_texture(shape, 120, seed=101)
+    tex[200:296, 150:246] = np.sqrt(2.0) * synth.brushed_texture(shape, 75, seed=201)[200:296, 150:246]
+    region = inspect_image(synth.shade_and_noise(tex / tex.std(), seed=1), _recipe(30, 120)).regions[0]
+    assert region.verdict is RegionVerdict.FAIL
+    assert region.extra["cells_off_both_families"] >= 9
+    x, y, w, h = region.patches[0].bbox_px
+    assert x <= 150 + 24 and x + w >= 246 - 24 and y <= 200 + 24 and y + h >= 296 - 24
+    assert abs(wrap_deviation(region.patches[0].lay_deg, 75)) < 10  # the patch's own direction
