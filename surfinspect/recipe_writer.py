@@ -12,7 +12,6 @@ the loader every command uses.
 
 from __future__ import annotations
 
-import json
 import math
 from typing import Any, Mapping, Sequence
 
@@ -38,12 +37,33 @@ def _scalar(value: Any) -> str:
     if isinstance(value, float):
         if not math.isfinite(value):
             return ".nan" if math.isnan(value) else (".inf" if value > 0 else "-.inf")
-        return repr(value)  # the shortest form that reads back as the same number
+        text = repr(value)  # the shortest form that reads back as the same number
+        if "e" in text:  # YAML 1.1 reads 1e-30 as text: a float needs a dot, its exponent a sign
+            mantissa, exponent = text.split("e")
+            mantissa = mantissa if "." in mantissa else mantissa + ".0"
+            exponent = exponent if exponent[0] in "+-" else "+" + exponent
+            text = f"{mantissa}e{exponent}"
+        return text
     text = str(value)
-    if any(ord(ch) < 32 or ord(ch) == 127 for ch in text):
-        return json.dumps(text, ensure_ascii=False)  # a double-quoted YAML scalar, on one line
+    if not text.isprintable():
+        return _double_quoted(text)
     text = yaml.safe_dump(text, default_flow_style=True, allow_unicode=True, width=1 << 30)
     return text.removesuffix("\n...\n").removesuffix("\n")
+
+
+def _double_quoted(text: str) -> str:
+    """A YAML double-quoted scalar on one line: every character that is not printable escaped (YAML 1.1, 5.7)."""
+    out = []
+    for ch in text:
+        if ch in '"\\':
+            out.append("\\" + ch)
+        elif ch.isprintable():
+            out.append(ch)
+        elif ord(ch) < 0x10000:
+            out.append(f"\\u{ord(ch):04x}")
+        else:
+            out.append(f"\\U{ord(ch):08x}")
+    return '"' + "".join(out) + '"'
 
 
 def _flow(value: Any) -> str:
@@ -156,4 +176,3 @@ def header_comments(text: str) -> list[str]:
         if not line.startswith(REFERENCE_COMMENT):
             lines.append(line)
     return lines
-

@@ -53,6 +53,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
 
     if not 0 < args.port < 65536:
         raise InputError(f"--port: {args.port} is not a port (allowed 1-65535)")
+    if args.recipe and not args.recipe_image:
+        raise InputError("--recipe: needs --recipe-image IMAGE (the reference photo to draw it on)")
     if not args.archive and not args.recipe_image:
         raise InputError("review: give --archive ARCHIVE, --recipe-image IMAGE, or both")
     key_dir = None
@@ -82,21 +84,19 @@ def run(args: argparse.Namespace, console: Console) -> int:
             "enrolled key and its passphrase, and recipes are not saved. Use it on a trusted plant network only "
             "(the connection is not encrypted)."
         )
+    from ..review.app import create_app
+
+    app = create_app(config)  # reads the reference photo and the recipe: a bad one is refused before serving
     what = f"review station for {root} ({batches} batch(es))" if root else "review station (recipe page only)"
     if recipe_image:
         what += f"; recipe page on {recipe_image} at http://{args.host}:{args.port}/recipe, saving into {recipe_dir}"
     console.info(f"{what} at http://{args.host}:{args.port}/ - Ctrl-C stops it")
-    from ..review.app import create_app
-
-    app = create_app(config)  # reads the reference photo and the recipe: a bad one is refused before serving
     serve(app, args.host, args.port)
     return 0
 
 
 def _recipe_flags(args: argparse.Namespace, console: Console):
     """The recipe page's reference, the recipe to edit and the folder to save into, each checked (exit 2)."""
-    if args.recipe and not args.recipe_image:
-        raise InputError("--recipe: needs --recipe-image IMAGE (the reference photo to draw it on)")
     if args.recipe_dir and not args.recipe_image:
         raise InputError("--recipe-dir: needs --recipe-image IMAGE")
     if not args.recipe_image:

@@ -152,7 +152,9 @@ class _Views:
         date_from = date_from if _DATE.match(date_from) else ""
         date_to = date_to if _DATE.match(date_to) else ""
         if self.config.archive_root is None:
-            return self.render(request, "batches.html", {"rows": [], "q": q, "date_from": "", "date_to": "", "total": 0})
+            return self.render(
+                request, "batches.html", {"rows": [], "q": q, "date_from": "", "date_to": "", "total": 0}
+            )
         with self._open() as arc:
             rows = pages.batch_summaries(arc, q, date_from, date_to)
             total = len(arc.batches())

@@ -110,15 +110,9 @@ def reference_from_file(path: str | Path) -> Reference:
 
 
 def new_recipe(reference: Reference) -> dict[str, Any]:
-    """A first recipe for a photo: one rectangle over its middle half, lay to be set."""
-    w, h = reference.width, reference.height
+    """A first recipe for a photo: named after it, revision 1, the image frame, no region yet."""
     stem = re.sub(r"[^a-z0-9-]+", "-", Path(reference.name).stem.lower()).strip("-") or "new-part"
-    return {
-        "recipe": stem,
-        "revision": 1,
-        "datum": "image",
-        "regions": [{"name": "face", "rect": [w // 4, h // 4, w // 2, h // 2], "lay_deg": 0}],
-    }
+    return {"recipe": stem, "revision": 1, "datum": "image", "regions": []}
 
 
 @dataclass(frozen=True)
@@ -242,7 +236,9 @@ def _preview_view(result, datum: DatumInfo, reference: Reference, elapsed: float
         engine_version="",
         datum=datum,
     )
-    (scene,) = build_scene(part, reference.width, reference.height, min_glyph_spacing_px=PREVIEW_GLYPH_SPACING_PX).regions
+    (scene,) = build_scene(
+        part, reference.width, reference.height, min_glyph_spacing_px=PREVIEW_GLYPH_SPACING_PX
+    ).regions
 
     def segments(a) -> list:
         return np.round(np.asarray(a, dtype=float).reshape(-1, 4), 1).tolist()
@@ -324,7 +320,9 @@ def save(
     old_text, old_revision = _existing(target)
     if old_text is not None and not overwrite:
         rev = "" if old_revision is None else f" (revision {old_revision})"
-        raise SaveRefused(f"{file_name} exists{rev}; replace it? It will be kept as {_kept_name(target, old_revision).name}")
+        raise SaveRefused(
+            f"{file_name} exists{rev}; replace it? It will be kept as {_kept_name(target, old_revision).name}"
+        )
     revision = mapping.get("revision", 1)
     if base_revision is not None:
         revision = base_revision + 1

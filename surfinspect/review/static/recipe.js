@@ -39,6 +39,7 @@
     stage.style.transform = "translate(" + view.x + "px," + view.y + "px) scale(" + view.s + ")";
     $("zoom-level").textContent = Math.round(view.s * 100) + " %";
     viewer.dataset.scale = view.s.toFixed(4);
+    viewer.dataset.x = view.x.toFixed(2); viewer.dataset.y = view.y.toFixed(2);
     drawShapes();
   }
   function clampPan() {
