@@ -98,7 +98,9 @@ def reference_from_bytes(data: bytes, name: str) -> Reference:
         shown, kind = png.tobytes(), "image/png"
     else:
         shown = data
-    return Reference(name, hashlib.sha256(data).hexdigest(), pixels, bit_depth, shown, kind)
+    reference = Reference(name, hashlib.sha256(data).hexdigest(), pixels, bit_depth, shown, kind)
+    reference.noise_sigma()  # once, now: the first preview then costs what every other one does
+    return reference
 
 
 def reference_from_file(path: str | Path) -> Reference:
