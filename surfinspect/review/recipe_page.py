@@ -263,12 +263,20 @@ def _preview_view(result, datum: DatumInfo, reference: Reference, elapsed: float
         "deviating": f"{format_fixed(100 * (d['deviating_area_fraction'] or 0.0), 1)} %",
         "reasons": d["reasons"],
         "use_measured": use,
-        "crossed_peaks": [float(format_fixed(v, 1)) for v in (d["extra"].get("crossed_lay_deg") or [])],
+        "crossed_peaks": _crossed_peaks(d),
         "glyphs": segments(scene.glyphs),
         "deviating_glyphs": segments(scene.deviating_glyphs),
         "patches": [list(p.bbox_px) for p in scene.patches],
         "elapsed_ms": round(1000 * elapsed, 1),
     }
+
+
+def _crossed_peaks(d: dict) -> list[float]:
+    """Both measured directions of a crossed lay, to 0.1 degree; none unless both were found."""
+    peaks = (d.get("extra") or {}).get("crossed_lay_deg") or []
+    if len(peaks) != 2 or any(v is None for v in peaks):
+        return []
+    return [float(format_fixed(v, 1)) % 180 for v in peaks]
 
 
 # ------------------------------------------------------------------ saving

@@ -49,6 +49,9 @@ def json_action(handler):
             return await handler(self, request)
         except Refused as exc:
             return JSONResponse({"error": exc.sentence, "problems": []}, status_code=exc.status)
+        except Exception:  # an answer the page can show, never a traceback (the server logs nothing secret)
+            sentence = "The station could not do this (an internal error); nothing was saved. Reload the page."
+            return JSONResponse({"error": sentence, "problems": []}, status_code=500)
 
     return run
 

@@ -11,6 +11,8 @@ import json
 import re
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from review_helpers import ROOT, run_cli
 from starlette.testclient import TestClient
 
@@ -20,6 +22,7 @@ from surfinspect.measure.engine import inspect_image
 from surfinspect.measure.imaging import read_image
 from surfinspect.recipe import load_recipe, parse_recipe
 from surfinspect.recipe_writer import recipe_text
+from surfinspect.review import recipe_page
 from surfinspect.review.app import ReviewConfig, create_app
 from surfinspect.review.security import MAX_BODY_BYTES
 
@@ -123,6 +126,16 @@ def test_check_gives_the_lines_surfinspect_check_prints(cp14, tmp_path, capsys):
     printed = capsys.readouterr().err
     assert len(problems) == 3 and all(p in printed for p in problems)
     assert any("unknown datum" in p for p in problems) and any("unknown lay pattern" in p for p in problems)
+
+
+def test_a_crossed_region_is_previewed_with_both_directions_or_none(cp14):
+    page, _ = cp14
+    # the band is brushed one way only: the second direction is not found, and the page offers nothing to take
+    r = page.post(
+        "preview", with_region(page.data["recipe"], 0, lay="crossed", lay_deg=[0, 90], tolerance_deg=3), index=0
+    )
+    assert r.status_code == 200 and r.json()["crossed_peaks"] in ([], [pytest.approx(0, abs=1)] * 2)
+    assert r.json()["use_measured"] is None
 
 
 def test_crossed_directions_too_close_are_named(cp14):
@@ -258,3 +271,37 @@ def test_the_command_refuses_bad_flags_in_one_line(args, message, capsys):
     assert run_cli(args) == 2
     err = capsys.readouterr().err
     assert message in err and "Traceback" not in err
+
+
+_KEYS = ["name", "rect", "circle", "polygon", "annulus", "exclude", "lay", "lay_deg", "centre", "tolerance_deg",
+         "cell_px", "datum", "pixel_size_mm", "defaults", "regions", "odd"]  # fmt: skip
+
+
+@pytest.fixture(scope="module")
+def cp14_reference():
+    return recipe_page.reference_from_file(CP14_IMAGE)
+
+
+_json = st.recursive(
+    st.none() | st.booleans() | st.integers(-(10**20), 10**20) | st.floats(allow_nan=True) | st.text(max_size=12),
+    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.sampled_from(_KEYS), inner, max_size=5),
+    max_leaves=20,
+)
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(regions=st.lists(st.dictionaries(st.sampled_from(_KEYS), _json, max_size=6), max_size=3), top=_json)
+def test_any_json_the_page_could_send_is_checked_or_named_never_a_crash(cp14_reference, regions, top):
+    # what a tampered page could post: every answer is a list of problem lines (or none), never an exception
+    mapping = {"recipe": "x", "revision": 1, "regions": regions}
+    if isinstance(top, dict):
+        mapping.update(top)
+    recipe, problems = recipe_page.check(mapping, "x.yaml", cp14_reference)
+    assert all(isinstance(p, str) and p for p in problems)
+    if recipe is not None and not problems:
+        assert parse_recipe(recipe_text(mapping)).regions  # what check accepted, the loader reads again
+    for i in range(len(regions)):
+        try:
+            recipe_page.preview(mapping, i, "x.yaml", cp14_reference)
+        except InputError as exc:
+            assert str(exc)

@@ -228,7 +228,8 @@
     if (draft.points.length >= 3 && Math.hypot(q[0] - first[0], q[1] - first[1]) < 8 * unitPx()) { closePolygon(); return; }
     if (ev.detail < 2) draft.points.push(q);
   }
-  function closePolygon() { var pts = draft.points; draft = null;
+  function closePolygon() { // a double-click's second press repeats the last corner: drop repeats
+    var pts = draft.points.filter(function (q, i, all) { return !i || q[0] !== all[i - 1][0] || q[1] !== all[i - 1][1]; }); draft = null;
     if (pts.length >= 3) commitShape({ polygon: pts }); drawShapes(); }
   function commitShape(shape) {
     var g = region();
@@ -245,8 +246,9 @@
     if (kind === "move") {
       var dx = snap(p[0] - d.last[0]), dy = snap(p[1] - d.last[1]); if (!dx && !dy) return;
       d.last = [d.last[0] + dx, d.last[1] + dy];
-      if (k === "polygon") m.polygon = q.map(function (v) { return [snap(v[0] + dx), snap(v[1] + dy)]; });
-      else { q[0] = snap(q[0] + dx); q[1] = snap(q[1] + dy); }
+      var moved = sel.ex >= 0 ? [m] : [m].concat(g.exclude || []); // a region takes its exclusions along
+      moved.forEach(function (s) { shift(s, dx, dy); });
+      if (sel.ex < 0 && Array.isArray(g.centre) && g.centre.every(isFinite)) g.centre = [snap(g.centre[0] + dx), snap(g.centre[1] + dy)];
       return;
     }
     if (kind.indexOf("lay:") === 0) { var c = centreOf(g), a = Math.atan2(-(p[1] - c[1]), p[0] - c[0]) * 180 / Math.PI;
@@ -258,6 +260,11 @@
     else if (k === "polygon") q[i] = s;
     else { var r = snap(Math.hypot(s[0] - q[0], s[1] - q[1]));
       if (k === "circle") q[2] = r; else if (i === 0) q[2] = Math.min(r, q[3] - step()); else q[3] = Math.max(r, q[2] + step()); }
+  }
+  function shift(m, dx, dy) {
+    var k = kindOf(m), q = m[k]; if (!valid(m)) return;
+    if (k === "polygon") m.polygon = q.map(function (v) { return [snap(v[0] + dx), snap(v[1] + dy)]; });
+    else { q[0] = snap(q[0] + dx); q[1] = snap(q[1] + dy); }
   }
   function setAngle(g, k, a) {
     if (patternOf(g) === "crossed") { var d = Array.isArray(g.lay_deg) ? g.lay_deg.slice() : [0, 90]; d[k] = a; g.lay_deg = d; }
@@ -288,7 +295,7 @@
   function deleteSelected() {
     var g = region(); if (!g) return;
     if (sel.ex >= 0) { g.exclude.splice(sel.ex, 1); if (!g.exclude.length) delete g.exclude; sel.ex = -1; changed(sel.r); }
-    else { recipe.regions.splice(sel.r, 1); previews.splice(sel.r, 1); sel = { r: Math.min(sel.r, recipe.regions.length - 1), ex: -1 }; changed(-1); }
+    else { recipe.regions.splice(sel.r, 1); previews.splice(sel.r, 1); sel = { r: Math.min(sel.r, recipe.regions.length - 1), ex: -1 }; dirty = {}; changed(-1, true); }
     drawGlyphs(); showRegion();
   }
   $("delete-selected").addEventListener("click", deleteSelected);
@@ -304,7 +311,7 @@
     var title = document.createElement("p"); title.className = "coords-title"; title.textContent = label + " (" + k + ")"; wrap.appendChild(title);
     if (k === "polygon") {
       var id = prefix + "-points", lab = document.createElement("label"); lab.htmlFor = id; lab.textContent = "points, one x, y a line";
-      var ta = document.createElement("textarea"); ta.id = id; ta.rows = Math.min(6, p.length); ta.value = p.map(function (q) { return q.join(", "); }).join("\n");
+      var ta = document.createElement("textarea"); ta.id = id; ta.dataset.points = prefix === "c" ? "-1" : prefix.split("-")[1]; ta.rows = Math.min(6, p.length); ta.value = p.map(function (q) { return q.join(", "); }).join("\n");
       ta.addEventListener("input", function () { m.polygon = ta.value.split("\n").filter(function (l) { return l.trim(); }).map(function (l) { return l.split(",").map(parse); }); redrawAfterTyping(); });
       wrap.appendChild(lab); wrap.appendChild(ta);
     } else {
@@ -326,6 +333,9 @@
       document.querySelectorAll("#region-form [data-coord]").forEach(function (inp) {
         var owner = inp.id.indexOf("x-") === 0 ? (g.exclude || [])[+inp.id.split("-")[1]] : g, k = kindOf(owner);
         if (owner && document.activeElement !== inp) inp.value = owner[k][+inp.dataset.coord]; });
+      document.querySelectorAll("#region-form textarea[data-points]").forEach(function (ta) {
+        var owner = ta.dataset.points === "-1" ? g : (g.exclude || [])[+ta.dataset.points];
+        if (owner && owner.polygon && document.activeElement !== ta) ta.value = owner.polygon.map(function (q) { return q.join(", "); }).join("\n"); });
       fillLay(g); return;
     }
     $("region-legend").textContent = "Region " + (g.name || "(no name)");
