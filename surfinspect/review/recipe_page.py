@@ -144,6 +144,14 @@ def printable(comment: str) -> bool:
     return text_problem(comment, max_chars=200) is None
 
 
+def allowed_name(name: str) -> str:
+    """``name`` made a file name :data:`FILE_NAME` allows (other characters become '-'), ending in .yaml."""
+    path = Path(str(name))
+    suffix = path.suffix if path.suffix in (".yaml", ".yml") else ".yaml"
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", path.stem if path.suffix == suffix else path.name).strip(".-_")[:95]
+    return f"{stem or 'recipe'}{suffix}"
+
+
 def _source(file_name: str) -> str:
     return file_name if FILE_NAME.match(file_name or "") else "recipe.yaml"
 
@@ -383,12 +391,12 @@ def _kept_name(target: Path, revision: int | None) -> Path:
 def page_data(reference: Reference, loaded: Loaded | None) -> dict:
     """The page's starting state (sent as JSON inside the page): the recipe, the frame, defaults, spellings."""
     mapping = loaded.mapping if loaded else new_recipe(reference)
-    file_name = loaded.file_name if loaded else f"{mapping['recipe']}.yaml"
+    file_name = allowed_name(loaded.file_name if loaded else f"{mapping['recipe']}.yaml")
     recipe, problems = check(mapping, file_name, reference)
     return {
         "recipe": mapping,
         "comments": loaded.comments if loaded else [],
-        "file_name": file_name if FILE_NAME.match(file_name) else "recipe.yaml",
+        "file_name": file_name,
         "base_revision": loaded.revision if loaded else None,
         "problems": problems,
         "frame": frame_view(recipe, reference),

@@ -305,3 +305,17 @@ def test_any_json_the_page_could_send_is_checked_or_named_never_a_crash(cp14_ref
             recipe_page.preview(mapping, i, "x.yaml", cp14_reference)
         except InputError as exc:
             assert str(exc)
+
+
+@pytest.mark.parametrize(
+    "name, allowed",
+    [
+        ("cp-14-cover-plate.yaml", "cp-14-cover-plate.yaml"),
+        ("my recipe (2).yml", "my-recipe-2.yml"),
+        ("../../etc/passwd", "passwd.yaml"),
+        ("Zähler.yaml", "Z-hler.yaml"),
+        ("...", "recipe.yaml"),
+    ],
+)
+def test_a_loaded_recipe_s_name_becomes_a_name_save_takes(name, allowed):
+    assert recipe_page.allowed_name(name) == allowed and recipe_page.FILE_NAME.match(allowed)
