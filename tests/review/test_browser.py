@@ -57,8 +57,13 @@ def test_the_inspectors_round(station):
     driver.get(url + "/")
     driver.save_screenshot(str(shots / "1-batches.png"))
     assert unnamed_controls(driver) == []
-    order = tab_order(driver, 3)
-    assert order == ["Skip to the content", "surfinspect review: all batches", "Batch id or recipe"]
+    order = tab_order(driver, 4)
+    assert order == [
+        "Skip to the content",
+        "surfinspect review: all batches",
+        "Write a recipe by drawing on a reference photo",
+        "Batch id or recipe",
+    ]
     by_css(driver, f'a[href="/batch/{demo.batch_id}"]').click()
 
     assert driver.title.startswith(f"Batch {demo.batch_id}")

@@ -289,7 +289,7 @@ _json = st.recursive(
 )
 
 
-@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(regions=st.lists(st.dictionaries(st.sampled_from(_KEYS), _json, max_size=6), max_size=3), top=_json)
 def test_any_json_the_page_could_send_is_checked_or_named_never_a_crash(cp14_reference, regions, top):
     # what a tampered page could post: every answer is a list of problem lines (or none), never an exception
