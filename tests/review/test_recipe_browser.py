@@ -174,6 +174,14 @@ def test_edit_the_cover_plate_recipe_type_a_coordinate_and_a_wrong_value(page):
     driver.save_screenshot(str(shots / "3-wrong-value.png"))
     assert unnamed_controls(driver) == []
 
+    # by keyboard alone: the circle tool by its key, a circle added where the view is, its numbers next
+    from selenium.webdriver.common.keys import Keys
+
+    by_css(driver, "body").send_keys("c")
+    by_css(driver, "#add-shape").send_keys(Keys.ENTER)
+    assert "region-3 · circle" in by_css(driver, "#region-list").text
+    assert driver.switch_to.active_element.get_attribute("id") == "c-0"
+
 
 def _region_facts(region):
     return (region.name, region.shape, region.exclude, region.lay, region.lay_deg, region.tolerance_deg,

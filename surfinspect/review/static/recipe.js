@@ -299,9 +299,14 @@
     drawGlyphs(); showRegion();
   }
   $("delete-selected").addEventListener("click", deleteSelected);
-  $("add-rect").addEventListener("click", function () {
-    var c = toFrame((viewer.clientWidth / 2 - view.x) / view.s, (viewer.clientHeight / 2 - view.y) / view.s), s = snap(0.1 * Math.min(W, H) / trig()[2]);
-    commitShape({ rect: [snap(c[0] - s), snap(c[1] - s), 2 * s, 2 * s] });
+  $("add-shape").addEventListener("click", function () { // drawing by keyboard: the chosen tool's shape, then its numbers
+    var c = toFrame((viewer.clientWidth / 2 - view.x) / view.s, (viewer.clientHeight / 2 - view.y) / view.s);
+    var s = snap(0.1 * Math.min(W, H) / trig()[2]), x = snap(c[0]), y = snap(c[1]), kind = tool === "select" ? "rect" : tool;
+    var shapes = { rect: { rect: [x - s, y - s, 2 * s, 2 * s] }, circle: { circle: [x, y, s] }, annulus: { annulus: [x, y, snap(s / 2), s] },
+      polygon: { polygon: [[x - s, y + s], [x + s, y + s], [x, y - s]] } };
+    commitShape(shapes[kind]);
+    var first = document.querySelector(sel.ex >= 0 ? "#r-excludes input, #r-excludes textarea" : "#r-coords input, #r-coords textarea");
+    if (first) first.focus();
   });
 
   // ---------------------------------------------------------------- the forms
