@@ -21,7 +21,7 @@ import threading
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -42,6 +42,8 @@ from ..results import DatumInfo, ImageInfo, PartResult, PartVerdict, RecipeInfo,
 FILE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}\.ya?ml$")
 #: Media types the browser shows as they are; any other reference is sent as an 8-bit PNG.
 _SHOWN_AS_IS = {b"\x89PNG": "image/png", b"\xff\xd8\xff": "image/jpeg"}
+#: ``file:line: `` at the start of a loader's problem line.
+_WHERE = re.compile(r"^[^:]*:\d+: ")
 #: The glyph lattice of the preview: cells closer than this (image px) are thinned out.
 PREVIEW_GLYPH_SPACING_PX = 12.0
 
@@ -156,16 +158,29 @@ def _source(file_name: str) -> str:
     return file_name if FILE_NAME.match(file_name or "") else "recipe.yaml"
 
 
-def check(mapping: Any, file_name: str, reference: Reference) -> tuple[Recipe | None, list[str]]:
+def file_text(
+    mapping: dict, reference: Reference, comments: Sequence[str] = (), now: _dt.datetime | None = None
+) -> str:
+    """The text Save writes: the leading comments, the reference image's line, the recipe's keys."""
+    stamp = (now or _dt.datetime.now(_dt.timezone.utc)).strftime("%Y-%m-%d %H:%M UTC")
+    line = f"{REFERENCE_COMMENT} {Path(reference.name).name} sha256 {reference.sha256}, drawn and saved {stamp}"
+    return recipe_text(mapping, comments=[*comments, line])
+
+
+def check(
+    mapping: Any, file_name: str, reference: Reference, comments: Sequence[str] = ()
+) -> tuple[Recipe | None, list[str]]:
     """The problems ``surfinspect check`` would print for the saved file, then those ``inspect`` would meet.
 
-    Returns the parsed recipe (None when the loader refused it) and the problem lines.
+    The recipe is read as the very text Save writes (:func:`file_text`, comments included), so
+    the line numbers are those of the saved file. Returns the parsed recipe (None when the
+    loader refused it) and the problem lines.
     """
     if not isinstance(mapping, dict):
         return None, ["the recipe must be a mapping of keys such as recipe, revision, regions"]
     source = _source(file_name)
     try:
-        recipe = parse_recipe(recipe_text(mapping), source)
+        recipe = parse_recipe(file_text(mapping, reference, comments), source)
     except RecipeError as exc:
         return None, list(exc.problems)
     problems = []
@@ -218,8 +233,9 @@ def preview(mapping: Any, index: Any, file_name: str, reference: Reference) -> d
     source = _source(file_name)
     try:  # the region alone, with the recipe's other keys: a problem elsewhere does not stop its preview
         recipe = parse_recipe(recipe_text({**mapping, "regions": [regions[index]]}), source)
-    except RecipeError as exc:
-        raise InputError(exc.problems[0], list(exc.problems)) from None
+    except RecipeError as exc:  # the line numbers are the one-region text's: the check names the file's
+        problems = [_WHERE.sub("", p, count=1) for p in exc.problems]
+        raise InputError(problems[0], problems) from None
     (region,) = recipe.regions
     start = time.perf_counter()
     with reference.lock:
@@ -347,12 +363,10 @@ def save(
     if old_revision is not None and isinstance(revision, int) and revision <= old_revision:
         revision = old_revision + 1
     mapping = {**mapping, "revision": revision}
-    recipe, problems = check(mapping, file_name, reference)
+    recipe, problems = check(mapping, file_name, reference, comments)
     if problems:
         raise InputError(problems[0], problems)
-    stamp = (now or _dt.datetime.now(_dt.timezone.utc)).strftime("%Y-%m-%d %H:%M UTC")
-    line = f"{REFERENCE_COMMENT} {Path(reference.name).name} sha256 {reference.sha256}, drawn and saved {stamp}"
-    text = recipe_text(mapping, comments=[*comments, line])
+    text = file_text(mapping, reference, comments, now)
     kept = None
     if old_text is not None:
         kept = _kept_name(target, old_revision)
@@ -392,7 +406,7 @@ def page_data(reference: Reference, loaded: Loaded | None) -> dict:
     """The page's starting state (sent as JSON inside the page): the recipe, the frame, defaults, spellings."""
     mapping = loaded.mapping if loaded else new_recipe(reference)
     file_name = allowed_name(loaded.file_name if loaded else f"{mapping['recipe']}.yaml")
-    recipe, problems = check(mapping, file_name, reference)
+    recipe, problems = check(mapping, file_name, reference, loaded.comments if loaded else ())
     return {
         "recipe": mapping,
         "comments": loaded.comments if loaded else [],

@@ -32,6 +32,14 @@ KEEP_ARCHIVED = 2
 _SHA = set("0123456789abcdef")
 
 
+def _comments(body: dict) -> list[str]:
+    """The leading comment lines the page sends back (those of the recipe it loaded): printable, bounded."""
+    comments = body.get("comments")
+    if not isinstance(comments, list):
+        return []
+    return [c for c in (str(c)[:200] for c in comments[:20]) if recipe_page.printable(c)]
+
+
 class Refused(Exception):
     """A JSON action refused before any work: answered as ``{"error": sentence}`` with ``status``."""
 
@@ -168,9 +176,13 @@ class RecipeViews:
         body, ref = await self._body(request)
         name = str(body.get("file_name") or "")
 
+        comments = _comments(body)
+
         def work():
-            recipe, problems = recipe_page.check(body.get("recipe"), name, ref)
-            return {"problems": problems, "frame": recipe_page.frame_view(recipe, ref)}
+            mapping = body.get("recipe")
+            recipe, problems = recipe_page.check(mapping, name, ref, comments)
+            text = recipe_page.file_text(mapping, ref, comments) if isinstance(mapping, dict) else ""
+            return {"problems": problems, "frame": recipe_page.frame_view(recipe, ref), "text": text}
 
         return JSONResponse(await run_in_threadpool(work))
 
@@ -192,8 +204,7 @@ class RecipeViews:
             return JSONResponse({"error": refusal, "problems": [refusal]}, status_code=403)
         base = body.get("base_revision")
         base = base if isinstance(base, int) and not isinstance(base, bool) and 0 <= base < 2**31 - 1 else None
-        comments = body.get("comments")
-        comments = [str(c)[:200] for c in comments[:20]] if isinstance(comments, list) else []
+        comments = _comments(body)
 
         def work():
             return recipe_page.save(
@@ -202,7 +213,7 @@ class RecipeViews:
                 body.get("recipe"),
                 reference=ref,
                 base_revision=base,
-                comments=[c for c in comments if recipe_page.printable(c)],
+                comments=comments,
                 overwrite=body.get("overwrite") is True,
             )
 

@@ -181,6 +181,12 @@ def test_edit_the_cover_plate_recipe_type_a_coordinate_and_a_wrong_value(page):
     by_css(driver, "#add-shape").send_keys(Keys.ENTER)
     assert "region-3 · circle" in by_css(driver, "#region-list").text
     assert driver.switch_to.active_element.get_attribute("id") == "c-0"
+    by_css(driver, "#undo").click()  # and back: the circle goes, redo brings it again
+    assert "region-3" not in by_css(driver, "#region-list").text
+    by_css(driver, "#redo").click()
+    assert "region-3 · circle" in by_css(driver, "#region-list").text
+    driver.execute_script("document.querySelector('.rp-panel details').open = true")
+    wait(driver, lambda d: "  - name: region-3\n    circle: [" in by_css(d, "#file-text").get_attribute("textContent"))
 
 
 def _region_facts(region):

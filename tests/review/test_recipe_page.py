@@ -93,7 +93,7 @@ def test_preview_gives_the_numbers_inspect_gives(cp14):
     assert page.post("preview", index=0).json()["use_measured"] == round(whole.regions[0].lay_deg, 1)
 
 
-def test_a_region_outside_the_photo_is_the_message_inspect_prints_not_a_500(cp14, tmp_path):
+def test_a_region_outside_the_photo_is_the_message_inspect_prints_not_a_500(cp14, cp14_reference, tmp_path):
     page, _ = cp14
     recipe = with_region(page.data["recipe"], 0, rect=[4, 4, 900, 28])
     r = page.post("preview", recipe, index=0)
@@ -102,18 +102,19 @@ def test_a_region_outside_the_photo_is_the_message_inspect_prints_not_a_500(cp14
     checked = page.post("check", recipe).json()["problems"]
     # the same line `surfinspect inspect` prints for the saved file on this photo
     saved = tmp_path / "cp-14-cover-plate.yaml"
-    saved.write_text(recipe_text(recipe))
+    saved.write_text(recipe_page.file_text(recipe, cp14_reference))  # the text Save writes
     with pytest.raises(InputError, match="region lies outside the image") as caught:
         inspect_image(read_image(CP14_IMAGE).pixels, load_recipe(saved))
     assert checked == [str(caught.value).replace(str(saved), saved.name)]
 
 
-def test_check_gives_the_lines_surfinspect_check_prints(cp14, tmp_path, capsys):
+def test_check_gives_the_lines_surfinspect_check_prints(cp14, cp14_reference, tmp_path, capsys):
     page, _ = cp14
     recipe = with_region(page.data["recipe"], 0, tolerance_deg=-1, lay="sideways")
     recipe = {**recipe, "datum": "edge"}
-    problems = page.post("check", recipe).json()["problems"]
-    (tmp_path / "cp-14-cover-plate.yaml").write_text(recipe_text(recipe))
+    answer = page.post("check", recipe, comments=page.data["comments"]).json()
+    problems = answer["problems"]
+    (tmp_path / "cp-14-cover-plate.yaml").write_text(answer["text"])  # the file Save would write, as the page shows it
     capsys.readouterr()
     import os
 
@@ -124,7 +125,7 @@ def test_check_gives_the_lines_surfinspect_check_prints(cp14, tmp_path, capsys):
     finally:
         os.chdir(here)
     printed = capsys.readouterr().err
-    assert len(problems) == 3 and all(p in printed for p in problems)
+    assert len(problems) == 3 and all(f"surfinspect: error: {p}" in printed.splitlines() for p in problems)
     assert any("unknown datum" in p for p in problems) and any("unknown lay pattern" in p for p in problems)
 
 

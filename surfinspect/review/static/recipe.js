@@ -122,6 +122,8 @@
       (g.exclude || []).forEach(function (x, j) {
         if (valid(x)) shapeEl(x, shapes, { "class": "exclusion" + (on && sel.ex === j ? " on" : ""), "data-region": i, "data-ex": j });
       });
+      var at0 = handlesOf(g)[0], label = el("text", { x: at0[0], y: at0[1], dy: -4 * unitPx(), "font-size": 12 * unitPx(), "class": "region-label" }, shapes);
+      label.textContent = g.name || "(no name)";
       if (e && on) drawArrows(g, handles);
     });
     var m = selectedShape();
@@ -276,6 +278,8 @@
   document.querySelectorAll('input[name=tool]').forEach(function (r) { r.addEventListener("change", function () { setTool(r.value); }); });
   function typing(t) { var tag = t && t.tagName; return tag === "INPUT" || tag === "TEXTAREA" || tag === "SELECT"; }
   document.addEventListener("keydown", function (ev) {
+    if (!typing(ev.target) && (ev.ctrlKey || ev.metaKey) && (ev.key === "z" || ev.key === "Z" || ev.key === "y")) {
+      travel(ev.key === "y" || ev.shiftKey ? 1 : -1); ev.preventDefault(); return; }
     if (typing(ev.target) || ev.ctrlKey || ev.metaKey || ev.altKey) return;
     var k = ev.key, keys = { v: "select", r: "rect", g: "polygon", c: "circle", a: "annulus" };
     if (keys[k]) setTool(keys[k]);
@@ -456,16 +460,17 @@
       .then(function (r) { return r.json().then(function (j) { return { status: r.status, body: j }; }); });
   }
   function changed(index, all) {
-    checked = false; updateSave();
+    checked = false; updateSave(); later("history", 500, remember); unsaved = true;
     if (all) (recipe.regions || []).forEach(function (_, i) { dirty[i] = true; });
     else if (index >= 0) dirty[index] = true;
     later("check", 250, runCheck); later("preview", 400, runPreview);
   }
   function runCheck() {
     var seq = ++checkSeq;
-    post("/recipe/check", { recipe: recipe }).then(function (r) {
+    post("/recipe/check", { recipe: recipe, comments: data.comments }).then(function (r) {
       if (seq !== checkSeq) return;
       problems = r.status === 200 ? r.body.problems : [r.body.error];
+      if (r.status === 200) $("file-text").textContent = r.body.text;
       if (r.status === 200 && r.body.frame) { var moved = JSON.stringify(frame) !== JSON.stringify(r.body.frame); frame = r.body.frame; if (moved) drawShapes(); }
       checked = true; showProblems(); updateSave();
     });
@@ -504,6 +509,22 @@
   }
   function updateSave() { $("save").disabled = !data.can_save || !checked || problems.length > 0; }
 
+  // ---------------------------------------------------------------- undo and redo
+  var history = [JSON.stringify(recipe)], at = 0, unsaved = false;
+  function remember() { var now = JSON.stringify(recipe); if (now === history[at]) return;
+    history = history.slice(0, at + 1).concat([now]).slice(-200); at = history.length - 1; undoButtons(); }
+  function travel(step) {
+    clearTimeout(timers.history); remember();
+    if (at + step < 0 || at + step >= history.length) return;
+    at += step; recipe = JSON.parse(history[at]); previews = []; dirty = {};
+    sel = { r: Math.min(Math.max(sel.r, 0), (recipe.regions || []).length - 1), ex: -1 };
+    fillRecipe(); showRegion(); drawGlyphs(); drawShapes(); changed(-1, true); clearTimeout(timers.history); undoButtons();
+  }
+  function undoButtons() { $("undo").disabled = at <= 0; $("redo").disabled = at >= history.length - 1; }
+  $("undo").addEventListener("click", function () { travel(-1); });
+  $("redo").addEventListener("click", function () { travel(1); });
+  window.addEventListener("beforeunload", function (ev) { if (unsaved) { ev.preventDefault(); ev.returnValue = ""; } });
+
   // ---------------------------------------------------------------- saving
   function save(overwrite) {
     $("save").disabled = true; $("save-msg").textContent = "Saving…";
@@ -511,7 +532,7 @@
       $("overwrite").hidden = true;
       if (r.status === 200) {
         data.base_revision = r.body.revision; recipe.revision = r.body.revision; data.file_name = r.body.saved;
-        $("save-msg").textContent = r.body.message; showRevision();
+        $("save-msg").textContent = r.body.message; showRevision(); unsaved = false;
       } else if (r.status === 409) {
         $("overwrite-msg").textContent = r.body.error; $("overwrite").hidden = false; $("save-msg").textContent = ""; $("overwrite-yes").focus();
       } else {
@@ -528,6 +549,6 @@
 
   // ---------------------------------------------------------------- start
   window.addEventListener("resize", function () { clampPan(); apply(); });
-  fillRecipe(); fit(); showRegion(); showProblems(); changed(-1, true);
+  fillRecipe(); fit(); showRegion(); showProblems(); changed(-1, true); unsaved = false; undoButtons();
   $("rp-form").addEventListener("submit", function (ev) { ev.preventDefault(); });
 })();
