@@ -94,6 +94,10 @@
     if (k === "circle") return 2 * p[2]; if (k === "annulus") return 2 * p[3];
     var xs = p.map(function (q) { return q[0]; }), ys = p.map(function (q) { return q[1]; });
     return Math.min(Math.max.apply(null, xs) - Math.min.apply(null, xs), Math.max.apply(null, ys) - Math.min.apply(null, ys)); }
+  function corner(m) { var k = kindOf(m), p = m[k]; // top-left of the shape's box, where its name goes
+    if (k === "rect") return [p[0], p[1]];
+    if (k === "polygon") return [Math.min.apply(null, p.map(function (q) { return q[0]; })), Math.min.apply(null, p.map(function (q) { return q[1]; }))];
+    var r = k === "circle" ? p[2] : p[3]; return [p[0] - r, p[1] - r]; }
   function handlesOf(m) { var k = kindOf(m), p = m[k];
     if (k === "rect") return [[p[0], p[1]], [p[0] + p[2], p[1]], [p[0] + p[2], p[1] + p[3]], [p[0], p[1] + p[3]]];
     if (k === "circle") return [[p[0] + p[2], p[1]]];
@@ -122,7 +126,7 @@
       (g.exclude || []).forEach(function (x, j) {
         if (valid(x)) shapeEl(x, shapes, { "class": "exclusion" + (on && sel.ex === j ? " on" : ""), "data-region": i, "data-ex": j });
       });
-      var at0 = handlesOf(g)[0], label = el("text", { x: at0[0], y: at0[1], dy: -4 * unitPx(), "font-size": 12 * unitPx(), "class": "region-label" }, shapes);
+      var at0 = corner(g), label = el("text", { x: at0[0], y: at0[1], dy: -4 * unitPx(), "font-size": 12 * unitPx(), "stroke-width": 3 * unitPx(), "class": "region-label" }, shapes);
       label.textContent = g.name || "(no name)";
       if (e && on) drawArrows(g, handles);
     });
@@ -160,7 +164,7 @@
         var long = Math.abs(mm / big - Math.round(mm / big)) < 1e-9, len = (long ? 12 : 6) * u;
         var d = axis[1] ? "M0," + mm + "h" + -len : "M" + mm + ",0v" + -len;
         el("path", { d: d, "class": "tick", "vector-effect": "non-scaling-stroke" }, g);
-        if (long) { var tx = el("text", { x: axis[1] ? -14 * u : mm, y: axis[1] ? mm : -14 * u, "font-size": font, "class": "tick-label",
+        if (long) { var tx = el("text", { x: axis[1] ? -14 * u : mm, y: axis[1] ? mm : -14 * u, "font-size": font, "stroke-width": 2.5 * u, "class": "tick-label",
           "text-anchor": axis[1] ? "end" : "middle" }, g); tx.textContent = Math.round(mm) + (mm === 0 ? " mm" : ""); }
       }
     });
