@@ -285,7 +285,7 @@ def cp14_reference():
 
 _json = st.recursive(
     st.none() | st.booleans() | st.integers(-(10**20), 10**20) | st.floats(allow_nan=True) | st.text(max_size=12),
-    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.sampled_from(_KEYS), inner, max_size=5),
+    lambda inner: st.one_of(st.lists(inner, max_size=4), st.dictionaries(st.sampled_from(_KEYS), inner, max_size=5)),
     max_leaves=20,
 )
 
