@@ -87,10 +87,11 @@ def run(args: argparse.Namespace, console: Console) -> int:
     from ..review.app import create_app
 
     app = create_app(config)  # reads the reference photo and the recipe: a bad one is refused before serving
-    what = f"review station for {root} ({batches} batch(es))" if root else "review station (recipe page only)"
+    url = f"http://{args.host}:{args.port}"
+    what = f"review station for {root} ({batches} batch(es)) at {url}/" if root else "review station:"
     if recipe_image:
-        what += f"; recipe page on {recipe_image} at http://{args.host}:{args.port}/recipe, saving into {recipe_dir}"
-    console.info(f"{what} at http://{args.host}:{args.port}/ - Ctrl-C stops it")
+        what += f"{';' if root else ''} recipe page at {url}/recipe on {recipe_image} (recipes saved into {recipe_dir})"
+    console.info(f"{what} - Ctrl-C stops it")
     serve(app, args.host, args.port)
     return 0
 
