@@ -467,6 +467,8 @@
     checked = false; updateSave(); later("history", 500, remember); unsaved = true;
     if (all) (recipe.regions || []).forEach(function (_, i) { dirty[i] = true; });
     else if (index >= 0) dirty[index] = true;
+    Object.keys(dirty).forEach(function (i) { if (previews[i]) previews[i].stale = true; }); // not offered until measured again
+    if (dirty[sel.r]) showPreview(previews[sel.r]);
     later("check", 250, runCheck); later("preview", 400, runPreview);
   }
   function runCheck() {
@@ -499,9 +501,9 @@
     var cells = { verdict: "p-verdict", lay: "p-lay", deviation: "p-deviation", uncertainty: "p-uncertainty", coherence: "p-coherence", deviating: "p-deviating" };
     for (var k in cells) $(cells[k]).textContent = p ? p[k] : "-";
     $("p-reasons").textContent = error ? error : p ? p.reasons.join("; ") : "-";
-    $("p-time").textContent = p ? "measured in " + p.elapsed_ms + " ms (" + p.lay_is + ")" : "";
+    $("p-time").textContent = p ? (p.stale ? "measuring again… " : "") + "measured in " + p.elapsed_ms + " ms (" + p.lay_is + ")" : "";
     var b = $("use-measured"), g = region(), crossed = g && patternOf(g) === "crossed";
-    var v = p ? (crossed ? (p.crossed_peaks.length === 2 ? p.crossed_peaks.map(function (a) { return a.toFixed(1); }).join("° / ") : null) : (p.use_measured === null ? null : p.use_measured.toFixed(1))) : null;
+    var v = p && !p.stale ? (crossed ? (p.crossed_peaks.length === 2 ? p.crossed_peaks.map(function (a) { return a.toFixed(1); }).join("° / ") : null) : (p.use_measured === null ? null : p.use_measured.toFixed(1))) : null;
     b.disabled = v === null; b.textContent = v === null ? "use measured" : "use measured " + v + "°";
     b.setAttribute("aria-label", v === null ? "use the measured lay (measure first)" : "use the measured lay, " + v + " degrees");
     $("r-measured-row").hidden = !g || !(patternOf(g) === "directional" || crossed);
