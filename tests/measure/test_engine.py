@@ -414,3 +414,29 @@ def test_uncertainty_covers_the_error_about_95_percent_of_the_time():
         ratios.append(region.uncertainty_deg)
     assert covered >= 34  # at least 85 % of 40
     assert np.mean(ratios) < 0.5  # and it is not uselessly wide
+
+
+def test_inspect_region_alone_gives_what_inspect_image_gives():
+    # the recipe page's preview measures one region with inspect_region on the image kept in memory:
+    # its JSON form must be inspect_image's for that region, byte for byte (both demo recipes, part frame too)
+    from pathlib import Path
+
+    from surfinspect.measure.engine import frame_for, inspect_region
+    from surfinspect.measure.imaging import read_image
+    from surfinspect.measure.noise import noise_sigma
+    from surfinspect.recipe import load_recipe
+    from surfinspect.results import region_to_dict
+
+    root = Path(__file__).resolve().parents[2]
+    for recipe_name, image_name in [
+        ("cp-14-cover-plate.yaml", "cp-14-0002.png"),
+        ("lw-220-wall-panel.yaml", "lw-220-0004.png"),
+    ]:
+        recipe = load_recipe(root / "recipes" / recipe_name)
+        pixels = read_image(root / "demo_parts" / image_name).pixels
+        whole = inspect_image(pixels, recipe)
+        frame, _ = frame_for(recipe, pixels)
+        sigma = noise_sigma(pixels)
+        for region, expected in zip(recipe.regions, whole.regions):
+            alone = inspect_region(pixels, recipe, region, frame, sigma)
+            assert region_to_dict(alone) == region_to_dict(expected)
