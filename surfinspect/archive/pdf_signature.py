@@ -1,9 +1,11 @@
 """PDF signatures (PAdES baseline B-B, ETSI EN 319 142-1) on the signed editions, made and checked with pyHanko.
 
 A signed edition carries one PDF signature per sign-off: a CMS signature
-(``ETSI.CAdES.detached``) by the signer's enrolled Ed25519 key (RFC 8419:
-Ed25519 in CMS, digest SHA-512), with the signer's certificate and the
-owner's certificate embedded, the meaning and comment as the signature's
+(``ETSI.CAdES.detached``) by the signer's PDF key (ECDSA P-256 with SHA-256,
+which poppler/NSS and other common readers verify) or, for a holder whose
+key file predates PDF keys, by the enrolled Ed25519 key (RFC 8419: Ed25519
+in CMS, digest SHA-512), with the signer's certificate and the issuing
+owner certificate embedded, the meaning and comment as the signature's
 reason, the sign-off's UTC time as its time (``/M``; B-B carries no
 signing-time attribute, EN 319 142-1, 5.2.1). The field is invisible (zero
 rectangle) but printable, as PDF/A-2 wants of every annotation (ISO 19005-2,
@@ -43,6 +45,7 @@ from asn1crypto import keys as asn1_keys
 from asn1crypto import x509 as asn1_x509
 from cryptography import x509
 from cryptography.hazmat.primitives import serialization
+from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 from pyhanko.pdf_utils import generic
 from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
@@ -53,7 +56,7 @@ from pyhanko.sign.validation import validate_pdf_signature
 from pyhanko_certvalidator import ValidationContext
 from pyhanko_certvalidator.registry import SimpleCertificateStore
 
-from .certificates import certificate_der, certificate_key_raw, certificate_name
+from .certificates import certificate_der, certificate_key_raw, certificate_name, certificate_spki
 
 __all__ = ["SIGNATURE_FIELD_PREFIX", "PdfSignatureCheck", "sign_pdf", "pdf_signatures", "signature_reason"]
 
@@ -124,7 +127,7 @@ class _TimedSigner(PdfSigner):
 
 def sign_pdf(
     pdf: bytes,
-    key: Ed25519PrivateKey,
+    key: Ed25519PrivateKey | ec.EllipticCurvePrivateKey,
     certificate: x509.Certificate,
     owner_certificate: x509.Certificate,
     *,
@@ -138,8 +141,8 @@ def sign_pdf(
     ----------
     pdf : bytes
         The edition to sign (the report, or the previous signed edition).
-    key : Ed25519PrivateKey
-        The signer's enrolled key; ``certificate`` certifies it, issued by ``owner_certificate``.
+    key : Ed25519PrivateKey or EllipticCurvePrivateKey
+        The signer's PDF key (P-256) or Ed25519 key; ``certificate`` certifies it, issued by ``owner_certificate``.
     field_name : str
         The new signature field's name (``signoff-N``).
     reason : str
@@ -158,7 +161,8 @@ def sign_pdf(
     meta = signers.PdfSignatureMetadata(
         field_name=field_name,
         reason=reason,
-        md_algorithm="sha512",  # RFC 8419, 3.1: Ed25519 with SHA-512 in CMS
+        # RFC 8419, 3.1: Ed25519 with SHA-512 in CMS; RFC 5754, 3.3: ECDSA P-256 with SHA-256
+        md_algorithm="sha512" if isinstance(key, Ed25519PrivateKey) else "sha256",
         subfilter=fields.SigSeedSubFilter.PADES,
     )
     spec = fields.SigFieldSpec(
@@ -179,7 +183,8 @@ class PdfSignatureCheck:
     valid: bool  # the CMS signature verifies with the certificate's key
     trusted: bool  # the certificate path ends at the owner's certificate
     signer_name: str | None
-    key_raw: bytes | None
+    key_raw: bytes | None  # the raw Ed25519 key certified (None for a PDF key)
+    key_spki: bytes | None  # the DER SubjectPublicKeyInfo certified (any algorithm)
     reason: str | None
     signed_at: datetime | None
     covered_sha256: str  # SHA-256 of the file up to the end of the revision the signature covers
@@ -192,13 +197,14 @@ class PdfSignatureCheck:
         return self.intact and self.valid and self.trusted and self.whole_revision and not self.problems
 
 
-def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate) -> list[PdfSignatureCheck]:
-    """Every PDF signature of ``pdf``, validated by pyHanko with the owner's certificate as the only trust root.
+def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate | list[x509.Certificate]) -> list[PdfSignatureCheck]:
+    """Every PDF signature of ``pdf``, validated by pyHanko with the owner's certificates as the only trust roots.
 
     A document pyHanko cannot read gives one check with the reason in ``problems``.
     """
+    roots = owner_certificate if isinstance(owner_certificate, list) else [owner_certificate]
     context = ValidationContext(
-        trust_roots=[_asn1(owner_certificate)], allow_fetching=False, revocation_mode="soft-fail"
+        trust_roots=[_asn1(c) for c in roots], allow_fetching=False, revocation_mode="soft-fail"
     )
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
@@ -210,7 +216,7 @@ def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate) -> list[PdfS
 
 def _unreadable(pdf: bytes, why: str) -> PdfSignatureCheck:
     return PdfSignatureCheck(
-        "", False, False, False, None, None, None, None, hashlib.sha256(pdf).hexdigest(), False, "", (why,)
+        "", False, False, False, None, None, None, None, None, hashlib.sha256(pdf).hexdigest(), False, "", (why,)
     )
 
 
@@ -237,6 +243,7 @@ def _check(sig, pdf: bytes, context: ValidationContext) -> PdfSignatureCheck:
         trusted=trusted,
         signer_name=certificate_name(cert) if cert is not None else None,
         key_raw=certificate_key_raw(cert) if cert is not None else None,
+        key_spki=certificate_spki(cert) if cert is not None else None,
         reason=str(reason) if reason is not None else None,
         signed_at=_parse_pdf_date(str(when)) if when is not None else None,
         covered_sha256=hashlib.sha256(pdf[:end]).hexdigest(),
