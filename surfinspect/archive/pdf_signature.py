@@ -47,12 +47,13 @@ from cryptography import x509
 from cryptography.hazmat.primitives import serialization
 from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
-from pyhanko.pdf_utils import generic
+from pyhanko.pdf_utils import content, generic, layout
 from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
 from pyhanko.pdf_utils.reader import PdfFileReader
 from pyhanko.sign import fields, signers
 from pyhanko.sign.signers.pdf_signer import PdfSigner
 from pyhanko.sign.validation import validate_pdf_signature
+from pyhanko.stamp import StaticStampStyle
 from pyhanko_certvalidator import ValidationContext
 from pyhanko_certvalidator.registry import SimpleCertificateStore
 
@@ -134,6 +135,8 @@ def sign_pdf(
     field_name: str,
     reason: str,
     signed_at: datetime,
+    appearance: bytes | None = None,
+    box: tuple[float, float, float, float] | None = None,
 ) -> bytes:
     """``pdf`` with one more PAdES B-B signature, appended as an incremental update.
 
@@ -149,6 +152,9 @@ def sign_pdf(
         The signature's reason (:func:`signature_reason`).
     signed_at : datetime
         The signing time written into the signature (the sign-off's time).
+    appearance, box : bytes, tuple, optional
+        A one-page PDF drawn as the signature's visible appearance in ``box`` (x1, y1, x2, y2, points) on the
+        last page; without them the signature is invisible (but printable).
     """
     key_info = asn1_keys.PrivateKeyInfo.load(
         key.private_bytes(serialization.Encoding.DER, serialization.PrivateFormat.PKCS8, serialization.NoEncryption())
@@ -165,13 +171,42 @@ def sign_pdf(
         md_algorithm="sha512" if isinstance(key, Ed25519PrivateKey) else "sha256",
         subfilter=fields.SigSeedSubFilter.PADES,
     )
-    spec = fields.SigFieldSpec(
-        field_name, invis_sig_settings=fields.InvisSigSettings(set_print_flag=True, set_hidden_flag=False)
-    )
     writer = _ArchivalIncrementalWriter(io.BytesIO(pdf))
     writer.signed_at = signed_at
-    out = _TimedSigner(meta, signer, new_field_spec=spec, signed_at=signed_at).sign_pdf(writer)
+    style = None
+    if appearance is not None and box is not None:
+        last_page = int(writer.root["/Pages"]["/Count"]) - 1
+        spec = fields.SigFieldSpec(field_name, on_page=last_page, box=box)
+        style = StaticStampStyle(
+            background=_PdfPageBytes(appearance, field_name),
+            border_width=0,
+            background_layout=layout.SimpleBoxLayoutRule(  # drawn 1:1 into its box, no margins
+                x_align=layout.AxisAlignment.ALIGN_MIN, y_align=layout.AxisAlignment.ALIGN_MIN, margins=layout.Margins()
+            ),
+        )
+    else:
+        spec = fields.SigFieldSpec(
+            field_name, invis_sig_settings=fields.InvisSigSettings(set_print_flag=True, set_hidden_flag=False)
+        )
+    out = _TimedSigner(meta, signer, new_field_spec=spec, signed_at=signed_at, stamp_style=style).sign_pdf(writer)
     return out.getvalue()
+
+
+class _PdfPageBytes(content.PdfContent):
+    """The first page of a PDF held in memory, as a form XObject (pyHanko's ``ImportedPdfPage`` reads a file and
+    names the resource at random; this one is named after the field, so the same input gives the same bytes)."""
+
+    def __init__(self, pdf: bytes, name: str):
+        self.pdf, self.name = pdf, name
+        super().__init__()
+
+    def render(self) -> bytes:
+        xobj = self._ensure_writer.import_page_as_xobject(PdfFileReader(io.BytesIO(self.pdf)), page_ix=0)
+        resource = "/Appearance" + re.sub(r"[^A-Za-z0-9]", "", self.name)
+        self.resources.xobject[resource] = xobj
+        x1, y1, x2, y2 = xobj.get_object()["/BBox"]
+        self.box = layout.BoxConstraints(width=abs(x1 - x2), height=abs(y1 - y2))
+        return resource.encode("ascii") + b" Do"
 
 
 @dataclass(frozen=True)

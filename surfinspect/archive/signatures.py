@@ -28,7 +28,8 @@ from typing import Callable
 
 from ..errors import InputError
 from ..fsutil import sha256_bytes
-from ..results import SIGNOFF_MEANINGS, SignOff
+from ..report.signoff_page import slot_appearance, slot_box
+from ..results import SIGNOFF_MEANINGS, DispositionNote, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, certificate_spki, owner_certificate
 from .pdf_signature import sign_pdf, signature_reason
@@ -56,7 +57,7 @@ __all__ = [
 
 MEANINGS = SIGNOFF_MEANINGS
 DECISIONS = ("use-as-is", "rework", "scrap", "re-inspect")
-SIGNOFF_FORMAT = "surfinspect.signoff-record/2"
+SIGNOFF_FORMAT = "surfinspect.signoff-record/3"  # /2 and a list of the dispositions covered
 DISPOSITION_FORMAT = "surfinspect.disposition-record/1"
 
 
@@ -349,6 +350,7 @@ def sign_batch(
     _require_intact(archive, "signing", batch_id)
     events, head = archive.chain_head()
     number = 1 + len(archive.signoffs(batch_id))
+    dispositions = archive.dispositions(batch_id)
     record = {
         "format": SIGNOFF_FORMAT,
         "archive_id": archive.archive_id,
@@ -363,6 +365,7 @@ def sign_batch(
         "report_sha256": batch.report_sha256,
         "batch_content_sha256": archive.batch_content_sha256(batch_id),
         "results_sha256": archive.results_sha256(batch_id),
+        "dispositions_sha256": [d.record_sha256 for d in dispositions],
         "audit_events": events,
         "audit_head_sha256": head,
     }
@@ -377,6 +380,11 @@ def sign_batch(
         record_sha256=chain.canonical_sha256(record),
         report_sha256=batch.report_sha256,
         chain_head=f"{events} {head}",
+        dispositions=tuple(
+            DispositionNote(d.part_key, d.decision, d.signer_name, d.decided_at_utc, d.comment, d.disposition_no)
+            for d in dispositions
+        ),
+        signoff_no=number,
     )
     edition = _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff)
     row = SignoffRow(
@@ -411,11 +419,17 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         raise InputError(
             f"--key: the owner's certificate that issued the certificate of {key.fingerprint[:16]}… is missing"
         )
+    appearance = box = None
     if number == 1:
         base = render_edition(signoff)
     else:
-        previous = archive.signoffs(batch_id)[number - 2]
+        earlier = archive.signoffs(batch_id)
+        previous = earlier[number - 2]
         base = archive.read_object(previous.signed_report_sha256)
+        box = slot_box(number) if '"dispositions_sha256"' in earlier[0].record_json else None  # edition 1 has boxes
+        if box is not None:
+            since = tuple(d for d in signoff.dispositions if d.decided_at_utc > previous.signed_at_utc)
+            appearance = slot_appearance(signoff, since)
     return sign_pdf(
         base,
         private,
@@ -424,6 +438,8 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         field_name=f"signoff-{number}",
         reason=signature_reason(record["meaning"], record["comment"]),
         signed_at=pki.utc(record["signed_at_utc"]),
+        appearance=appearance,
+        box=box,
     )
 
 

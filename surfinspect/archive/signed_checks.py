@@ -292,6 +292,7 @@ def check_signoffs(ctx: Context) -> None:
                 ctx.fail(f"{who}: signed_at_utc {problem}")
             if record.get("report_sha256") != batch.report_sha256:
                 ctx.fail(f"{who}: the batch report in the index is not the one that was signed")
+            _check_covered_dispositions(ctx, who, bid, record)
             if "parts" in ctx.usable and "regions" in ctx.usable:
                 if record.get("batch_content_sha256") != ctx.archive.batch_content_sha256(bid):
                     ctx.fail(f"{who}: the batch's index content (batch, parts, regions) is not what was signed")
@@ -302,6 +303,20 @@ def check_signoffs(ctx: Context) -> None:
                     ctx.fail(
                         f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})"
                     )
+
+
+def _check_covered_dispositions(ctx: Context, who: str, batch_id: str, record: dict) -> None:
+    """The dispositions a sign-off covers (and its signed edition prints) are the archive's records, unchanged."""
+    listed = record.get("dispositions_sha256")
+    if listed is None or "dispositions" not in ctx.usable:
+        return  # a sign-off record of format /2 names none
+    held = {d.record_sha256: d for d in ctx.archive.dispositions(batch_id)}
+    for k, sha in enumerate(listed if isinstance(listed, list) else [], start=1):
+        if sha not in held:
+            ctx.fail(
+                f"{who}: disposition {k} of the {len(listed)} it covers (record SHA-256 {str(sha)[:16]}…) is not in "
+                "the archive as signed: its record was changed or removed"
+            )
 
 
 def check_dispositions(ctx: Context) -> None:

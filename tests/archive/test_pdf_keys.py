@@ -11,7 +11,9 @@ import json
 import shutil
 import subprocess
 
+import pikepdf
 import pytest
+from pdfa_checks import assert_pdfa_2b
 
 from surfinspect.archive import pki
 from surfinspect.archive import store as arc
@@ -64,7 +66,7 @@ def batch_archive(tmp_path, monkeypatch):
     root = tmp_path / "archive"
     with arc.Archive(root, create=True):
         pass
-    fill_batch(root, "B1", write_images(tmp_path / "in", ["p1.png"]), recipe)
+    fill_batch(root, "B1", write_images(tmp_path / "in", ["p1.png", "p2.png"]), recipe)  # p2 is a reject
     return root
 
 
@@ -74,14 +76,18 @@ def _sign(root, key, meaning, out, capsys):
     return capsys.readouterr().err
 
 
-def test_pdfsig_finds_both_signatures_valid_and_trusted(batch_archive, tmp_path, capsys):
-    root = batch_archive
+def _register(root, tmp_path):
     for who in ("qm", "insp"):
         assert _cli(None, "keygen", "--out", tmp_path / f"{who}.key", "--passphrase-env", "P") == 0
     assert _cli(None, "owner", "init", "--archive", root, "--name", "M. QUALITY", "--key", tmp_path / "qm.key",
                 "--passphrase-env", "P") == 0  # fmt: skip
     assert _cli(None, "signers", "add", "--archive", root, "--pub", tmp_path / "insp.key.pub", "--name",
                 "R. OSTERMANN", "--role", "inspector", "--by", tmp_path / "qm.key", "--passphrase-env", "P") == 0  # fmt: skip
+
+
+def test_pdfsig_finds_both_signatures_valid_and_trusted(batch_archive, tmp_path, capsys):
+    root = batch_archive
+    _register(root, tmp_path)
     assert "Ed25519" not in _sign(root, tmp_path / "insp.key", "examined", tmp_path / "s1.pdf", capsys)
     _sign(root, tmp_path / "insp.key", "released", tmp_path / "s2.pdf", capsys)
     assert _cli(None, "owner-certificate", "--archive", root, "--out", tmp_path / "owner.pem") == 0
@@ -160,3 +166,55 @@ def test_a_public_key_file_whose_pdf_key_was_swapped_is_refused(tmp_path, monkey
     (tmp_path / "a.key.pub").write_text(json.dumps(a))
     with pytest.raises(InputError, match="pdf_key_binding_hex: the Ed25519 key did not sign this PDF key"):
         signing.load_public_key(tmp_path / "a.key.pub")
+
+
+def _dispose(root, tmp_path, decision, comment):
+    assert _cli(None, "disposition", "--archive", root, "--batch-id", "B1", "--part", "p2.png", "--decision", decision,
+                "--comment", comment, "--key", tmp_path / "insp.key", "--passphrase-env", "P") == 0  # fmt: skip
+
+
+def test_every_signoff_and_disposition_is_readable_in_the_edition_that_carries_it(batch_archive, tmp_path, capsys):
+    import sqlite3
+
+    from pypdf import PdfReader
+
+    root = batch_archive
+    _register(root, tmp_path)
+    _dispose(root, tmp_path, "rework", "rebrush the face along 90 deg")
+    _sign(root, tmp_path / "insp.key", "examined", tmp_path / "s1.pdf", capsys)
+    _dispose(root, tmp_path, "scrap", "the rebrushed face is still off")
+    _sign(root, tmp_path / "insp.key", "released", tmp_path / "s2.pdf", capsys)
+    # reference: pypdf's text extraction; the boxes are signature appearances, which pikepdf (qpdf) flattens
+    # into the page first, as a printer does
+    flat = tmp_path / "flat.pdf"
+    with pikepdf.open(tmp_path / "s2.pdf") as pdf:
+        pdf.flatten_annotations("print")
+        pdf.save(flat)
+    pages = [page.extract_text() for page in PdfReader(flat).pages]
+    covered = pages[-2]  # printed by sign-off 1: the dispositions up to it
+    assert "p2.png: REWORK by R. OSTERMANN" in covered and "rebrush the face along 90 deg" in covered
+    assert "SCRAP" not in covered
+    last = pages[-1]  # sign-off 2's box, drawn by its signature's appearance in the incremental update
+    for text in ("SIGN-OFF 2", "R. OSTERMANN", "RELEASED", "released on the line", "p2.png: SCRAP by R. OSTERMANN",
+                 "the rebrushed face is still off", "Dispositions since sign-off 1: 1", "SIGN-OFF 3"):  # fmt: skip
+        assert text in last, text
+    assert PdfReader(tmp_path / "s1.pdf").pages[-1].extract_text().count("not signed yet") == 4
+    with arc.Archive(root) as a:
+        roots = pki.trust_roots(a)
+    first, second = pdf_signatures((tmp_path / "s2.pdf").read_bytes(), roots)
+    assert first.ok and second.ok and first.modified_after == "FORM_FILLING"  # a signature field was added
+    assert_pdfa_2b((tmp_path / "s2.pdf").read_bytes())  # the appearance's fonts are embedded too
+    png = tmp_path / "last"
+    if shutil.which("pdftoppm"):  # a picture of the page, to look at when the layout changes
+        subprocess.run(["pdftoppm", "-png", "-r", "60", "-f", str(len(pages)), str(tmp_path / "s2.pdf"), str(png)],
+                       check=True, stdin=subprocess.DEVNULL, timeout=60)  # fmt: skip
+    assert _cli(None, "verify", "--archive", root) == 0
+    # a disposition record changed behind the archive's back: verify names the sign-offs that cover it
+    db = sqlite3.connect(root / arc.INDEX_NAME)
+    db.execute("UPDATE dispositions SET record_sha256 = ? WHERE disposition_no = 1", ("0" * 64,))
+    db.commit()
+    db.close()
+    assert main(["verify", "--archive", str(root)]) == 1
+    said = capsys.readouterr().out
+    assert "sign-off #1 of batch 'B1'" in said and "disposition 1 of the 1 it covers" in said
+    assert "sign-off #2 of batch 'B1'" in said and "disposition 1 of the 2 it covers" in said
