@@ -42,6 +42,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
     )
     parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
+    parser.add_argument(
+        "--algorithm",
+        choices=("p256", "ed25519"),
+        default="p256",
+        help="p256 (default): the certificate of the owner's PDF key, which common readers check; ed25519: the one "
+        "that issued the certificates of keys without a PDF key (what an archive set up before PDF keys has)",
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
@@ -53,7 +60,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
     encoding = getattr(serialization.Encoding, _ENCODINGS[args.out[args.out.rfind(".") :].lower()])
     with location.open_archive(args.archive) as arc:
         register = arc.register()
-        pdf_cert = pki.owner_pdf_certificate_of(arc, register)
+        pdf_cert = pki.owner_pdf_certificate_of(arc, register) if args.algorithm == "p256" else None
         cert = pdf_cert or pki.owner_certificate_of(arc, register)
         if cert is None:
             if register.owner is None:
