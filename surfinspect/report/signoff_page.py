@@ -20,9 +20,10 @@ from reportlab.lib.utils import simpleSplit
 from reportlab.pdfgen.canvas import Canvas
 
 from ..pdfa.document import DocumentInfo, archival_canvas
-from ..pdfa.fonts import MONO, SANS, SANS_BOLD, SANS_OBLIQUE
+from ..pdfa.fonts import SANS, SANS_BOLD, SANS_OBLIQUE
 from ..results import DispositionNote, SignOff
-from .layout import _FRAME_W, _MARGIN, PAGE_SIZE, printable_text
+from .layout import _FRAME_W, _MARGIN, PAGE_SIZE, _fit_text, printable_text
+from .signoff import _signoff_rows
 
 __all__ = ["LATER_SLOTS", "slot_box", "signoff_pages", "slot_appearance"]
 
@@ -32,6 +33,7 @@ _TOP = PAGE_SIZE[1] - _MARGIN - 62  # below the page's title and explanation
 _SLOT_GAP = 8.0
 _SLOT_H = (_TOP - 60 - (LATER_SLOTS - 1) * _SLOT_GAP) / LATER_SLOTS
 _ROW = 9.0
+_BOX_LEAVES_OUT = ("Covers report",)  # the same unsigned report for every sign-off: printed in sign-off 1's block
 _SIZE = 7.0
 
 
@@ -97,7 +99,7 @@ def signoff_pages(signoff: SignOff):
             c.setStrokeColor(colors.Color(0.6, 0.6, 0.6))
             c.setDash([2, 3])
             c.setLineWidth(0.6)
-            c.rect(x1, y1, x2 - x1, y2 - y1, stroke=1, fill=0)
+            c.rect(x1 + 3, y1 + 3, x2 - x1 - 6, y2 - y1 - 6, stroke=1, fill=0)  # inside the box a signature fills
             c.setDash([])
             c.setFillColor(colors.Color(0.45, 0.45, 0.45))
             c.setFont(SANS_BOLD, 9)
@@ -136,22 +138,14 @@ def slot_appearance(signoff: SignOff, since: tuple[DispositionNote, ...]) -> byt
     c.drawString(
         80, h - 15, "Signed electronically (PDF signature of this box; the archive's verify checks the record)."
     )
-    name, _ = printable_text(signoff.signer_name)
-    comment, _ = printable_text(signoff.comment)
-    fields = [
-        ("Name (printed)", name, SANS_BOLD),
-        ("Meaning", signoff.meaning.upper(), SANS_BOLD),
-        ("Time (UTC)", signoff.signed_at_utc, SANS),
-        ("Key fingerprint", signoff.key_fingerprint, MONO),
-        ("Record SHA-256", signoff.record_sha256, MONO),
-        ("Comment", comment or "—", SANS),
-    ]
     y = h - 28
-    for label, value, font in fields:
+    for label, value, font in _signoff_rows(signoff):  # the sign-off block's own rows, less the report's hash
+        if label in _BOX_LEAVES_OUT:
+            continue
         c.setFont(SANS_BOLD, _SIZE)
         c.drawString(8, y, label)
         c.setFont(font, _SIZE)
-        c.drawString(84, y, value[:110])
+        c.drawString(84, y, _fit_text(c, str(value), font, _SIZE, w - 92))
         y -= _ROW
     c.setFont(SANS_BOLD, _SIZE)
     c.drawString(8, y, f"Dispositions since sign-off {signoff.signoff_no - 1}: {len(since) or 'none'}")
