@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from decimal import ROUND_HALF_UP, Decimal
 
-__all__ = ["ANGLE_DECIMALS", "format_fixed", "format_angle", "format_signed_angle"]
+__all__ = ["ANGLE_DECIMALS", "format_fixed", "format_angle", "format_signed_angle", "region_lay_text"]
 
 #: Decimals of every printed angle (lay, deviation, uncertainty).
 ANGLE_DECIMALS = 2
@@ -48,3 +48,18 @@ def format_signed_angle(value: float | None) -> str:
     if value is None:
         return "—"
     return format_fixed(value, ANGLE_DECIMALS, signed=True) + "°"
+
+
+def region_lay_text(r: dict) -> tuple[str, str]:
+    """The lay column of a region (JSON form) and what its lay and deviation columns hold, in words."""
+    pattern = r.get("lay_pattern", "directional")
+    if pattern == "crossed":
+        peaks = (r.get("extra") or {}).get("crossed_lay_deg") or []
+        lay = " / ".join(format_angle(v, axial=True) for v in peaks) if peaks else format_angle(None, axial=True)
+        return lay, "both peaks; the larger deviation of the two"
+    if pattern in ("circular", "radial"):
+        along = "tangent" if pattern == "circular" else "radius"
+        return format_angle(r["lay_deg"], axial=True), f"no one lay; mean cell deviation from the {along}"
+    if pattern in ("multidirectional", "particulate", "any"):
+        return format_angle(r["lay_deg"], axial=True), "direction not judged"
+    return format_angle(r["lay_deg"], axial=True), "region lay; its deviation"

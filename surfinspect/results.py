@@ -408,6 +408,18 @@ SIGNOFF_MEANINGS = ("released", "withheld", "examined")
 
 
 @dataclass(frozen=True)
+class DispositionNote:
+    """A disposition as a signed edition prints it: what is to become of a doubtful part, who decided, when, why."""
+
+    part_key: str
+    decision: str  # use-as-is, rework, scrap, re-inspect
+    signer_name: str
+    decided_at_utc: str
+    comment: str = ""
+    disposition_no: int = 1
+
+
+@dataclass(frozen=True)
 class SignOff:
     """What a signed report shows in its sign-off block (filled by the archive)."""
 
@@ -419,3 +431,5 @@ class SignOff:
     record_sha256: str = ""  # hash of the canonical signed record
     report_sha256: str = ""  # hash of the unsigned batch report the signature covers
     chain_head: str = ""  # "N <sha256>": the archive's audit chain head the signature covers (an anchor on paper)
+    dispositions: tuple[DispositionNote, ...] = ()  # the batch's dispositions this sign-off covers (printed with it)
+    signoff_no: int = 1

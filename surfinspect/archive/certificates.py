@@ -15,6 +15,14 @@ with ``cryptography``'s X.509 builder:
   limited to 64 characters), the role, the archive; key usage digital
   signature and non-repudiation (content commitment).
 
+Each holder has two keys (:mod:`.signing`): the Ed25519 identity key and a
+PDF key (ECDSA P-256), since most PDF readers cannot verify Ed25519. So an
+owner with a PDF key has a second CA certificate, self-signed with ECDSA
+P-256 and SHA-256 (organisational unit ``owner, PDF signatures``), which
+issues the certificates of the signers' PDF keys; that one is the
+certificate customers trust. An owner without a PDF key (an archive set up
+before PDF keys) issues the PDF-key certificates with its Ed25519 one.
+
 Certificates carry no expiry (RFC 5280, 4.1.2.5: notAfter 99991231235959Z
 "to indicate that a certificate has no well-defined expiration date"): a
 report must still verify in ten years, and the register's revocation, not a
@@ -37,6 +45,7 @@ from datetime import datetime, timezone
 from cryptography import x509
 from cryptography.exceptions import InvalidSignature
 from cryptography.hazmat.primitives import hashes, serialization
+from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey, Ed25519PublicKey
 from cryptography.x509.oid import NameOID
 
@@ -47,6 +56,8 @@ __all__ = [
     "certificate_der",
     "load_certificate",
     "certificate_key_raw",
+    "certificate_spki",
+    "PDF_OWNER_UNIT",
     "certificate_name",
     "certificate_problems",
     "certificate_sha256",
@@ -55,6 +66,8 @@ __all__ = [
 #: RFC 5280, 4.1.2.5: the notAfter of a certificate without a well-defined expiration date.
 NO_EXPIRY = datetime(9999, 12, 31, 23, 59, 59, tzinfo=timezone.utc)
 _CN_MAX = 64  # RFC 5280, Appendix A.1: ub-common-name (cryptography counts UTF-8 octets)
+#: The organisational unit of the owner's CA certificate for PDF keys (its subject differs from the Ed25519 one's).
+PDF_OWNER_UNIT = "owner, PDF signatures"
 
 
 def _subject(printed_name: str, archive_id: str, role: str) -> x509.Name:
@@ -88,9 +101,10 @@ def _key_usage(*, authority: bool) -> x509.KeyUsage:
     )
 
 
-def _serial(archive_id: str, entry_no: int) -> int:
-    """A positive serial of at most 20 octets (RFC 5280, 4.1.2.2), unique per archive entry."""
-    digest = hashlib.sha256(f"{archive_id}/{entry_no}".encode()).digest()
+def _serial(archive_id: str, entry_no: int, public) -> int:
+    """A positive serial of at most 20 octets (RFC 5280, 4.1.2.2), unique per archive entry and key kind."""
+    kind = "" if isinstance(public, Ed25519PublicKey) else "/pdf-key"
+    digest = hashlib.sha256(f"{archive_id}/{entry_no}{kind}".encode()).digest()
     return int.from_bytes(digest[:16], "big") >> 1 | 1
 
 
@@ -98,31 +112,41 @@ def _utc(when: datetime) -> datetime:
     return (when if when.tzinfo else when.replace(tzinfo=timezone.utc)).astimezone(timezone.utc).replace(microsecond=0)
 
 
+def _hash_for(key):
+    """Ed25519 takes no separate hash (RFC 8410, 6); ECDSA P-256 signs with SHA-256 (RFC 5758, 3.2)."""
+    return None if isinstance(key, Ed25519PrivateKey) else hashes.SHA256()
+
+
 def owner_certificate(
-    owner_key: Ed25519PrivateKey, *, printed_name: str, archive_id: str, entry_no: int, issued_at: datetime
+    owner_key: Ed25519PrivateKey | ec.EllipticCurvePrivateKey,
+    *,
+    printed_name: str,
+    archive_id: str,
+    entry_no: int,
+    issued_at: datetime,
 ) -> x509.Certificate:
     """The owner's self-signed CA certificate (path length 0: it certifies signers, not other CAs)."""
-    name = _subject(printed_name, archive_id, "owner")
     public = owner_key.public_key()
+    name = _subject(printed_name, archive_id, "owner" if isinstance(public, Ed25519PublicKey) else PDF_OWNER_UNIT)
     return (
         x509.CertificateBuilder()
         .subject_name(name)
         .issuer_name(name)
         .public_key(public)
-        .serial_number(_serial(archive_id, entry_no))
+        .serial_number(_serial(archive_id, entry_no, public))
         .not_valid_before(_utc(issued_at))
         .not_valid_after(NO_EXPIRY)
         .add_extension(x509.BasicConstraints(ca=True, path_length=0), critical=True)
         .add_extension(_key_usage(authority=True), critical=True)
         .add_extension(x509.SubjectKeyIdentifier.from_public_key(public), critical=False)
-        .sign(owner_key, None)  # Ed25519 takes no separate hash (RFC 8410, 6)
+        .sign(owner_key, _hash_for(owner_key))
     )
 
 
 def signer_certificate(
-    owner_key: Ed25519PrivateKey,
+    owner_key: Ed25519PrivateKey | ec.EllipticCurvePrivateKey,
     owner_cert: x509.Certificate,
-    subject_public_raw: bytes,
+    subject_public: bytes,
     *,
     printed_name: str,
     role: str,
@@ -130,14 +154,18 @@ def signer_certificate(
     entry_no: int,
     issued_at: datetime,
 ) -> x509.Certificate:
-    """A signer's certificate for the enrolled Ed25519 key, issued by the owner."""
-    public = Ed25519PublicKey.from_public_bytes(subject_public_raw)
+    """A signer's certificate, issued by the owner: ``subject_public`` is the raw 32-byte Ed25519 key, or the
+    DER SubjectPublicKeyInfo of the PDF key."""
+    if len(subject_public) == 32:
+        public = Ed25519PublicKey.from_public_bytes(subject_public)
+    else:
+        public = serialization.load_der_public_key(subject_public)
     return (
         x509.CertificateBuilder()
         .subject_name(_subject(printed_name, archive_id, role))
         .issuer_name(owner_cert.subject)
         .public_key(public)
-        .serial_number(_serial(archive_id, entry_no))
+        .serial_number(_serial(archive_id, entry_no, public))
         .not_valid_before(_utc(issued_at))
         .not_valid_after(NO_EXPIRY)
         .add_extension(x509.BasicConstraints(ca=False, path_length=None), critical=True)
@@ -147,7 +175,7 @@ def signer_certificate(
             x509.AuthorityKeyIdentifier.from_issuer_public_key(owner_cert.public_key()),  # type: ignore[arg-type]
             critical=False,
         )
-        .sign(owner_key, None)
+        .sign(owner_key, _hash_for(owner_key))
     )
 
 
@@ -175,6 +203,11 @@ def certificate_key_raw(cert: x509.Certificate) -> bytes | None:
     return key.public_bytes(serialization.Encoding.Raw, serialization.PublicFormat.Raw)
 
 
+def certificate_spki(cert: x509.Certificate) -> bytes:
+    """The DER SubjectPublicKeyInfo the certificate certifies (how records name a PDF key)."""
+    return cert.public_key().public_bytes(serialization.Encoding.DER, serialization.PublicFormat.SubjectPublicKeyInfo)
+
+
 def certificate_name(cert: x509.Certificate) -> str | None:
     """The printed name a certificate gives: its X.520 ``name`` attribute, else its common name."""
     for oid in (x509.ObjectIdentifier("2.5.4.41"), NameOID.COMMON_NAME):
@@ -185,7 +218,13 @@ def certificate_name(cert: x509.Certificate) -> str | None:
 
 
 def certificate_problems(
-    cert: x509.Certificate, owner_cert: x509.Certificate, *, public_key_raw: bytes, printed_name: str, archive_id: str
+    cert: x509.Certificate,
+    owner_cert: x509.Certificate,
+    *,
+    public_key_raw: bytes,
+    printed_name: str,
+    archive_id: str,
+    pdf_public_der: bytes | None = None,
 ) -> list[str]:
     """What does not hold of a signer's certificate against the register's entry (empty when all holds)."""
     problems = []
@@ -195,7 +234,10 @@ def certificate_problems(
         problems.append(
             f"not issued by the archive owner's certificate ({str(exc) or 'its signature does not verify'})"
         )
-    if certificate_key_raw(cert) != public_key_raw:
+    if pdf_public_der is not None:
+        if certificate_spki(cert) != pdf_public_der:
+            problems.append("certifies another PDF key than the register's")
+    elif certificate_key_raw(cert) != public_key_raw:
         problems.append("certifies another key than the register's")
     if certificate_name(cert) != printed_name:
         problems.append(f"names {certificate_name(cert)!r}, the register {printed_name!r}")

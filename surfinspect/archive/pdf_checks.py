@@ -49,6 +49,7 @@ class SignedEdition:
     signed_at_utc: str
     edition_sha256: str
     edition: bytes | None
+    pdf_public_key_hex: str | None = None  # the PDF key the register certified for the signer (None: none)
 
 
 @dataclass(frozen=True)
@@ -80,7 +81,10 @@ def _signature_problems(sig: PdfSignatureCheck, record: SignedEdition) -> list[s
         problems.append("its certificate does not chain to the archive owner's certificate")
     if sig.intact and not sig.whole_revision:
         problems.append("it does not cover its whole revision")
-    if sig.key_raw is not None and _fingerprint(sig.key_raw) != record.key_fingerprint:
+    if sig.key_raw is None and sig.key_spki is not None:  # a PDF key: the register's for the record's signer
+        if record.pdf_public_key_hex is None or sig.key_spki.hex() != record.pdf_public_key_hex:
+            problems.append(f"its certificate is not for the PDF key the register certified for {record.signer_name}")
+    elif sig.key_raw is not None and _fingerprint(sig.key_raw) != record.key_fingerprint:
         problems.append(
             f"its certificate is for key {str(_fingerprint(sig.key_raw))[:16]}…, the record's is "
             f"{record.key_fingerprint[:16]}…"
@@ -137,7 +141,7 @@ def _edition_findings(
 def edition_findings(
     batch_id: str,
     editions: list[SignedEdition],
-    owner_certificate: x509.Certificate,
+    owner_certificate: x509.Certificate | list[x509.Certificate],
     revoked: dict[str, Revocation],
 ) -> tuple[list[str], list[str]]:
     """(problems, warnings) of every signed edition of one batch, each naming the edition."""
@@ -176,6 +180,7 @@ def check_pdf_signatures(ctx) -> None:
             )
         return
     _check_certificates(ctx, register, owner_cert)
+    roots = pki.trust_roots(ctx.archive, register)
     revoked = {
         fp: Revocation(s.printed_name, s.revoked_at_utc, s.revoked_entry_no)
         for fp, s in register.signers.items()
@@ -198,9 +203,10 @@ def check_pdf_signatures(ctx) -> None:
                     s.signed_at_utc,
                     s.signed_report_sha256,
                     data,
+                    getattr(register.signers.get(s.key_fingerprint), "pdf_public_key_hex", None),
                 )
             )
-        problems, warnings = edition_findings(batch.batch_id, editions, owner_cert, revoked)
+        problems, warnings = edition_findings(batch.batch_id, editions, roots, revoked)
         for p in problems:
             ctx.fail(p)
         for w in warnings:
@@ -212,15 +218,24 @@ def _check_certificates(ctx, register, owner_cert) -> None:
     from . import pki
     from .certificates import certificate_problems
 
+    owner_pdf = pki.owner_pdf_certificate_of(ctx.archive, register)
     for fp, signer in register.signers.items():
-        cert = pki.certificate_of(ctx.archive, fp, register)
-        if cert is None:
-            continue  # enrolled before certificates: its sign-offs say so when it signs
-        for p in certificate_problems(
-            cert,
-            owner_cert,
-            public_key_raw=bytes.fromhex(signer.public_key_hex),
-            printed_name=signer.printed_name,
-            archive_id=ctx.archive.archive_id,
-        ):
-            ctx.fail(f"certificate of {signer.printed_name} ({fp[:16]}…): {p}")
+        pdf_hex = signer.pdf_public_key_hex
+        pairs = [("certificate", pki.certificate_of(ctx.archive, fp, register), owner_cert, None)]
+        if pdf_hex is not None:
+            pdf_cert = pki.pdf_certificate_of(ctx.archive, fp, register)
+            if pdf_cert is None:
+                ctx.fail(f"PDF-key certificate of {signer.printed_name} ({fp[:16]}…): missing from the archive")
+            pairs.append(("PDF-key certificate", pdf_cert, owner_pdf or owner_cert, bytes.fromhex(pdf_hex)))
+        for what, cert, issuer, pdf_der in pairs:
+            if cert is None:
+                continue  # enrolled before certificates: its sign-offs say so when it signs
+            for p in certificate_problems(
+                cert,
+                issuer,
+                public_key_raw=bytes.fromhex(signer.public_key_hex),
+                printed_name=signer.printed_name,
+                archive_id=ctx.archive.archive_id,
+                pdf_public_der=pdf_der,
+            ):
+                ctx.fail(f"{what} of {signer.printed_name} ({fp[:16]}…): {p}")

@@ -1,9 +1,11 @@
 """PDF signatures (PAdES baseline B-B, ETSI EN 319 142-1) on the signed editions, made and checked with pyHanko.
 
 A signed edition carries one PDF signature per sign-off: a CMS signature
-(``ETSI.CAdES.detached``) by the signer's enrolled Ed25519 key (RFC 8419:
-Ed25519 in CMS, digest SHA-512), with the signer's certificate and the
-owner's certificate embedded, the meaning and comment as the signature's
+(``ETSI.CAdES.detached``) by the signer's PDF key (ECDSA P-256 with SHA-256,
+which poppler/NSS and other common readers verify) or, for a holder whose
+key file predates PDF keys, by the enrolled Ed25519 key (RFC 8419: Ed25519
+in CMS, digest SHA-512), with the signer's certificate and the issuing
+owner certificate embedded, the meaning and comment as the signature's
 reason, the sign-off's UTC time as its time (``/M``; B-B carries no
 signing-time attribute, EN 319 142-1, 5.2.1). The field is invisible (zero
 rectangle) but printable, as PDF/A-2 wants of every annotation (ISO 19005-2,
@@ -43,17 +45,19 @@ from asn1crypto import keys as asn1_keys
 from asn1crypto import x509 as asn1_x509
 from cryptography import x509
 from cryptography.hazmat.primitives import serialization
+from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
-from pyhanko.pdf_utils import generic
+from pyhanko.pdf_utils import content, generic, layout
 from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
 from pyhanko.pdf_utils.reader import PdfFileReader
 from pyhanko.sign import fields, signers
 from pyhanko.sign.signers.pdf_signer import PdfSigner
 from pyhanko.sign.validation import validate_pdf_signature
+from pyhanko.stamp import StaticStampStyle
 from pyhanko_certvalidator import ValidationContext
 from pyhanko_certvalidator.registry import SimpleCertificateStore
 
-from .certificates import certificate_der, certificate_key_raw, certificate_name
+from .certificates import certificate_der, certificate_key_raw, certificate_name, certificate_spki
 
 __all__ = ["SIGNATURE_FIELD_PREFIX", "PdfSignatureCheck", "sign_pdf", "pdf_signatures", "signature_reason"]
 
@@ -124,13 +128,15 @@ class _TimedSigner(PdfSigner):
 
 def sign_pdf(
     pdf: bytes,
-    key: Ed25519PrivateKey,
+    key: Ed25519PrivateKey | ec.EllipticCurvePrivateKey,
     certificate: x509.Certificate,
     owner_certificate: x509.Certificate,
     *,
     field_name: str,
     reason: str,
     signed_at: datetime,
+    appearance: bytes | None = None,
+    box: tuple[float, float, float, float] | None = None,
 ) -> bytes:
     """``pdf`` with one more PAdES B-B signature, appended as an incremental update.
 
@@ -138,14 +144,17 @@ def sign_pdf(
     ----------
     pdf : bytes
         The edition to sign (the report, or the previous signed edition).
-    key : Ed25519PrivateKey
-        The signer's enrolled key; ``certificate`` certifies it, issued by ``owner_certificate``.
+    key : Ed25519PrivateKey or EllipticCurvePrivateKey
+        The signer's PDF key (P-256) or Ed25519 key; ``certificate`` certifies it, issued by ``owner_certificate``.
     field_name : str
         The new signature field's name (``signoff-N``).
     reason : str
         The signature's reason (:func:`signature_reason`).
     signed_at : datetime
         The signing time written into the signature (the sign-off's time).
+    appearance, box : bytes, tuple, optional
+        A one-page PDF drawn as the signature's visible appearance in ``box`` (x1, y1, x2, y2, points) on the
+        last page; without them the signature is invisible (but printable).
     """
     key_info = asn1_keys.PrivateKeyInfo.load(
         key.private_bytes(serialization.Encoding.DER, serialization.PrivateFormat.PKCS8, serialization.NoEncryption())
@@ -158,16 +167,46 @@ def sign_pdf(
     meta = signers.PdfSignatureMetadata(
         field_name=field_name,
         reason=reason,
-        md_algorithm="sha512",  # RFC 8419, 3.1: Ed25519 with SHA-512 in CMS
+        # RFC 8419, 3.1: Ed25519 with SHA-512 in CMS; RFC 5754, 3.3: ECDSA P-256 with SHA-256
+        md_algorithm="sha512" if isinstance(key, Ed25519PrivateKey) else "sha256",
         subfilter=fields.SigSeedSubFilter.PADES,
-    )
-    spec = fields.SigFieldSpec(
-        field_name, invis_sig_settings=fields.InvisSigSettings(set_print_flag=True, set_hidden_flag=False)
     )
     writer = _ArchivalIncrementalWriter(io.BytesIO(pdf))
     writer.signed_at = signed_at
-    out = _TimedSigner(meta, signer, new_field_spec=spec, signed_at=signed_at).sign_pdf(writer)
+    style = None
+    if appearance is not None and box is not None:
+        last_page = int(writer.root["/Pages"]["/Count"]) - 1
+        spec = fields.SigFieldSpec(field_name, on_page=last_page, box=box)
+        style = StaticStampStyle(
+            background=_PdfPageBytes(appearance, field_name),
+            border_width=0,
+            background_layout=layout.SimpleBoxLayoutRule(  # drawn 1:1 into its box, no margins
+                x_align=layout.AxisAlignment.ALIGN_MIN, y_align=layout.AxisAlignment.ALIGN_MIN, margins=layout.Margins()
+            ),
+        )
+    else:
+        spec = fields.SigFieldSpec(
+            field_name, invis_sig_settings=fields.InvisSigSettings(set_print_flag=True, set_hidden_flag=False)
+        )
+    out = _TimedSigner(meta, signer, new_field_spec=spec, signed_at=signed_at, stamp_style=style).sign_pdf(writer)
     return out.getvalue()
+
+
+class _PdfPageBytes(content.PdfContent):
+    """The first page of a PDF held in memory, as a form XObject (pyHanko's ``ImportedPdfPage`` reads a file and
+    names the resource at random; this one is named after the field, so the same input gives the same bytes)."""
+
+    def __init__(self, pdf: bytes, name: str):
+        self.pdf, self.name = pdf, name
+        super().__init__()
+
+    def render(self) -> bytes:
+        xobj = self._ensure_writer.import_page_as_xobject(PdfFileReader(io.BytesIO(self.pdf)), page_ix=0)
+        resource = "/Appearance" + re.sub(r"[^A-Za-z0-9]", "", self.name)
+        self.resources.xobject[resource] = xobj
+        x1, y1, x2, y2 = xobj.get_object()["/BBox"]
+        self.box = layout.BoxConstraints(width=abs(x1 - x2), height=abs(y1 - y2))
+        return resource.encode("ascii") + b" Do"
 
 
 @dataclass(frozen=True)
@@ -179,7 +218,8 @@ class PdfSignatureCheck:
     valid: bool  # the CMS signature verifies with the certificate's key
     trusted: bool  # the certificate path ends at the owner's certificate
     signer_name: str | None
-    key_raw: bytes | None
+    key_raw: bytes | None  # the raw Ed25519 key certified (None for a PDF key)
+    key_spki: bytes | None  # the DER SubjectPublicKeyInfo certified (any algorithm)
     reason: str | None
     signed_at: datetime | None
     covered_sha256: str  # SHA-256 of the file up to the end of the revision the signature covers
@@ -192,13 +232,14 @@ class PdfSignatureCheck:
         return self.intact and self.valid and self.trusted and self.whole_revision and not self.problems
 
 
-def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate) -> list[PdfSignatureCheck]:
-    """Every PDF signature of ``pdf``, validated by pyHanko with the owner's certificate as the only trust root.
+def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate | list[x509.Certificate]) -> list[PdfSignatureCheck]:
+    """Every PDF signature of ``pdf``, validated by pyHanko with the owner's certificates as the only trust roots.
 
     A document pyHanko cannot read gives one check with the reason in ``problems``.
     """
+    roots = owner_certificate if isinstance(owner_certificate, list) else [owner_certificate]
     context = ValidationContext(
-        trust_roots=[_asn1(owner_certificate)], allow_fetching=False, revocation_mode="soft-fail"
+        trust_roots=[_asn1(c) for c in roots], allow_fetching=False, revocation_mode="soft-fail"
     )
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
@@ -210,7 +251,7 @@ def pdf_signatures(pdf: bytes, owner_certificate: x509.Certificate) -> list[PdfS
 
 def _unreadable(pdf: bytes, why: str) -> PdfSignatureCheck:
     return PdfSignatureCheck(
-        "", False, False, False, None, None, None, None, hashlib.sha256(pdf).hexdigest(), False, "", (why,)
+        "", False, False, False, None, None, None, None, None, hashlib.sha256(pdf).hexdigest(), False, "", (why,)
     )
 
 
@@ -237,6 +278,7 @@ def _check(sig, pdf: bytes, context: ValidationContext) -> PdfSignatureCheck:
         trusted=trusted,
         signer_name=certificate_name(cert) if cert is not None else None,
         key_raw=certificate_key_raw(cert) if cert is not None else None,
+        key_spki=certificate_spki(cert) if cert is not None else None,
         reason=str(reason) if reason is not None else None,
         signed_at=_parse_pdf_date(str(when)) if when is not None else None,
         covered_sha256=hashlib.sha256(pdf[:end]).hexdigest(),

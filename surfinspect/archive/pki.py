@@ -24,6 +24,9 @@ __all__ = [
     "stored_certificates",
     "owner_certificate_of",
     "certificate_of",
+    "owner_pdf_certificate_of",
+    "pdf_certificate_of",
+    "trust_roots",
     "owner_certificate_for",
     "signer_certificate_for",
 ]
@@ -80,6 +83,36 @@ def certificate_of(archive, fingerprint: str, register: Register | None = None) 
     return None
 
 
+def _by_spki(archive, spki_hex: str | None, *, ca: bool) -> x509.Certificate | None:
+    if spki_hex is None:
+        return None
+    der = bytes.fromhex(spki_hex)
+    for cert in stored_certificates(archive):
+        if _is_ca(cert) == ca and certs.certificate_spki(cert) == der and (not ca or cert.issuer == cert.subject):
+            return cert
+    return None
+
+
+def owner_pdf_certificate_of(archive, register: Register | None = None) -> x509.Certificate | None:
+    """The owner's CA certificate for its PDF key (None when the owner has no PDF key certified)."""
+    register = register or archive.register()
+    return None if register.owner is None else _by_spki(archive, register.owner.pdf_public_key_hex, ca=True)
+
+
+def pdf_certificate_of(archive, fingerprint: str, register: Register | None = None) -> x509.Certificate | None:
+    """The certificate of an enrolled holder's PDF key (None when it has none)."""
+    register = register or archive.register()
+    signer = register.signers.get(fingerprint)
+    return None if signer is None else _by_spki(archive, signer.pdf_public_key_hex, ca=False)
+
+
+def trust_roots(archive, register: Register | None = None) -> list[x509.Certificate]:
+    """The owner's CA certificates: the PDF key's (what readers check) first, then the Ed25519 one's."""
+    register = register or archive.register()
+    found = [owner_pdf_certificate_of(archive, register), owner_certificate_of(archive, register)]
+    return [c for c in found if c is not None]
+
+
 def owner_certificate_for(owner_key, owner: Signer, archive_id: str) -> x509.Certificate:
     """The owner's certificate as its register entry implies it."""
     return certs.owner_certificate(
@@ -94,7 +127,7 @@ def owner_certificate_for(owner_key, owner: Signer, archive_id: str) -> x509.Cer
 def signer_certificate_for(
     owner_key,
     owner_cert: x509.Certificate,
-    public_key_raw: bytes,
+    public_key: bytes,
     *,
     printed_name: str,
     role: str,
@@ -102,11 +135,11 @@ def signer_certificate_for(
     entry_no: int,
     recorded_at_utc: str,
 ) -> x509.Certificate:
-    """A signer's certificate for an enrolment entry."""
+    """A signer's certificate for an enrolment entry (``public_key``: raw Ed25519, or a PDF key's DER)."""
     return certs.signer_certificate(
         owner_key,
         owner_cert,
-        public_key_raw,
+        public_key,
         printed_name=printed_name,
         role=role,
         archive_id=archive_id,

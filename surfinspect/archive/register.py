@@ -17,15 +17,24 @@ dispositions and sign the chain head with each.
 Record (canonical JSON, signed by the owner's key)::
 
     {"format": "surfinspect.register-entry/1", "archive_id", "entry_no",
-     "action": "owner" | "enrol" | "revoke", "key_fingerprint", "public_key_hex",
+     "action": "owner" | "enrol" | "revoke" | "pdf-key", "key_fingerprint", "public_key_hex",
      "printed_name", "role", "reason", "recorded_at_utc", "by_fingerprint",
-     "audit_events", "audit_head_sha256"}
+     "audit_events", "audit_head_sha256"[, "pdf_public_key_hex", "pdf_key_binding_hex"]}
+
+The two optional fields bind the holder's PDF key (ECDSA P-256, DER
+SubjectPublicKeyInfo in hex) to the same person as the Ed25519 key, with
+the Ed25519 key's own signature of that binding (:func:`.signing.pdf_key_binding`).
+``owner`` and ``enrol`` entries carry them when the key file has a PDF key;
+a ``pdf-key`` entry adds a PDF key to an enrolled holder (or the owner) whose
+key was made before PDF keys. They are fields of the signed record only (no
+index column), so entries made before them read and verify unchanged.
 """
 
 from __future__ import annotations
 
+import json
 import unicodedata
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Iterable
 
 from ..errors import InputError
@@ -38,13 +47,28 @@ __all__ = [
     "Signer",
     "Register",
     "entry_record",
+    "pdf_key_of",
+    "PDF_KEY_ACTION",
+    "ACTIONS",
     "check_printed_text",
 ]
 
 ENTRY_FORMAT = "surfinspect.register-entry/1"
+#: The register action that certifies a PDF key for a holder enrolled before PDF keys.
+PDF_KEY_ACTION = "pdf-key"
+ACTIONS = ("owner", "enrol", "revoke", PDF_KEY_ACTION)
 STATION_ROLE = "station"
 OWNER_ROLE = "owner"
 _MAX_NAME = 120
+
+
+def pdf_key_of(row: RegisterRow) -> str | None:
+    """The PDF key (DER SubjectPublicKeyInfo in hex) an entry's signed record names, or None."""
+    try:
+        value = json.loads(row.record_json).get("pdf_public_key_hex")
+    except (ValueError, TypeError, AttributeError):
+        return None
+    return value if isinstance(value, str) and value else None
 
 
 def check_printed_text(flag: str, text: str, *, max_len: int = _MAX_NAME) -> str:
@@ -67,6 +91,7 @@ class Signer:
     entry_no: int
     revoked_at_utc: str | None = None
     revoked_entry_no: int | None = None
+    pdf_public_key_hex: str | None = None  # the PDF key the owner certified for this holder (None: none yet)
 
     @property
     def is_station(self) -> bool:
@@ -88,14 +113,34 @@ class Register:
             self._apply(row)
 
     def _apply(self, row: RegisterRow) -> None:
+        pdf_key = pdf_key_of(row)
         if row.action == "owner" and self.owner is None:
             self.owner = Signer(
-                row.key_fingerprint, row.public_key_hex, row.printed_name, OWNER_ROLE, row.recorded_at_utc, row.entry_no
+                row.key_fingerprint,
+                row.public_key_hex,
+                row.printed_name,
+                OWNER_ROLE,
+                row.recorded_at_utc,
+                row.entry_no,
+                pdf_public_key_hex=pdf_key,
             )
         elif row.action == "enrol" and row.key_fingerprint not in self.signers:
             self.signers[row.key_fingerprint] = Signer(
-                row.key_fingerprint, row.public_key_hex, row.printed_name, row.role, row.recorded_at_utc, row.entry_no
+                row.key_fingerprint,
+                row.public_key_hex,
+                row.printed_name,
+                row.role,
+                row.recorded_at_utc,
+                row.entry_no,
+                pdf_public_key_hex=pdf_key,
             )
+        elif row.action == PDF_KEY_ACTION and pdf_key is not None:
+            if self.owner is not None and row.key_fingerprint == self.owner.key_fingerprint:
+                self.owner = replace(self.owner, pdf_public_key_hex=pdf_key)
+            elif row.key_fingerprint in self.signers:
+                self.signers[row.key_fingerprint] = replace(
+                    self.signers[row.key_fingerprint], pdf_public_key_hex=pdf_key
+                )
         elif row.action == "revoke" and row.key_fingerprint in self.signers:
             old = self.signers[row.key_fingerprint]
             if old.revoked_at_utc is None:
@@ -169,9 +214,19 @@ def entry_record(
     by_fingerprint: str,
     audit_events: int,
     audit_head_sha256: str,
+    pdf_public_key_hex: str | None = None,
+    pdf_key_binding_hex: str | None = None,
 ) -> dict:
-    """The register entry's record, as the owner signs it."""
-    return {
+    """The register entry's record, as the owner signs it (the PDF key's fields only when there is one)."""
+    pdf = (
+        {}
+        if pdf_public_key_hex is None
+        else {
+            "pdf_public_key_hex": pdf_public_key_hex,
+            "pdf_key_binding_hex": pdf_key_binding_hex,
+        }
+    )
+    return pdf | {
         "format": ENTRY_FORMAT,
         "archive_id": archive_id,
         "entry_no": entry_no,

@@ -28,12 +28,13 @@ from typing import Callable
 
 from ..errors import InputError
 from ..fsutil import sha256_bytes
-from ..results import SIGNOFF_MEANINGS, SignOff
+from ..report.signoff_page import slot_appearance, slot_box
+from ..results import SIGNOFF_MEANINGS, DispositionNote, SignOff
 from . import chain, pki, signing
-from .certificates import certificate_der, owner_certificate
+from .certificates import certificate_der, certificate_spki, owner_certificate
 from .pdf_signature import sign_pdf, signature_reason
 from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
-from .register import OWNER_ROLE, check_printed_text, entry_record
+from .register import OWNER_ROLE, PDF_KEY_ACTION, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
 from .store import ERROR_VERDICT, Archive, utc_now
 
@@ -48,13 +49,15 @@ __all__ = [
     "init_owner",
     "enrol_signer",
     "revoke_signer",
+    "certify_pdf_key",
+    "pdf_signing_key",
     "sign_batch",
     "record_disposition",
 ]
 
 MEANINGS = SIGNOFF_MEANINGS
 DECISIONS = ("use-as-is", "rework", "scrap", "re-inspect")
-SIGNOFF_FORMAT = "surfinspect.signoff-record/2"
+SIGNOFF_FORMAT = "surfinspect.signoff-record/3"  # /2 and a list of the dispositions covered
 DISPOSITION_FORMAT = "surfinspect.disposition-record/1"
 
 
@@ -76,10 +79,10 @@ def _require_intact(archive: Archive, what: str, batch_id: str | None = None) ->
 
 
 def _register_entry(
-    archive, owner_key, *, action, subject_fp, subject_pub, name, role, reason, certify=None
+    archive, owner_key, *, action, subject_fp, subject_pub, name, role, reason, certify=None, pdf=None
 ) -> RegisterRow:
     """Sign and store one register entry; ``certify(entry_no, recorded_at_utc)`` gives the certificates
-    (:mod:`.pki`) stored with it."""
+    (:mod:`.pki`) stored with it; ``pdf`` is (PDF key DER, binding signature) when the entry names a PDF key."""
     register = archive.register()
     events, head = archive.chain_head()
     at = utc_now()
@@ -96,6 +99,8 @@ def _register_entry(
         by_fingerprint=owner_key.fingerprint,
         audit_events=events,
         audit_head_sha256=head,
+        pdf_public_key_hex=pdf[0].hex() if pdf else None,
+        pdf_key_binding_hex=pdf[1].hex() if pdf else None,
     )
     signature = owner_key.sign(chain.canonical_bytes(record))
     columns = {f: record[f] for f in RegisterRow.__dataclass_fields__ if f in record}
@@ -118,6 +123,7 @@ def init_owner(archive: Archive, owner_key: signing.SigningKey, printed_name: st
         )
     _require_intact(archive, "setting the owner")
     pub = owner_key.public_key_raw.hex()
+    own_keys = [owner_key.private_key] + ([owner_key.pdf_key] if owner_key.pdf_key is not None else [])
     return _register_entry(
         archive,
         owner_key,
@@ -129,14 +135,20 @@ def init_owner(archive: Archive, owner_key: signing.SigningKey, printed_name: st
         reason="",
         certify=lambda entry_no, at: [
             owner_certificate(
-                owner_key.private_key,
-                printed_name=name,
-                archive_id=archive.archive_id,
-                entry_no=entry_no,
-                issued_at=pki.utc(at),
+                k, printed_name=name, archive_id=archive.archive_id, entry_no=entry_no, issued_at=pki.utc(at)
             )
+            for k in own_keys
         ],
+        pdf=_pdf_fields(owner_key.pdf_public_der, owner_key),
     )
+
+
+def _pdf_fields(pdf_public_der: bytes | None, holder) -> tuple[bytes, bytes] | None:
+    """(PDF key DER, the Ed25519 key's binding signature) for a register record; None without a PDF key."""
+    if pdf_public_der is None:
+        return None
+    binding = holder.pdf_binding_signature() if isinstance(holder, signing.SigningKey) else holder.pdf_binding
+    return pdf_public_der, binding
 
 
 def _owner_certificates(archive, owner_key) -> tuple:
@@ -179,24 +191,93 @@ def enrol_signer(
         name=name,
         role=role,
         reason="",
-        certify=lambda entry_no, at: _issue(archive, owner_key, public.public_key_raw, name, role, entry_no, at),
+        certify=lambda entry_no, at: _issue(
+            archive, owner_key, [public.public_key_raw, public.pdf_public_der], name, role, entry_no, at
+        ),
+        pdf=_pdf_fields(public.pdf_public_der, public),
     )
 
 
-def _issue(archive, owner_key, public_key_raw: bytes, name: str, role: str, entry_no: int, at: str) -> list:
-    """The enrolled key's certificate (and the owner's, when it is not stored yet), issued by the owner."""
+def _pdf_issuer(archive, owner_key) -> tuple:
+    """(issuer key, issuer certificate) for a PDF key's certificate: the owner's PDF key and its CA certificate,
+    or (an owner without one) the owner's Ed25519 key and certificate."""
+    owner_pdf = pki.owner_pdf_certificate_of(archive)
+    if owner_pdf is None:
+        return owner_key.private_key, _owner_certificates(archive, owner_key)[0]
+    if owner_key.pdf_key is None or signing.spki_der(owner_key.pdf_key.public_key()) != certificate_spki(owner_pdf):
+        raise InputError(
+            "--by: the owner's key file does not hold the owner's certified PDF key; use the owner's own key file"
+        )
+    return owner_key.pdf_key, owner_pdf
+
+
+def _issue(archive, owner_key, public_keys: list, name: str, role: str, entry_no: int, at: str) -> list:
+    """The certificates of a holder's keys (raw Ed25519 and/or PDF key DER; None skipped), issued by the owner,
+    and the owner's own when it is not stored yet."""
     owner_cert, missing = _owner_certificates(archive, owner_key)
-    signer_cert = pki.signer_certificate_for(
-        owner_key.private_key,
-        owner_cert,
-        public_key_raw,
-        printed_name=name,
-        role=role,
-        archive_id=archive.archive_id,
-        entry_no=entry_no,
-        recorded_at_utc=at,
+    issued = []
+    for public in public_keys:
+        if public is None:
+            continue
+        key, cert = (owner_key.private_key, owner_cert) if len(public) == 32 else _pdf_issuer(archive, owner_key)
+        issued.append(
+            pki.signer_certificate_for(
+                key,
+                cert,
+                public,
+                printed_name=name,
+                role=role,
+                archive_id=archive.archive_id,
+                entry_no=entry_no,
+                recorded_at_utc=at,
+            )
+        )
+    return missing + issued
+
+
+def certify_pdf_key(archive: Archive, owner_key: signing.SigningKey, public: signing.PublicKeyInfo) -> RegisterRow:
+    """Certify the PDF key of a holder (an enrolled signer, or the owner) whose key was made before PDF keys."""
+    register = archive.register()
+    register.require_owner(owner_key.fingerprint, "--by")
+    holder = register.key_holder(public.fingerprint)
+    if holder is None or holder.revoked_at_utc is not None:
+        raise InputError(
+            f"--pub: this key ({public.fingerprint[:16]}…) is not an enrolled, unrevoked key of the archive "
+            "(enrol a new key with `surfinspect signers add`)"
+        )
+    if public.pdf_public_der is None:
+        raise InputError(f"--pub: the public key file holds no PDF key; {signing.UPGRADE_HINT}")
+    if holder.pdf_public_key_hex is not None:
+        raise InputError(f"--pub: {holder.printed_name} already has a certified PDF key; a PDF key is certified once")
+    is_owner = holder is register.owner
+    if is_owner and owner_key.pdf_public_der != public.pdf_public_der:
+        raise InputError("--pub: the owner's PDF key is certified from the owner's own upgraded key file (--by)")
+    _require_intact(archive, "certifying the PDF key")
+
+    def certify(entry_no, at):
+        if is_owner:
+            made = owner_certificate(
+                owner_key.pdf_key,
+                printed_name=holder.printed_name,
+                archive_id=archive.archive_id,
+                entry_no=entry_no,
+                issued_at=pki.utc(at),
+            )
+            return _owner_certificates(archive, owner_key)[1] + [made]
+        return _issue(archive, owner_key, [public.pdf_public_der], holder.printed_name, holder.role, entry_no, at)
+
+    return _register_entry(
+        archive,
+        owner_key,
+        action=PDF_KEY_ACTION,
+        subject_fp=holder.key_fingerprint,
+        subject_pub=holder.public_key_hex,
+        name=holder.printed_name,
+        role=holder.role,
+        reason="",
+        certify=certify,
+        pdf=_pdf_fields(public.pdf_public_der, public),
     )
-    return missing + [signer_cert]
 
 
 def revoke_signer(archive: Archive, owner_key: signing.SigningKey, fingerprint: str, reason: str) -> RegisterRow:
@@ -269,6 +350,7 @@ def sign_batch(
     _require_intact(archive, "signing", batch_id)
     events, head = archive.chain_head()
     number = 1 + len(archive.signoffs(batch_id))
+    dispositions = archive.dispositions(batch_id)
     record = {
         "format": SIGNOFF_FORMAT,
         "archive_id": archive.archive_id,
@@ -283,6 +365,7 @@ def sign_batch(
         "report_sha256": batch.report_sha256,
         "batch_content_sha256": archive.batch_content_sha256(batch_id),
         "results_sha256": archive.results_sha256(batch_id),
+        "dispositions_sha256": [d.record_sha256 for d in dispositions],
         "audit_events": events,
         "audit_head_sha256": head,
     }
@@ -297,6 +380,11 @@ def sign_batch(
         record_sha256=chain.canonical_sha256(record),
         report_sha256=batch.report_sha256,
         chain_head=f"{events} {head}",
+        dispositions=tuple(
+            DispositionNote(d.part_key, d.decision, d.signer_name, d.decided_at_utc, d.comment, d.disposition_no)
+            for d in dispositions
+        ),
+        signoff_no=number,
     )
     edition = _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff)
     row = SignoffRow(
@@ -320,27 +408,51 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
     with its sign-off block; each later one is an incremental update of the edition before it, so that every
     earlier PDF signature stays valid."""
     register = archive.register()
-    owner_cert = pki.owner_certificate_of(archive, register)
-    cert = pki.certificate_of(archive, key.fingerprint, register)
-    if owner_cert is None or cert is None:
+    private, cert = pdf_signing_key(archive, key, register)
+    if cert is None:
         raise InputError(
             f"--key: the register holds no certificate for this key ({key.fingerprint[:16]}…): it was enrolled "
             "before signers got certificates; the owner revokes it and enrols a new key for the PDF signature"
         )
+    issuer = next((c for c in pki.trust_roots(archive, register) if c.subject == cert.issuer), None)
+    if issuer is None:
+        raise InputError(
+            f"--key: the owner's certificate that issued the certificate of {key.fingerprint[:16]}… is missing"
+        )
+    appearance = box = None
     if number == 1:
         base = render_edition(signoff)
     else:
-        previous = archive.signoffs(batch_id)[number - 2]
+        earlier = archive.signoffs(batch_id)
+        previous = earlier[number - 2]
         base = archive.read_object(previous.signed_report_sha256)
+        box = slot_box(number) if '"dispositions_sha256"' in earlier[0].record_json else None  # edition 1 has boxes
+        if box is not None:
+            since = tuple(d for d in signoff.dispositions if d.decided_at_utc > previous.signed_at_utc)
+            appearance = slot_appearance(signoff, since)
     return sign_pdf(
         base,
-        key.private_key,
+        private,
         cert,
-        owner_cert,
+        issuer,
         field_name=f"signoff-{number}",
         reason=signature_reason(record["meaning"], record["comment"]),
         signed_at=pki.utc(record["signed_at_utc"]),
+        appearance=appearance,
+        box=box,
     )
+
+
+def pdf_signing_key(archive, key: signing.SigningKey, register=None) -> tuple:
+    """(private key, certificate) the PDF signature is made with: the holder's PDF key (ECDSA P-256) when the
+    key file holds it and the register certified it, else the Ed25519 key and its certificate (readers without
+    EdDSA cannot check that one; :data:`.signing.UPGRADE_HINT` says what to do). The certificate is None when
+    the key has none."""
+    register = register or archive.register()
+    pdf_cert = pki.pdf_certificate_of(archive, key.fingerprint, register)
+    if key.pdf_key is not None and pdf_cert is not None and certificate_spki(pdf_cert) == key.pdf_public_der:
+        return key.pdf_key, pdf_cert
+    return key.private_key, pki.certificate_of(archive, key.fingerprint, register)
 
 
 def record_disposition(

@@ -14,6 +14,7 @@ from . import chain, signing
 from .chain import EventKind
 from .checks import Context, details_of
 from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
+from .register import ACTIONS
 from .schema import RegisterRow
 
 __all__ = ["check_register", "check_signed_heads", "check_signoffs", "check_dispositions"]
@@ -69,6 +70,24 @@ def _check_register_entry(ctx: Context, row: RegisterRow, owner: RegisterRow | N
                 ctx.fail(f"{who}: the enrolled public key does not have the fingerprint recorded with it")
         except ValueError:
             ctx.fail(f"{who}: the enrolled public key cannot be read")
+    _check_pdf_key_binding(ctx, who, row, record)
+
+
+def _check_pdf_key_binding(ctx: Context, who: str, row: RegisterRow, record: dict) -> None:
+    """A PDF key named in an entry is claimed by the entry's Ed25519 key (its binding signature holds)."""
+    pdf_hex = record.get("pdf_public_key_hex")
+    if pdf_hex is None:
+        if row.action == "pdf-key":
+            ctx.fail(f"{who}: a pdf-key entry that names no PDF key")
+        return
+    try:
+        holds = signing.binding_holds(
+            bytes.fromhex(row.public_key_hex), bytes.fromhex(pdf_hex), bytes.fromhex(record.get("pdf_key_binding_hex"))
+        )
+    except (ValueError, TypeError):
+        holds = False
+    if not holds:
+        ctx.fail(f"{who}: its PDF key is not claimed by the holder's Ed25519 key (the binding signature does not hold)")
 
 
 def _key_windows(ctx: Context, rows: list[RegisterRow]) -> None:
@@ -106,7 +125,7 @@ def check_register(ctx: Context) -> None:
         ctx.fail("register: the owner entry is not signed by the owner's own key")
     _key_windows(ctx, rows)
     for position, row in enumerate(rows, start=1):
-        if row.action not in ("owner", "enrol", "revoke"):
+        if row.action not in ACTIONS:
             ctx.fail(f"register entry {row.entry_no}: unknown action {row.action!r}")
             continue
         _check_register_entry(ctx, row, owner, position)
@@ -273,6 +292,7 @@ def check_signoffs(ctx: Context) -> None:
                 ctx.fail(f"{who}: signed_at_utc {problem}")
             if record.get("report_sha256") != batch.report_sha256:
                 ctx.fail(f"{who}: the batch report in the index is not the one that was signed")
+            _check_covered_dispositions(ctx, who, bid, record)
             if "parts" in ctx.usable and "regions" in ctx.usable:
                 if record.get("batch_content_sha256") != ctx.archive.batch_content_sha256(bid):
                     ctx.fail(f"{who}: the batch's index content (batch, parts, regions) is not what was signed")
@@ -283,6 +303,20 @@ def check_signoffs(ctx: Context) -> None:
                     ctx.fail(
                         f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})"
                     )
+
+
+def _check_covered_dispositions(ctx: Context, who: str, batch_id: str, record: dict) -> None:
+    """The dispositions a sign-off covers (and its signed edition prints) are the archive's records, unchanged."""
+    listed = record.get("dispositions_sha256")
+    if listed is None or "dispositions" not in ctx.usable:
+        return  # a sign-off record of format /2 names none
+    held = {d.record_sha256: d for d in ctx.archive.dispositions(batch_id)}
+    for k, sha in enumerate(listed if isinstance(listed, list) else [], start=1):
+        if sha not in held:
+            ctx.fail(
+                f"{who}: disposition {k} of the {len(listed)} it covers (record SHA-256 {str(sha)[:16]}…) is not in "
+                "the archive as signed: its record was changed or removed"
+            )
 
 
 def check_dispositions(ctx: Context) -> None:

@@ -9,19 +9,38 @@ Key files
 ---------
 ``surfinspect keygen --out KEYFILE`` writes two small UTF-8 JSON documents:
 
-``KEYFILE`` (the private key; mode 0600 from the moment it exists)::
+``KEYFILE`` (the private keys; mode 0600 from the moment it exists)::
 
-    {"format": "surfinspect.signing-key/1",
+    {"format": "surfinspect.signing-key/2",
      "signer_name": "a label for the key's holder (never printed on a record)",
      "key_fingerprint": "<64 hex>",
      "passphrase_protected": true | false,
-     "private_key_pem": "-----BEGIN (ENCRYPTED) PRIVATE KEY-----..."}
+     "private_key_pem": "-----BEGIN (ENCRYPTED) PRIVATE KEY-----...",
+     "pdf_public_key_hex": "<DER SubjectPublicKeyInfo of the PDF key, hex>",
+     "pdf_private_key_pem": "-----BEGIN (ENCRYPTED) PRIVATE KEY-----..."}
 
-``KEYFILE.pub`` (the public key, to hand to the archive's owner for enrolment)::
+``KEYFILE.pub`` (the public keys, to hand to the archive's owner for enrolment)::
 
-    {"format": "surfinspect.public-key/1",
+    {"format": "surfinspect.public-key/2",
      "signer_name": ..., "key_fingerprint": ...,
-     "public_key_pem": "-----BEGIN PUBLIC KEY-----..."}
+     "public_key_pem": "-----BEGIN PUBLIC KEY-----...",
+     "pdf_public_key_pem": "-----BEGIN PUBLIC KEY-----...",
+     "pdf_key_binding_hex": "<Ed25519 signature of the binding record, hex>"}
+
+Two keys per holder: the **Ed25519 key** [1]_ is the identity: its
+fingerprint is the key's name everywhere, it signs every record and chain
+head. The **PDF key** (ECDSA on NIST P-256 [2]_, SHA-256) makes the PDF
+signatures of the signed editions only, because most PDF readers (poppler,
+and with it Evince and Okular; NSS) cannot verify Ed25519 in a PDF
+signature. The public key file binds the two: the Ed25519 key signs the
+canonical record ``{"format": "surfinspect.pdf-key-binding/1",
+"key_fingerprint", "pdf_public_key_hex"}`` (:func:`pdf_key_binding`), and
+the owner's register entry names both keys. Both private keys are encrypted
+with the same passphrase.
+
+Key files of format ``/1`` (an Ed25519 key only) still load; their PDF
+signatures are Ed25519 ones, as before. ``surfinspect keygen --upgrade
+KEYFILE`` adds a PDF key to such a file.
 
 The private key is PKCS #8 PEM, encrypted with the best scheme the
 ``cryptography`` package offers (``BestAvailableEncryption``) unless the key
@@ -34,6 +53,7 @@ References
 ----------
 .. [1] Josefsson, S. and Liusvaara, I. (2017). Edwards-Curve Digital Signature
    Algorithm (EdDSA). RFC 8032. https://doi.org/10.17487/RFC8032
+.. [2] NIST (2023). Digital Signature Standard (DSS). FIPS 186-5. https://doi.org/10.6028/NIST.FIPS.186-5
 """
 
 from __future__ import annotations
@@ -48,6 +68,7 @@ from typing import Any, Callable, Mapping
 
 from cryptography.exceptions import InvalidSignature
 from cryptography.hazmat.primitives import serialization
+from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey, Ed25519PublicKey
 
 from ..errors import InputError
@@ -64,14 +85,28 @@ __all__ = [
     "write_key_pair",
     "load_signing_key",
     "load_public_key",
+    "upgrade_key_file",
+    "spki_der",
+    "pdf_key_binding",
+    "binding_holds",
+    "UPGRADE_HINT",
     "public_key_path_for",
     "passphrase_from_env",
     "sign_record",
     "verify_record",
 ]
 
-PRIVATE_KEY_FORMAT = "surfinspect.signing-key/1"
-PUBLIC_KEY_FORMAT = "surfinspect.public-key/1"
+PRIVATE_KEY_FORMAT = "surfinspect.signing-key/2"
+PUBLIC_KEY_FORMAT = "surfinspect.public-key/2"
+#: Key files of the first format (an Ed25519 key only) still load.
+OLD_PRIVATE_KEY_FORMAT = "surfinspect.signing-key/1"
+OLD_PUBLIC_KEY_FORMAT = "surfinspect.public-key/1"
+PDF_KEY_BINDING_FORMAT = "surfinspect.pdf-key-binding/1"
+#: What a key file without a PDF key should do (printed where such a key signs or is enrolled).
+UPGRADE_HINT = (
+    "add a PDF key with `surfinspect keygen --upgrade KEYFILE`, then have the owner certify it with "
+    "`surfinspect signers pdf-key --archive DIR --pub KEYFILE.pub --by OWNER_KEY`"
+)
 
 _RAW = serialization.Encoding.Raw, serialization.PublicFormat.Raw
 
@@ -85,17 +120,48 @@ def key_fingerprint(public_key_raw: bytes) -> str:
     return hashlib.sha256(public_key_raw).hexdigest()
 
 
+def spki_der(public_key) -> bytes:
+    """A public key's DER SubjectPublicKeyInfo (RFC 5280, 4.1.2.7): how a PDF key is named in records."""
+    return public_key.public_bytes(serialization.Encoding.DER, serialization.PublicFormat.SubjectPublicKeyInfo)
+
+
+def pdf_key_binding(fingerprint: str, pdf_public_der: bytes) -> dict:
+    """The record an Ed25519 key signs to claim a PDF key as its holder's."""
+    return {
+        "format": PDF_KEY_BINDING_FORMAT,
+        "key_fingerprint": fingerprint,
+        "pdf_public_key_hex": pdf_public_der.hex(),
+    }
+
+
+def binding_holds(public_key_raw: bytes, pdf_public_der: bytes, signature: bytes) -> bool:
+    """True when the Ed25519 key signed the binding of this PDF key."""
+    record = pdf_key_binding(key_fingerprint(public_key_raw), pdf_public_der)
+    return verify_signature(public_key_raw, canonical_bytes(record), signature)
+
+
 @dataclass(frozen=True)
 class SigningKey:
-    """A private key and the label its key file gives it (the label is never a printed name)."""
+    """A holder's private keys and the label its key file gives them (the label is never a printed name).
+
+    ``pdf_key`` (ECDSA P-256) makes PDF signatures only; None for a key file of the first format.
+    """
 
     private_key: Ed25519PrivateKey
     label: str = ""
     protected: bool = False  # read from a passphrase-protected key file
+    pdf_key: ec.EllipticCurvePrivateKey | None = None
 
     @classmethod
     def generate(cls, label: str = "") -> "SigningKey":
-        return cls(Ed25519PrivateKey.generate(), _fold(label))
+        return cls(Ed25519PrivateKey.generate(), _fold(label), pdf_key=ec.generate_private_key(ec.SECP256R1()))
+
+    @property
+    def pdf_public_der(self) -> bytes | None:
+        return spki_der(self.pdf_key.public_key()) if self.pdf_key is not None else None
+
+    def pdf_binding_signature(self) -> bytes:
+        return self.sign(canonical_bytes(pdf_key_binding(self.fingerprint, self.pdf_public_der)))
 
     @classmethod
     def from_secret_bytes(cls, secret_key: bytes, label: str = "") -> "SigningKey":
@@ -119,6 +185,8 @@ class SigningKey:
 class PublicKeyInfo:
     label: str
     public_key_raw: bytes
+    pdf_public_der: bytes | None = None  # the PDF key (None in a public key file of the first format)
+    pdf_binding: bytes = b""  # the Ed25519 key's signature of the binding (:func:`pdf_key_binding`)
 
     @property
     def fingerprint(self) -> str:
@@ -168,43 +236,79 @@ def write_key_pair(key_path: str | os.PathLike, label: str, *, passphrase: bytes
     if passphrase is not None and not passphrase:
         raise InputError("passphrase: the passphrase is empty (give a non-empty one, or ask for --no-passphrase)")
     key = SigningKey.generate(label)
-    encryption = serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
-    pem = key.private_key.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8, encryption)
+    _write_key_files(key_path, key, passphrase)
+    return key
+
+
+def upgrade_key_file(key_path: str | os.PathLike, *, passphrase: Passphrase) -> SigningKey:
+    """Add a PDF key to a key file of the first format (and its ``.pub``), under the same passphrase.
+
+    Raises
+    ------
+    InputError
+        When the file is not a key file, the passphrase is wrong, or the file already has a PDF key.
+    """
+    key_path = Path(key_path)
+    asked: list = []
+
+    def once():  # asked for only when the key is protected, and only once
+        if not asked:
+            asked.append(passphrase() if callable(passphrase) else passphrase)
+        return asked[0]
+
+    key = load_signing_key(key_path, passphrase=once)
+    if key.pdf_key is not None:
+        raise InputError(f"{key_path}: the key file already holds a PDF key (nothing to upgrade)")
+    key = SigningKey(key.private_key, key.label, key.protected, ec.generate_private_key(ec.SECP256R1()))
+    _write_key_files(key_path, key, once() if key.protected else None)
+    return key
+
+
+def _write_key_files(key_path: Path, key: SigningKey, passphrase: bytes | None) -> None:
+    def private_pem(private) -> str:
+        encryption = serialization.BestAvailableEncryption(passphrase) if passphrase else serialization.NoEncryption()
+        return private.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8, encryption).decode()
+
+    def public_pem(public) -> str:
+        return public.public_bytes(serialization.Encoding.PEM, serialization.PublicFormat.SubjectPublicKeyInfo).decode()
+
     private_doc = {
         "format": PRIVATE_KEY_FORMAT,
         "signer_name": key.label,
         "key_fingerprint": key.fingerprint,
         "passphrase_protected": bool(passphrase),
-        "private_key_pem": pem.decode("ascii"),
+        "private_key_pem": private_pem(key.private_key),
+        "pdf_public_key_hex": key.pdf_public_der.hex(),
+        "pdf_private_key_pem": private_pem(key.pdf_key),
     }
-    public_pem = key.private_key.public_key().public_bytes(
-        serialization.Encoding.PEM, serialization.PublicFormat.SubjectPublicKeyInfo
-    )
     public_doc = {
         "format": PUBLIC_KEY_FORMAT,
         "signer_name": key.label,
         "key_fingerprint": key.fingerprint,
-        "public_key_pem": public_pem.decode("ascii"),
+        "public_key_pem": public_pem(key.private_key.public_key()),
+        "pdf_public_key_pem": public_pem(key.pdf_key.public_key()),
+        "pdf_key_binding_hex": key.pdf_binding_signature().hex(),
     }
     with atomic_path(key_path, mode=0o600) as tmp:
         # owner-only from the start: set on the empty temporary file, before any key byte is written
         os.chmod(tmp, 0o600)
         tmp.write_text(json.dumps(private_doc, indent=2) + "\n", encoding="utf-8")
-    with atomic_path(pub_path) as tmp:
+    with atomic_path(public_key_path_for(key_path)) as tmp:
         tmp.write_text(json.dumps(public_doc, indent=2) + "\n", encoding="utf-8")
-    return key
 
 
-def _read_key_document(path: Path, expected_format: str) -> dict:
+def _read_key_document(path: Path, expected_format: str, old_format: str) -> dict:
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise InputError(f"{path}: key file not found") from None
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise InputError(f"{path}: not a surfinspect key file ({exc})") from None
-    if not isinstance(doc, dict) or doc.get("format") != expected_format:
+    if not isinstance(doc, dict) or doc.get("format") not in (expected_format, old_format):
         got = doc.get("format") if isinstance(doc, dict) else type(doc).__name__
-        raise InputError(f"{path}: format: not a surfinspect key file (got {got!r}, allowed {expected_format!r})")
+        raise InputError(
+            f"{path}: format: not a surfinspect key file (got {got!r}, allowed {expected_format!r} or {old_format!r})"
+        )
     return doc
 
 
@@ -241,7 +345,7 @@ def load_signing_key(key_path: str | os.PathLike, *, passphrase: Passphrase = No
     """
     path = Path(key_path)
     check_private_key_file(path)
-    doc = _read_key_document(path, PRIVATE_KEY_FORMAT)
+    doc = _read_key_document(path, PRIVATE_KEY_FORMAT, OLD_PRIVATE_KEY_FORMAT)
     password = None
     if doc.get("passphrase_protected"):
         password = passphrase() if callable(passphrase) else passphrase
@@ -256,7 +360,19 @@ def load_signing_key(key_path: str | os.PathLike, *, passphrase: Passphrase = No
         raise InputError(f"{path}: private_key_pem: cannot be read (wrong passphrase or damaged file: {exc})") from None
     if not isinstance(private, Ed25519PrivateKey):
         raise InputError(f"{path}: private_key_pem: not an Ed25519 key (got {type(private).__name__})")
-    key = SigningKey(private, _fold(doc.get("signer_name", "")), bool(doc.get("passphrase_protected")))
+    pdf_key = None
+    if doc["format"] == PRIVATE_KEY_FORMAT:
+        try:
+            pdf_key = serialization.load_pem_private_key(str(doc["pdf_private_key_pem"]).encode("ascii"), password)
+        except (KeyError, ValueError, TypeError) as exc:
+            raise InputError(f"{path}: pdf_private_key_pem: cannot be read ({exc})") from None
+        if not isinstance(pdf_key, ec.EllipticCurvePrivateKey) or pdf_key.curve.name != "secp256r1":
+            raise InputError(f"{path}: pdf_private_key_pem: not an ECDSA P-256 key")
+        if spki_der(pdf_key.public_key()).hex() != doc.get("pdf_public_key_hex"):
+            raise InputError(
+                f"{path}: pdf_public_key_hex: does not match the PDF key in the file (the file was altered)"
+            )
+    key = SigningKey(private, _fold(doc.get("signer_name", "")), bool(doc.get("passphrase_protected")), pdf_key)
     if doc.get("key_fingerprint") != key.fingerprint:
         raise InputError(f"{path}: key_fingerprint: does not match the key in the file (the file was altered)")
     return key
@@ -265,14 +381,29 @@ def load_signing_key(key_path: str | os.PathLike, *, passphrase: Passphrase = No
 def load_public_key(path: str | os.PathLike) -> PublicKeyInfo:
     """Read a public key file written by :func:`write_key_pair`."""
     path = Path(path)
-    doc = _read_key_document(path, PUBLIC_KEY_FORMAT)
+    doc = _read_key_document(path, PUBLIC_KEY_FORMAT, OLD_PUBLIC_KEY_FORMAT)
     try:
         public = serialization.load_pem_public_key(str(doc["public_key_pem"]).encode("ascii"))
     except (KeyError, ValueError, TypeError) as exc:
         raise InputError(f"{path}: public_key_pem: cannot be read ({exc})") from None
     if not isinstance(public, Ed25519PublicKey):
         raise InputError(f"{path}: public_key_pem: not an Ed25519 key (got {type(public).__name__})")
-    info = PublicKeyInfo(_fold(doc.get("signer_name", "")), public.public_bytes(*_RAW))
+    raw = public.public_bytes(*_RAW)
+    pdf_der, binding = None, b""
+    if doc["format"] == PUBLIC_KEY_FORMAT:
+        try:
+            pdf_public = serialization.load_pem_public_key(str(doc["pdf_public_key_pem"]).encode("ascii"))
+            binding = bytes.fromhex(str(doc["pdf_key_binding_hex"]))
+        except (KeyError, ValueError, TypeError) as exc:
+            raise InputError(f"{path}: pdf_public_key_pem: cannot be read ({exc})") from None
+        if not isinstance(pdf_public, ec.EllipticCurvePublicKey) or pdf_public.curve.name != "secp256r1":
+            raise InputError(f"{path}: pdf_public_key_pem: not an ECDSA P-256 key")
+        pdf_der = spki_der(pdf_public)
+        if not binding_holds(raw, pdf_der, binding):
+            raise InputError(
+                f"{path}: pdf_key_binding_hex: the Ed25519 key did not sign this PDF key (the file was altered)"
+            )
+    info = PublicKeyInfo(_fold(doc.get("signer_name", "")), raw, pdf_der, binding)
     if doc.get("key_fingerprint") != info.fingerprint:
         raise InputError(f"{path}: key_fingerprint: does not match the key in the file (the file was altered)")
     return info

@@ -98,10 +98,10 @@ class Archive:
         backend = backend or open_index(where)
         self.index = backend
         try:
+            # an existing index is checked before anything is written into it or beside it; one whose tables
+            # another process has made but not yet filled is made here too (the write lock orders the two)
             existed = self.index.exists()
-            if existed:  # an existing file is checked before anything is written into it or beside it
-                self._check_format()
-            elif create:
+            if create and (not existed or self._made_but_empty()):
                 self._create()
             else:
                 self._check_format()
@@ -125,6 +125,11 @@ class Archive:
                 self._append_event(EventKind.ARCHIVE_CREATED, None, None, created)
         except (IndexDamaged, IndexBusy) as exc:
             raise InputError(f"{self.index.location}: cannot write the archive index ({exc})") from None
+
+    def _made_but_empty(self) -> bool:  # tables made by another process that has not yet written meta
+        with contextlib.suppress(IndexDamaged):
+            return not self.index.select("meta", {})
+        return False
 
     def _check_format(self) -> None:
         try:

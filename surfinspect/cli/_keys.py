@@ -16,7 +16,7 @@ from ..errors import InputError
 
 signing = module("surfinspect.archive.signing")  # cryptography loads when a key is opened
 
-__all__ = ["add_key_arguments", "open_key", "new_passphrase"]
+__all__ = ["add_key_arguments", "open_key", "open_passphrase", "new_passphrase"]
 
 
 def add_key_arguments(parser: argparse.ArgumentParser, flag: str, help_text: str, *, required: bool = True) -> None:
@@ -34,6 +34,11 @@ def _terminal() -> bool:
 
 def open_key(path: str, passphrase_env: str | None, flag: str) -> signing.SigningKey:
     """Load a private key, asking for its passphrase without echo only when it is protected."""
+    return signing.load_signing_key(path, passphrase=open_passphrase(path, passphrase_env, flag))
+
+
+def open_passphrase(path: str, passphrase_env: str | None, flag: str = "--upgrade"):
+    """A function giving the passphrase of key file ``path`` (from the variable, else asked without echo)."""
     given = signing.passphrase_from_env(passphrase_env)
 
     def ask() -> bytes:
@@ -46,7 +51,7 @@ def open_key(path: str, passphrase_env: str | None, flag: str) -> signing.Signin
             )
         return getpass.getpass(f"passphrase for {path}: ").encode("utf-8")
 
-    return signing.load_signing_key(path, passphrase=ask)
+    return ask
 
 
 def new_passphrase(args: argparse.Namespace) -> bytes | None:

@@ -7,6 +7,11 @@ certificate; the reader then shows who signed each signed report, when, with
 what meaning, and that nothing changed since. ``.pem`` writes it in PEM (text),
 ``.cer``, ``.crt`` and ``.der`` in DER; the SHA-256 fingerprint printed is the
 one to compare when the file reaches the customer by another way.
+
+An owner with a PDF key (ECDSA P-256) has two CA certificates; the PDF key's
+is exported, since it is the one that issues the PDF signatures' certificates
+and the one common readers can check. An owner without one exports its
+Ed25519 certificate (readers without Ed25519 cannot use it).
 """
 
 from __future__ import annotations
@@ -37,6 +42,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
     )
     parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
+    parser.add_argument(
+        "--algorithm",
+        choices=("p256", "ed25519"),
+        default="p256",
+        help="p256 (default): the certificate of the owner's PDF key, which common readers check; ed25519: the one "
+        "that issued the certificates of keys without a PDF key (what an archive set up before PDF keys has)",
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
@@ -48,7 +60,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
     encoding = getattr(serialization.Encoding, _ENCODINGS[args.out[args.out.rfind(".") :].lower()])
     with location.open_archive(args.archive) as arc:
         register = arc.register()
-        cert = pki.owner_certificate_of(arc, register)
+        pdf_cert = pki.owner_pdf_certificate_of(arc, register) if args.algorithm == "p256" else None
+        cert = pdf_cert or pki.owner_certificate_of(arc, register)
         if cert is None:
             if register.owner is None:
                 raise InputError(f"--archive: {args.archive} has no owner yet (surfinspect owner init)")
@@ -58,7 +71,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
             )
         write_bytes_atomic(args.out, cert.public_bytes(encoding))
         owner = register.owner.printed_name
-    console.info(f"owner certificate of {owner} written to {args.out}")
+    kind = "ECDSA P-256" if pdf_cert is not None else "Ed25519"
+    console.info(f"owner certificate of {owner} ({kind}) written to {args.out}")
     console.info(f"SHA-256 fingerprint {certificate_sha256(cert)}")
     console.info("trust it in the PDF reader to check the archive's signed reports")
     return 0

@@ -19,6 +19,7 @@ from ._keys import add_key_arguments, open_key
 from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
+signing = module("surfinspect.archive.signing")
 archive = module("surfinspect.archive.store")
 location = module("surfinspect.archive.location")
 batch = module("surfinspect.station.batch")
@@ -64,6 +65,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
             render_edition=lambda signoff: batch.render_batch_report(arc, args.batch_id, signoff=signoff),
         )
         edition = arc.object_path(row.signed_report_sha256)
+        ed25519_pdf = signatures.pdf_signing_key(arc, key)[0] is key.private_key
         if out is not None:
             write_bytes_atomic(out, edition.read_bytes())
     if key.label and key.label != row.signer_name:
@@ -74,6 +76,11 @@ def run(args: argparse.Namespace, console: Console) -> int:
         f"batch {row.batch_id}: sign-off #{row.signoff_no}, {row.meaning} by {row.signer_name} at {row.signed_at_utc}"
     )
     console.info(f"key fingerprint {row.key_fingerprint}")
+    if ed25519_pdf:
+        console.notice(
+            "the PDF signature is an Ed25519 one (no certified PDF key for this key): PDF readers without Ed25519, "
+            f"such as poppler's, cannot check it; {signing.UPGRADE_HINT}"
+        )
     console.info(f"signed report (a PDF stored under its hash, without a suffix): {edition}")
     if out is not None:
         console.info(f"signed report copied to {out}")

@@ -1,4 +1,4 @@
-"""``surfinspect signers add|revoke|list``: the archive's signer register.
+"""``surfinspect signers add|revoke|pdf-key|list``: the archive's signer register.
 
 Enrolment and revocation are signed by the archive owner's key (``--by``)
 and recorded in the audit chain. ``--role station`` enrols a station's key,
@@ -48,6 +48,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     revoke.add_argument("--reason", default="", metavar="TEXT", help="why the key is withdrawn (kept in the record)")
     add_key_arguments(revoke, "--by", "the archive owner's private key file")
+    pdf = sub.add_parser(
+        "pdf-key",
+        help="certify the PDF key of an enrolled holder (or the owner) whose key file was upgraded (keygen --upgrade)",
+    )
+    pdf.add_argument(
+        "--archive",
+        required=True,
+        metavar="ARCHIVE",
+        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
+    )
+    pdf.add_argument("--pub", required=True, metavar="KEY.pub", help="the holder's upgraded public key file")
+    add_key_arguments(pdf, "--by", "the archive owner's private key file")
     listing = sub.add_parser("list", help="list the owner and every enrolled key")
     listing.add_argument(
         "--archive",
@@ -67,6 +79,13 @@ def run(args: argparse.Namespace, console: Console) -> int:
             public = signing.load_public_key(args.pub)
             row = signatures.enrol_signer(arc, owner_key, public, args.name, args.role)
             console.info(f"entry {row.entry_no}: enrolled {row.printed_name} ({row.role}), key {row.key_fingerprint}")
+            if public.pdf_public_der is None:
+                console.notice(f"{args.pub}: no PDF key, so PDF readers without Ed25519 cannot check its PDF "
+                               f"signatures; {signing.UPGRADE_HINT}")  # fmt: skip
+        elif args.action == "pdf-key":
+            public = signing.load_public_key(args.pub)
+            row = signatures.certify_pdf_key(arc, owner_key, public)
+            console.info(f"entry {row.entry_no}: certified the PDF key of {row.printed_name} ({row.key_fingerprint})")
         else:
             row = signatures.revoke_signer(arc, owner_key, args.key_fingerprint, args.reason)
             console.info(f"entry {row.entry_no}: revoked the key of {row.printed_name} ({row.key_fingerprint})")
@@ -88,10 +107,11 @@ def _list(arc: archive.Archive, console: Console) -> None:
             s.key_fingerprint[:16] + "…",
             s.enrolled_at_utc,
             f"revoked {s.revoked_at_utc}" if s.revoked_at_utc else "active",
+            "P-256" if s.pdf_public_key_hex else "Ed25519 only",
         ]
         for s in sorted(reg.signers.values(), key=lambda s: s.entry_no)
     ]
     if rows:
-        console.table(["printed name", "role", "key", "enrolled (UTC)", "state"], rows)
+        console.table(["printed name", "role", "key", "enrolled (UTC)", "state", "PDF key"], rows)
     else:
         console.info("no signer enrolled yet")

@@ -52,7 +52,7 @@ __getattr__, __dir__, __all__ = attach(
             "BlockGrid",
             "block_grid",
         ),
-        "engine": ("Frame", "inspect_image", "region_masks", "frame_for"),
+        "engine": ("Frame", "inspect_image", "inspect_region", "region_masks", "frame_for"),
         "synth": (
             "sine_grating",
             "brushed_texture",

@@ -25,6 +25,7 @@ from ..results import (
     PartResult,
     PartVerdict,
     RecipeInfo,
+    RegionResult,
     part_verdict,
 )
 from .axial import wrap_deviation
@@ -38,7 +39,7 @@ from .judge import RegionMeasurement, judge_region
 from .noise import noise_gradient_energy, noise_sigma
 from .spectrum import spectral_lay, tensor_angle_standard_error
 
-__all__ = ["Frame", "inspect_image", "region_masks", "frame_for"]
+__all__ = ["Frame", "inspect_image", "inspect_region", "region_masks", "frame_for"]
 
 #: Histogram votes from every second pixel along rows and columns (see ``cell_sums``).
 HISTOGRAM_VOTE_STEP = 2
@@ -287,10 +288,9 @@ def inspect_image(
     placed = [region_masks(r, frame, pixels.shape, recipe.path) for r in recipe.regions]
     sigma_n = noise_sigma(pixels, threads=THREADS)
     results = [
-        judge_region(region, _measure_region(pixels, region, where, frame, recipe, sigma_n))
+        inspect_region(pixels, recipe, region, frame, sigma_n, placed=where)
         for region, where in zip(recipe.regions, placed)
     ]
-    results = [_patches_in_part_frame(r, frame, recipe.pixel_size_mm) for r in results]
     verdict = part_verdict([r.verdict for r in results])
     return PartResult(
         name=name,
@@ -302,6 +302,52 @@ def inspect_image(
         engine_version=__version__,
         datum=datum,
     )
+
+
+def inspect_region(
+    pixels: np.ndarray,
+    recipe: Recipe,
+    region: Region,
+    frame: Frame,
+    noise_sigma_px: float,
+    *,
+    placed=None,
+) -> RegionResult:
+    """Measure and judge one region of ``recipe`` on ``pixels``: what :func:`inspect_image` does per region.
+
+    Only the region's bounding box (and the derivative kernel's halo) is read,
+    so a caller that keeps the image, its frame (:func:`frame_for`) and its
+    noise level (``noise.noise_sigma`` of the whole image) gets the numbers
+    ``inspect_image`` gives for that region, at the cost of that region alone
+    (the recipe page's live preview).
+
+    Parameters
+    ----------
+    pixels : (M, N) float32 ndarray
+        The image in the engine's form (``imaging.as_grey_float``).
+    recipe : Recipe
+        The recipe the region belongs to (units, saturation level, file name in messages).
+    region : Region
+    frame : Frame
+        ``frame_for(recipe, pixels)[0]``.
+    noise_sigma_px : float
+        ``noise.noise_sigma(pixels)`` of the whole image.
+    placed : tuple, optional
+        ``region_masks(region, frame, pixels.shape, recipe.path)`` when already computed.
+
+    Returns
+    -------
+    RegionResult
+
+    Raises
+    ------
+    InputError
+        When the region lies outside the image or covers no pixels.
+    """
+    if placed is None:
+        placed = region_masks(region, frame, pixels.shape, recipe.path)
+    result = judge_region(region, _measure_region(pixels, region, placed, frame, recipe, noise_sigma_px))
+    return _patches_in_part_frame(result, frame, recipe.pixel_size_mm)
 
 
 def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, recipe: Recipe, sigma_n: float):

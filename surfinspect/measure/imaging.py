@@ -315,6 +315,18 @@ def _looks_truncated(data: bytes) -> bool:
     return False
 
 
+def read_image_bytes(path: str | Path, *, follow_symlinks: bool = True) -> bytes:
+    """An image file's bytes, read under the input policy (regular file, at most ``SURFINSPECT_MAX_IMAGE_MB``)."""
+    max_mb = env_limit(MAX_IMAGE_MB_ENV, DEFAULT_MAX_IMAGE_MB, lo=0.001, hi=1_000_000)
+    return read_regular_file(
+        Path(path),
+        "image file",
+        max_bytes=int(max_mb * 1e6),
+        follow_symlinks=follow_symlinks,
+        limit_hint=f"; set {MAX_IMAGE_MB_ENV} in MB to raise it",
+    )
+
+
 def read_image(path: str | Path, *, follow_symlinks: bool = True) -> LoadedImage:
     """Read an image file for inspection.
 
@@ -339,14 +351,7 @@ def read_image(path: str | Path, *, follow_symlinks: bool = True) -> LoadedImage
         ``SURFINSPECT_MAX_MEGAPIXELS``, is empty, truncated or damaged.
     """
     path = Path(path)
-    max_mb = env_limit(MAX_IMAGE_MB_ENV, DEFAULT_MAX_IMAGE_MB, lo=0.001, hi=1_000_000)
-    data = read_regular_file(
-        path,
-        "image file",
-        max_bytes=int(max_mb * 1e6),
-        follow_symlinks=follow_symlinks,
-        limit_hint=f"; set {MAX_IMAGE_MB_ENV} in MB to raise it",
-    )
+    data = read_image_bytes(path, follow_symlinks=follow_symlinks)
     pixels, bit_depth = decode_image(data, str(path))
     info = ImageInfo(
         path=str(path),

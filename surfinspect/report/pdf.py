@@ -64,6 +64,7 @@ from .layout import DEFAULT_TITLE, PAGE_SIZE, PICTURE_MAX_PX, ExtraPage, _Layout
 from .part_page import _layout_part
 from .regions import _PartFigures
 from .signoff import signoff_state
+from .signoff_page import signoff_pages
 from .summary import NotInspected, _layout_not_inspected, _layout_summary, _sort_key
 
 __all__ = [
@@ -196,6 +197,8 @@ def render_report(
         not_inspected=not_inspected,
         stats=_batch_stats(parts) if batch_stats else [],
     )
+    if signoff is not None:  # the dispositions it covers, and the boxes of the later sign-offs
+        extra_pages = [*extra_pages, *signoff_pages(signoff)]
     pages = _lay_out_pages(figs, images, summary, extra_pages)
     return _draw_pdf(pages, parts, summary)
 

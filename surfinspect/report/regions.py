@@ -179,9 +179,62 @@ def _figures_text(region: RegionResult, d: Mapping) -> str:
         )
     if "texture_to_noise" in extra:
         said.append(f"texture energy {format_fixed(extra.pop('texture_to_noise'), 1)}× the camera noise's")
-    for key in sorted(extra):  # figures this report does not know by name are still shown
-        said.append(f"{key.replace('_', ' ')} {extra[key]}")
+    budget = extra.pop("uncertainty_budget", None)
+    for key in sorted(extra):  # the remaining figures, each in words (unknown ones by their key)
+        said.append(_figure_words(key, extra[key]))
+    if isinstance(budget, Mapping):
+        parts = ", ".join(_figure_words(k, v) for k, v in sorted(budget.items()))
+        said.append(f"standard uncertainties: {parts}")
     return "; ".join(escape(str(t)) for t in said)
+
+
+#: Figures of a region's ``extra`` known by name: the words printed before the value.
+_FIGURE_LABELS = {
+    "cell_scatter_deg": "cell scatter",
+    "direction_cells": "cells in the direction test",
+    "direction_p": "direction test p",
+    "finest_period_px": "finest period",
+    "lay_plain_deg": "unweighted lay",
+    "masked_fraction": "masked (glare)",
+    "outlier_cells": "outlier cells",
+    "spectral_difference_deg": "spectral lay differs by",
+    "spectral_lay_deg": "spectral lay",
+    "spectral_method": "spectral peak",
+    "spectral_standard_uncertainty_deg": "spectral standard uncertainty",
+    "tensor_standard_uncertainty_deg": "tensor standard uncertainty",
+    "unmeasured_fraction": "unmeasured area",
+    "statistical_deg": "statistical",
+    "weighting_deg": "weighting",
+    "derivative_deg": "derivative",
+    "compression_deg": "compression",
+    "disagreement_ratio": "disagreement ratio",
+}
+
+
+def _figure_words(key: str, value) -> str:
+    """One figure as a reader says it: its label, then the value with its unit."""
+    label = _FIGURE_LABELS.get(key, key.replace("_", " "))
+    if isinstance(value, bool) or value is None:
+        shown = "yes" if value else "no"
+    elif isinstance(value, int) and key in ("direction_cells", "outlier_cells"):
+        return f"{value} {label}"
+    elif isinstance(value, float) and key.endswith("_p"):
+        shown = f"= {value:.2g}"
+    elif isinstance(value, (int, float)) and key.endswith("_deg"):
+        shown = format_angle(value) if abs(value) >= 0.01 else f"{value:.3f}°"
+    elif isinstance(value, (int, float)) and key.endswith("_px"):
+        shown = f"{format_fixed(value, 2)} px"
+    elif isinstance(value, (int, float)) and key.endswith("_fraction"):
+        shown = _percent(value)
+    elif isinstance(value, float):
+        shown = format_fixed(value, 2)
+    elif isinstance(value, Mapping):
+        shown = "(" + ", ".join(_figure_words(str(k), v) for k, v in sorted(value.items())) + ")"
+    elif isinstance(value, (list, tuple)):
+        shown = ", ".join(str(v) for v in value)
+    else:
+        shown = str(value)
+    return f"{label} {shown}"
 
 
 _CELL_RIGHT = ParagraphStyle("cellr", parent=_CELL, alignment=2)
@@ -195,14 +248,17 @@ def _cell_with_note(text: str, note: str, *, right: bool = True):
 
 def _region_table(fig: _PartFigures) -> Table:
     header = [
-        "Region",
-        "Expected lay",
-        "Tolerance",
-        "Measured lay, U (k = 2)",
-        "Deviation",
-        "Coherence",
-        "Deviating area",
-        "Verdict",
+        Paragraph(text, _CELL_BOLD)  # header cells wrap in their column, never into the next one
+        for text in (
+            "Region",
+            "Expected lay",
+            "Tolerance",
+            "Measured lay, U (k = 2)",
+            "Deviation",
+            "Coherence",
+            "Deviating area",
+            "Verdict",
+        )
     ]
     rows = [header]
     style = []
@@ -248,7 +304,7 @@ def _region_table(fig: _PartFigures) -> Table:
             style.append(("SPAN", (0, last), (-1, last)))
         if region.verdict is RegionVerdict.FAIL:  # a heavy rule beside failing rows, for grey print
             style.append(("LINEBEFORE", (0, row), (0, last), 2.5, colors.black))
-    widths = [92, 70, 48, 92, 52, 50, 50, 69]
+    widths = [92, 68, 48, 94, 50, 50, 56, 65]
     return _table(rows, widths, style)
 
 

@@ -31,6 +31,7 @@ from ..archive.location import open_archive
 from ..errors import InputError
 from ..results import CAUTION
 from . import actions, media, pages
+from .recipe_routes import RecipeViews
 from .security import CSRF_FIELD, SESSION_COOKIE, BodyLimit, Csrf, FailureThrottle, SecurityHeaders
 
 HERE = Path(__file__).parent
@@ -40,10 +41,13 @@ _DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 
 @dataclass(frozen=True)
 class ReviewConfig:
-    archive_root: str | Path  # a folder or a PostgreSQL URL, as --archive takes it
+    archive_root: str | Path | None  # a folder or a PostgreSQL URL, as --archive takes it; None: the recipe page only
     read_only: bool = False
     key_dir: Path | None = None
     remote: bool = False  # served on an address other than loopback
+    recipe_image: Path | None = None  # the recipe page's reference photo (--recipe-image)
+    recipe_file: Path | None = None  # an existing recipe to edit on it (--recipe)
+    recipe_dir: Path | None = None  # where the recipe page saves (the folder of --recipe, else the current one)
 
 
 def create_app(config: ReviewConfig, *, csrf_secret: bytes | None = None) -> Starlette:
@@ -57,7 +61,9 @@ def create_app(config: ReviewConfig, *, csrf_secret: bytes | None = None) -> Sta
     templates.env.filters["angle"] = lambda v: "-" if v is None else f"{v:.2f}°"
     csrf = Csrf(csrf_secret)
     views = _Views(config, templates, csrf)
+    recipes = RecipeViews(views)
     routes = [
+        *recipes.routes(),
         Route("/", views.batches),
         Route("/batch/{batch_id}", views.batch),
         Route("/batch/{batch_id}/report.pdf", views.report),
@@ -91,6 +97,8 @@ class _Views:
     # -- plumbing
 
     def _open(self) -> archive.Archive:
+        if self.config.archive_root is None:
+            raise HTTPException(404, "This station serves the recipe page only (it was started without --archive).")
         return open_archive(self.config.archive_root)
 
     def render(self, request: Request, name: str, context: dict, status: int = 200) -> Response:
@@ -143,6 +151,10 @@ class _Views:
         date_to = request.query_params.get("to", "")
         date_from = date_from if _DATE.match(date_from) else ""
         date_to = date_to if _DATE.match(date_to) else ""
+        if self.config.archive_root is None:
+            return self.render(
+                request, "batches.html", {"rows": [], "q": q, "date_from": "", "date_to": "", "total": 0}
+            )
         with self._open() as arc:
             rows = pages.batch_summaries(arc, q, date_from, date_to)
             total = len(arc.batches())

@@ -22,11 +22,11 @@ def is_loopback(host: str) -> bool:
 
 
 def serve(config: ReviewConfig, host: str, port: int) -> None:
-    """Run the server until interrupted (Ctrl-C)."""
+    """Run the server until interrupted (Ctrl-C); ``config`` may also be an application already made."""
     import uvicorn
 
     uvicorn.run(
-        create_app(config),
+        create_app(config) if isinstance(config, ReviewConfig) else config,
         host=host,
         port=port,
         log_level="warning",

@@ -80,6 +80,18 @@ def test_schema_is_made_with_its_version(site):
     assert ver.verify_archive(site).problems == []
 
 
+def test_a_station_opening_while_another_makes_the_archive_makes_it_too(site):
+    """Four stations starting on one empty database: one has made the tables (its own transaction) and not
+    yet written meta when the next opens with ``create=True``. That station must make the archive, not
+    call it "unknown archive format" (exit 2, seen once under load in the four-station test)."""
+    location.open_index(location.parse_location(site)).create_schema()  # the first station, halfway
+    with arc.Archive(site, create=True) as a:
+        assert [e.kind for e in a.events()] == ["archive created"]
+    with arc.Archive(site, create=True) as a:  # the first station goes on: nothing made twice
+        assert [e.kind for e in a.events()] == ["archive created"]
+    assert ver.verify_archive(site).problems == []
+
+
 def test_a_newer_schema_is_refused_with_a_clear_message(site, capsys):
     with arc.Archive(site, create=True):
         pass

@@ -428,3 +428,29 @@ def test_a_full_width_region_leaves_the_image_alone_and_measures_the_same_twice(
     second = inspect_image(img, recipe).regions[0]
     assert first.lay_deg == second.lay_deg and first.patches == second.patches == ()
     assert first.verdict is RegionVerdict.PASS
+
+
+def test_inspect_region_alone_gives_what_inspect_image_gives():
+    # the recipe page's preview measures one region with inspect_region on the image kept in memory:
+    # its JSON form must be inspect_image's for that region, byte for byte (both demo recipes, part frame too)
+    from pathlib import Path
+
+    from surfinspect.measure.engine import frame_for, inspect_region
+    from surfinspect.measure.imaging import read_image
+    from surfinspect.measure.noise import noise_sigma
+    from surfinspect.recipe import load_recipe
+    from surfinspect.results import region_to_dict
+
+    root = Path(__file__).resolve().parents[2]
+    for recipe_name, image_name in [
+        ("cp-14-cover-plate.yaml", "cp-14-0002.png"),
+        ("lw-220-wall-panel.yaml", "lw-220-0004.png"),
+    ]:
+        recipe = load_recipe(root / "recipes" / recipe_name)
+        pixels = read_image(root / "demo_parts" / image_name).pixels
+        whole = inspect_image(pixels, recipe)
+        frame, _ = frame_for(recipe, pixels)
+        sigma = noise_sigma(pixels)
+        for region, expected in zip(recipe.regions, whole.regions):
+            alone = inspect_region(pixels, recipe, region, frame, sigma)
+            assert region_to_dict(alone) == region_to_dict(expected)

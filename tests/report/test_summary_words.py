@@ -57,3 +57,15 @@ def test_console_says_what_the_columns_hold(lay, says):
     assert "lay and deviation are" in text.splitlines()[0] and says in text
     if "crossed" in lay:
         assert " / " in text.splitlines()[2]  # both peaks in the lay column
+
+
+def test_the_figures_line_is_words_not_a_python_dict():
+    from surfinspect.report.regions import _figures_text
+
+    part = inspect_image(synth.brushed_panel((240, 320), 91.0, seed=3), parse_recipe(RECIPE))
+    d = region_to_dict(part.regions[0])
+    assert isinstance(d["extra"]["uncertainty_budget"], dict)  # the result file nests the budget
+    text = _figures_text(part.regions[0], d)
+    assert not any(ch in text for ch in "{}[]_") and "': " not in text, text
+    budget = d["extra"]["uncertainty_budget"]
+    assert f"statistical {budget['statistical_deg']:.2f}°" in text and "standard uncertainties:" in text

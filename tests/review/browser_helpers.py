@@ -92,3 +92,37 @@ def chromium(profile: Path):
     finally:
         driver.quit()
         shutil.rmtree(profile, ignore_errors=True)
+
+
+def by_css(driver, css):
+    from selenium.webdriver.common.by import By
+
+    return driver.find_element(By.CSS_SELECTOR, css)
+
+
+def all_css(driver, css):
+    from selenium.webdriver.common.by import By
+
+    return driver.find_elements(By.CSS_SELECTOR, css)
+
+
+def unnamed_controls(driver) -> list[str]:
+    """Every link, button and form field whose computed accessible name (Chromium's) is empty."""
+    out = []
+    for el in all_css(driver, "a[href], button, input:not([type=hidden]), select, textarea, [tabindex='0']"):
+        if el.is_displayed() and not (el.accessible_name or "").strip():
+            out.append(el.get_attribute("outerHTML")[:120])
+    return out
+
+
+def tab_order(driver, steps: int) -> list[str]:
+    """Accessible names of the first ``steps`` elements Tab reaches on a freshly loaded page."""
+    from selenium.webdriver.common.action_chains import ActionChains
+    from selenium.webdriver.common.keys import Keys
+
+    driver.refresh()
+    seen = []
+    for _ in range(steps):
+        ActionChains(driver).send_keys(Keys.TAB).perform()
+        seen.append(driver.switch_to.active_element.accessible_name)
+    return seen

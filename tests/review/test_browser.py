@@ -9,7 +9,7 @@ archive. Screenshots of each page go to ``<tmp>/screenshots``.
 from __future__ import annotations
 
 import pytest
-from browser_helpers import chromium, running_server
+from browser_helpers import all_css, by_css, chromium, running_server, tab_order, unnamed_controls
 from review_helpers import PASSPHRASE, run_cli
 
 from surfinspect.archive import store
@@ -29,18 +29,6 @@ def station(demo_archive, tmp_path):
             yield demo, url, driver, shots
 
 
-def by_css(driver, css):
-    from selenium.webdriver.common.by import By
-
-    return driver.find_element(By.CSS_SELECTOR, css)
-
-
-def all_css(driver, css):
-    from selenium.webdriver.common.by import By
-
-    return driver.find_elements(By.CSS_SELECTOR, css)
-
-
 def wait_for_pictures(driver) -> None:
     """Wait (at most 20 s) until every picture on the page has loaded, so the screenshot shows them."""
     from selenium.webdriver.support.ui import WebDriverWait
@@ -48,15 +36,6 @@ def wait_for_pictures(driver) -> None:
     WebDriverWait(driver, 20).until(
         lambda d: d.execute_script("return Array.from(document.images).every(i => i.complete && i.naturalWidth > 0)")
     )
-
-
-def unnamed_controls(driver) -> list[str]:
-    """Every link, button and form field whose computed accessible name (Chromium's) is empty."""
-    out = []
-    for el in all_css(driver, "a[href], button, input:not([type=hidden]), select, textarea, [tabindex='0']"):
-        if el.is_displayed() and not (el.accessible_name or "").strip():
-            out.append(el.get_attribute("outerHTML")[:120])
-    return out
 
 
 def fill_act(driver, choice: str, value: str, prefix: str, comment: str, passphrase: str) -> None:
@@ -71,19 +50,6 @@ def fill_act(driver, choice: str, value: str, prefix: str, comment: str, passphr
     by_css(driver, f"#{prefix}passphrase").submit()
 
 
-def tab_order(driver, steps: int) -> list[str]:
-    """Accessible names of the first ``steps`` elements Tab reaches on a freshly loaded page."""
-    from selenium.webdriver.common.action_chains import ActionChains
-    from selenium.webdriver.common.keys import Keys
-
-    driver.refresh()
-    seen = []
-    for _ in range(steps):
-        ActionChains(driver).send_keys(Keys.TAB).perform()
-        seen.append(driver.switch_to.active_element.accessible_name)
-    return seen
-
-
 def test_the_inspectors_round(station):
     from selenium.webdriver.common.action_chains import ActionChains
 
@@ -91,8 +57,13 @@ def test_the_inspectors_round(station):
     driver.get(url + "/")
     driver.save_screenshot(str(shots / "1-batches.png"))
     assert unnamed_controls(driver) == []
-    order = tab_order(driver, 3)
-    assert order == ["Skip to the content", "surfinspect review: all batches", "Batch id or recipe"]
+    order = tab_order(driver, 4)
+    assert order == [
+        "Skip to the content",
+        "surfinspect review: all batches",
+        "Write a recipe by drawing on a reference photo",
+        "Batch id or recipe",
+    ]
     by_css(driver, f'a[href="/batch/{demo.batch_id}"]').click()
 
     assert driver.title.startswith(f"Batch {demo.batch_id}")
