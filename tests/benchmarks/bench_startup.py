@@ -8,6 +8,11 @@ Prints the median wall time of ``python -c pass``, then of ``surfinspect --versi
 ``surfinspect check recipes/*.yaml`` and ``surfinspect --help`` as ratios to it (target: at most
 4x each), and the wall time of ``surfinspect inspect`` of one demo part into a new folder
 (target: at most 1.5 s, JSON, overlay and the PDF report included).
+
+Every command runs with Python's bytecode cache, as an installed package does (pip compiles the
+modules at install time): ``PYTHONDONTWRITEBYTECODE`` is removed from the commands' environment, so
+the warm-up run writes ``__pycache__`` and the timed runs read it. ``--as-set`` keeps the
+environment as it is (with ``PYTHONDONTWRITEBYTECODE=1`` every run compiles every module it imports).
 """
 
 from __future__ import annotations
@@ -26,16 +31,23 @@ ROOT = Path(__file__).resolve().parents[2]
 CLI = [sys.executable, "-m", "surfinspect"]
 
 
+ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+
+
 def timed(argv: list[str]) -> float:
     start = time.perf_counter()
-    subprocess.run(argv, cwd=ROOT, capture_output=True, check=False)
+    subprocess.run(argv, cwd=ROOT, capture_output=True, check=False, env=ENV)
     return time.perf_counter() - start
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=15)
+    ap.add_argument("--as-set", action="store_true", help="keep PYTHONDONTWRITEBYTECODE as the environment sets it")
     args = ap.parse_args()
+    if args.as_set:
+        ENV.update(os.environ)
+    print(f"bytecode cache: {'off' if ENV.get('PYTHONDONTWRITEBYTECODE') else 'on'} (PYTHONDONTWRITEBYTECODE)")
     recipes = sorted(str(p) for p in (ROOT / "recipes").glob("*.yaml"))
     commands = {
         "python -c pass": [sys.executable, "-c", "pass"],
@@ -64,7 +76,9 @@ def main() -> None:
         with tempfile.TemporaryDirectory() as tmp:
             before = resource.getrusage(resource.RUSAGE_CHILDREN)
             start = time.perf_counter()
-            subprocess.run([*CLI, "inspect", str(recipe), str(part), "--out", f"{tmp}/out"], capture_output=True)
+            subprocess.run(
+                [*CLI, "inspect", str(recipe), str(part), "--out", f"{tmp}/out"], capture_output=True, env=ENV
+            )
             times.append(time.perf_counter() - start)
             after = resource.getrusage(resource.RUSAGE_CHILDREN)
             cpu.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)
