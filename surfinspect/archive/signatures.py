@@ -24,6 +24,7 @@ release decision). Dispositions of a doubtful part: ``use-as-is``,
 
 from __future__ import annotations
 
+import json
 from typing import Callable
 
 from ..errors import InputError
@@ -315,6 +316,14 @@ def sign_batch(
     return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
 
 
+def _signed_report(row: SignoffRow) -> str | None:
+    """The report edition a stored sign-off signed (its record's ``report_sha256``)."""
+    try:
+        return json.loads(row.record_json).get("report_sha256")
+    except (ValueError, AttributeError):
+        return None
+
+
 def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff) -> bytes:
     """The signed edition with its PDF signature (:mod:`.pdf_signature`): sign-off 1 signs the report rendered
     with its sign-off block; each later one is an incremental update of the edition before it, so that every
@@ -327,11 +336,10 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
             f"--key: the register holds no certificate for this key ({key.fingerprint[:16]}…): it was enrolled "
             "before signers got certificates; the owner revokes it and enrols a new key for the PDF signature"
         )
-    if number == 1:
-        base = render_edition(signoff)
-    else:
-        previous = archive.signoffs(batch_id)[number - 2]
-        base = archive.read_object(previous.signed_report_sha256)
+    # later sign-offs of the same report edition add their signature to the signed PDF before them; the first
+    # sign-off of a report edition (the first one, or one written after parts were re-inspected) renders it
+    same = [s for s in archive.signoffs(batch_id) if _signed_report(s) == record["report_sha256"]]
+    base = archive.read_object(same[-1].signed_report_sha256) if same else render_edition(signoff)
     return sign_pdf(
         base,
         key.private_key,

@@ -9,6 +9,7 @@ their hash, without a suffix): ``report.pdf``, ``report.signed-N.pdf``,
 from __future__ import annotations
 
 import argparse
+import json
 
 from .._lazy import module
 from ..errors import InputError
@@ -18,6 +19,7 @@ from .console import Console
 
 archive = module("surfinspect.archive.store")
 location = module("surfinspect.archive.location")
+editions = module("surfinspect.archive.editions")
 batch = module("surfinspect.station.batch")
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
@@ -73,6 +75,14 @@ def run(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
+def _signed_edition(events, s) -> int | str:
+    """The report edition a sign-off signed: the one current at its audit event."""
+    act = next(
+        (e for e in events if e.kind == "signed" and json.loads(e.details).get("signoff_no") == s.signoff_no), None
+    )
+    return editions.edition_at(events, s.batch_id, act.seq) if act else "?"
+
+
 def _show_batches(arc: archive.Archive, console: Console) -> None:
     rows = []
     for b in arc.batches():
@@ -123,10 +133,17 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
         f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}"
     )
     console.info(", ".join(f"{n} {v}" for v, n in counts.items() if n) or "no parts")
+    events = arc.batch_events(batch_id)
     if b.report_sha256:
         console.info(
             f"report {arc.object_path(b.report_sha256).relative_to(arc.root)} "
             "(a PDF stored under its hash; --out DIR copies it out as report.pdf)"
+        )
+    retried = [e for e in events if e.kind == "part re-inspected"]
+    if retried:
+        console.info(
+            f"report edition {len(editions.edition_events(events, batch_id))}: re-inspected after the first: "
+            + ", ".join(f"{e.part_key} ({e.recorded_at})" for e in retried)
         )
     rows = []
     for p in parts:
@@ -140,7 +157,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
     signoffs = arc.signoffs(batch_id)
     if signoffs:
         console.table(
-            ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "comment"],
+            ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "of edition", "comment"],
             [
                 [
                     s.signoff_no,
@@ -149,6 +166,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
                     s.signed_at_utc,
                     s.key_fingerprint[:16] + "…",
                     str(arc.object_path(s.signed_report_sha256).relative_to(arc.root)),
+                    _signed_edition(events, s),
                     s.comment,
                 ]
                 for s in signoffs
