@@ -25,7 +25,15 @@ from .chain import EventKind
 from .records import ERROR_VERDICT, OLD_ERROR_VERDICT, image_set_sha256, index_rows_of, utc_now, verdict_counts
 from .schema import BatchRow, EventRow, PartRow
 
-__all__ = ["Retried", "EditionsMixin", "edition_events", "edition_at", "batch_state_at", "BatchState"]
+__all__ = [
+    "Retried",
+    "EditionsMixin",
+    "edition_events",
+    "edition_at",
+    "batch_state_at",
+    "BatchState",
+    "is_not_inspected",
+]
 
 
 @dataclass(frozen=True)
@@ -67,14 +75,22 @@ class BatchState:
         return {p["part_key"]: p["result_sha256"] for p in self.parts if p["result_sha256"]}
 
 
-def batch_state_at(events: Sequence[EventRow], batch_id: str, seq: int) -> BatchState:
-    """The batch's rows as replaying the trail's events before ``seq`` gives them."""
+def batch_state_at(
+    events: Sequence[EventRow], batch_id: str, seq: int, region_order: Sequence[tuple[str, str]] = ()
+) -> BatchState:
+    """The batch's rows as replaying the trail's events before ``seq`` gives them.
+
+    ``region_order``: (part key, region name) in the order the index sorts the batch's regions now (a
+    database's collation may differ from code point order); regions are only ever added, so it orders
+    every earlier state too.
+    """
     state, _ = chain.replay_rows(e for e in events if e.seq < seq)
     batches = [r.row for r in state["batches"].values() if r.row["batch_id"] == batch_id]
     parts = sorted((r.row for r in state["parts"].values() if r.row["batch_id"] == batch_id), key=_position)
+    rank = {key: i for i, key in enumerate(region_order)}
     regions = sorted(
         (r.row for r in state["regions"].values() if r.row["batch_id"] == batch_id),
-        key=lambda r: (r["part_key"].encode("utf-8"), r["region_name"].encode("utf-8")),  # SQLite's BINARY order
+        key=lambda r: (rank.get((r["part_key"], r["region_name"]), len(rank)), r["part_key"], r["region_name"]),
     )
     return BatchState(batches[0] if batches else None, parts, regions)
 

@@ -280,9 +280,17 @@ def check_signoffs(ctx: Context) -> None:
                     f"{who}: it signed report edition {signed}; the batch has a newer edition {editions} "
                     "(parts re-inspected since), which this sign-off does not cover"
                 )
-                _check_signed_content(ctx, who, record, s, act, batch_state_at(ctx.events, bid, act.seq))
+                _check_signed_content(ctx, who, record, s, act, _state_then(ctx, bid, act.seq))
             else:
                 _check_signed_content(ctx, who, record, s, act, None)
+
+
+def _state_then(ctx: Context, batch_id: str, seq: int) -> BatchState:
+    """The batch as the trail had it before event ``seq``, its regions in the order the index sorts them."""
+    rows = ctx.archive.index.select(
+        "regions", {"batch_id": batch_id}, order_by=("part_key", "region_name"), columns=("part_key", "region_name")
+    )
+    return batch_state_at(ctx.events, batch_id, seq, [(r["part_key"], r["region_name"]) for r in rows])
 
 
 def _check_signed_content(ctx: Context, who: str, record: dict, s, act, then: BatchState | None) -> None:
