@@ -142,8 +142,11 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
     retried = [e for e in events if e.kind == "part re-inspected"]
     if retried:
         console.info(
-            f"report edition {len(editions.edition_events(events, batch_id))}: re-inspected after the first: "
-            + ", ".join(f"{e.part_key} ({e.recorded_at})" for e in retried)
+            f"report edition {len(editions.edition_events(events, batch_id))}; parts re-inspected after the first "
+            "edition: "
+            + ", ".join(
+                f"{e.part_key} (edition {json.loads(e.details).get('edition')}, {e.recorded_at})" for e in retried
+            )
         )
     rows = []
     for p in parts:
