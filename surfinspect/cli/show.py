@@ -46,12 +46,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
+def _signoff_state(signoffs: list[archive.SignoffRow], report_sha256: str | None) -> str:
     if not signoffs:
         return "not signed"
     last = signoffs[-1]
     more = f" (+{len(signoffs) - 1} earlier)" if len(signoffs) > 1 else ""
-    return f"{last.meaning} by {last.signer_name} {last.signed_at_utc}{more}"
+    # after batch --retry-errors the batch has a newer report edition than the one signed
+    older = json.loads(last.record_json).get("report_sha256") != report_sha256
+    return f"{last.meaning} by {last.signer_name} {last.signed_at_utc}{more}" + (
+        "; an earlier edition: the newest is not signed" if older else ""
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
@@ -98,7 +102,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
                 counts["review"],
                 counts[archive.ERROR_VERDICT],
                 "finished" if b.is_finished else f"unfinished ({counts['pending']} to do)",
-                _signoff_state(arc.signoffs(b.batch_id)),
+                _signoff_state(arc.signoffs(b.batch_id), b.report_sha256),
             ]
         )
     if not rows:

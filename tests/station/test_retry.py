@@ -141,6 +141,8 @@ def test_retry_re_inspects_only_the_fixed_part_and_the_signed_edition_stays_vali
     text = "".join(page.extract_text() for page in PdfReader(out_dir / "report.pdf").pages)
     assert "B1, edition 2" in text and "LW-220-002" in text and "NOT INSPECTED" not in text.upper()
     assert (out_dir / "report.signed-1.pdf").is_file()
+    assert main(["show", "--archive", str(root)]) == 0
+    assert "released by R. OSTERMANN" in (listed := capsys.readouterr().out) and "the newest is not signed" in listed
 
     # a sign-off of the new edition starts a signed PDF of its own; both verify
     assert _sign(root, keys["inspector"]) == 0
