@@ -205,7 +205,7 @@ def check_pdf_signatures(ctx) -> None:
                     s.signed_at_utc,
                     s.signed_report_sha256,
                     data,
-                    _signed_report(s.record_json),
+                    report_sha256=_signed_report(s.record_json),
                 )
             )
         problems, warnings = edition_findings(batch.batch_id, editions, owner_cert, revoked)
