@@ -28,6 +28,7 @@ from ..archive.editions import Retried, is_not_inspected
 from ..archive.location import open_archive
 from ..errors import InputError
 from ..fsutil import ensure_output_dir
+from ..inputs import escape_text
 from ..recipe import load_recipe
 from ..results import EXIT_INPUT_ERROR
 from .batch import (
@@ -88,6 +89,8 @@ def retry_errors(config: BatchConfig) -> RetryOutcome:
         raise InputError(f"--jobs: must be at least 1 (got {config.jobs})")
     archive_mod.check_batch_id(config.batch_id)
     recipe = load_recipe(config.recipe_path)
+    if not config.folder.is_dir():  # refused even when there turns out to be nothing to retry
+        raise InputError(f"{escape_text(str(config.folder))}: not a folder of images")
     if config.out_dir is not None:
         ensure_output_dir(config.out_dir, "--out")
     with open_archive(config.archive_dir) as arc:

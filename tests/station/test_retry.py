@@ -181,6 +181,22 @@ def test_bad_use_is_one_line_and_nothing_to_retry_keeps_the_batch_verdict(line, 
     other.write_text(RECIPE.replace("tolerance_deg: 3.0", "tolerance_deg: 2.0"))
     assert main(["batch", str(other), str(folder), "--archive", str(root), "--batch-id", "B1", "--retry-errors"]) == 2
     assert "a retry uses the batch's own recipe" in capsys.readouterr().err
+    assert (
+        main(
+            [
+                "batch",
+                str(recipe),
+                str(tmp_path / "nowhere"),
+                "--archive",
+                str(root),
+                "--batch-id",
+                "B1",
+                "--retry-errors",
+            ]
+        )
+        == 2
+    )
+    assert "nowhere: not a folder of images" in capsys.readouterr().err
     (folder / BROKEN).write_bytes(whole)
     assert main([*retry, "--batch-id", "B1", "--jobs", "1"]) == 1
     head = _events(root)[-1]
