@@ -5,7 +5,7 @@ from __future__ import annotations
 import hashlib
 
 import pytest
-from archive_helpers import BATCH, PARTS, full_archive, region, result_json, sql
+from archive_helpers import BACKENDS, BATCH, PARTS, full_archive, region, result_json, site_for, sql
 
 from surfinspect import results
 from surfinspect.archive import signatures
@@ -37,8 +37,9 @@ def _retry(root, part, station_key=None):
         )
 
 
-def test_earlier_sign_off_and_disposition_stay_valid_for_what_they_were_made_for(tmp_path):
-    root, keys = full_archive(tmp_path)
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_earlier_sign_off_and_disposition_stay_valid_for_what_they_were_made_for(request, tmp_path, backend):
+    root, keys = full_archive(tmp_path, root=site_for(request, tmp_path / "archive", backend))
     with arc.Archive(root) as a:  # a disposition for the part not inspected, before it is re-inspected
         signatures.record_disposition(a, BATCH, PARTS[-1], keys.person, decision="re-inspect", comment="copy again")
         first = a.batch(BATCH)
