@@ -27,8 +27,10 @@ from ..results import (
     RecipeInfo,
     part_verdict,
 )
+from .axial import wrap_deviation
 from .cells import cell_sums, merge_edge_slivers
 from .conditions import block_grid, illumination_background, saturated_pixels
+from .crossed import family_energy_per_cell, spectral_families
 from .datum import DatumError, find_part_frame
 from .derivatives import gaussian_derivative_kernels
 from .imaging import as_grey_float
@@ -43,6 +45,18 @@ HISTOGRAM_VOTE_STEP = 2
 
 #: The spectral estimate uses at most this many pixels square from the region's centre.
 SPECTRAL_SIDE = 256
+
+#: The directions of a crossed lay come from at most this many pixels square from the region's centre
+#: (its angular resolution grows with the side: 2 / (side f) radians, see ``crossed.angular_resolution_deg``).
+CROSSED_SIDE = 512
+
+#: The cells of a crossed region are checked for marks off both families when these lie at least this
+#: far apart (a quarter of it, 15 deg, is then about what a cell's window of 48 px resolves).
+OFF_CHECK_MIN_SEPARATION = 80.0
+
+#: ... and when the region as a whole holds at most this share of its cells' energy off both families
+#: (crossed regions: 0.01-0.13; gratings of period 20, too coarse for a 48 px window: about 1).
+OFF_CHECK_MAX_REGION_SHARE = 0.2
 
 #: A region with fewer cells than this has its direction test made on cells a third the size.
 MIN_TEST_CELLS = 64
@@ -332,6 +346,11 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     spectral = tensor_se = None
     if region.lay is LayPattern.DIRECTIONAL:
         spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask if keep is None else mask & keep, sigma_n)
+    families = family_cells = None
+    if region.lay is LayPattern.CROSSED:
+        families, family_cells = _crossed_sample(
+            pixels, region, bbox, mask if keep is None else mask & keep, sigma_n, cells
+        )
     centre_px = None
     if region.centre is not None:
         cx, cy = frame.to_image([region.centre])[0]
@@ -350,6 +369,8 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         test_cells=test_cells,
         spectral=spectral,
         tensor_standard_error_deg=tensor_se,
+        families=families,
+        family_cells=family_cells,
     )
 
 
@@ -372,6 +393,57 @@ def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray,
         block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
     se = tensor_angle_standard_error(block, crop, sigma=region.sigma_px)
     return spectral, se * math.sqrt(float(crop.sum()) / max(float(mask.sum()), 1.0))
+
+
+def _central(bbox, mask: np.ndarray, side: int):
+    """Box rows and columns ``(r0, r1, c0, c1)`` of the central ``side`` x ``side`` px of a region box."""
+    _, _, w, h = bbox
+    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
+    return r0, min(h, r0 + side), c0, min(w, c0 + side)
+
+
+def _crossed_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, sigma_n: float, cells):
+    """The families of marks of a crossed region (its central part) and their energy cell by cell."""
+    x0, y0, _, _ = bbox
+    r0, r1, c0, c1 = _central(bbox, mask, CROSSED_SIDE)
+    crop = mask[r0:r1, c0:c1]
+    if crop.sum() < 1024:  # under 32 x 32 px: no direction can be resolved
+        return None, None
+    block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]
+    if region.illumination_px > 0:
+        block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
+    families = spectral_families(block, crop, noise_sigma=sigma_n)
+    present = families.present
+    if len(present) < 2 or min(cells.shape_px) < 16:
+        return families, None
+    lays = [f.lay_deg for f in present[:2]]
+    separation = abs(wrap_deviation(lays[0], lays[1]))
+    box = (x0, y0, cells.shape_px[1], cells.shape_px[0])
+    energy = family_energy_per_cell(
+        pixels,
+        box,
+        cells.cell_px,
+        cells.area.shape,
+        lays,
+        noise_sigma=sigma_n,
+        half_width_deg=min(45.0, separation / 2),
+    )
+    if separation >= OFF_CHECK_MIN_SEPARATION:  # the energy off both families: within a quarter of the separation
+        near = family_energy_per_cell(
+            pixels,
+            box,
+            cells.cell_px,
+            cells.area.shape,
+            lays,
+            noise_sigma=sigma_n,
+            half_width_deg=separation / 4,
+            with_total=True,
+        )
+        off = 1.0 - near[..., :2].sum(axis=-1) / np.maximum(near[..., 2], 1e-300)
+        region_off = 1.0 - float(near[..., :2].sum()) / max(float(near[..., 2].sum()), 1e-300)
+        if region_off <= OFF_CHECK_MAX_REGION_SHARE:  # else the marks lie below what a cell's window resolves
+            energy = np.concatenate([energy, np.where(near[..., 2] > 0, off, 0.0)[..., None]], axis=-1)
+    return families, energy
 
 
 def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1024):

@@ -28,6 +28,7 @@ from ..results import CellGrid, Histogram, Patch, RegionResult, RegionVerdict
 from .axial import axial_mean, wrap_deviation
 from .cells import CellSums
 from .conditions import BlockGrid
+from .crossed import SpectralFamilies
 from .derivatives import tensor_lay
 from .noise import noise_gradient_energy
 from .patterns import fit_centre, judge_centred, judge_crossed, judge_nondirectional
@@ -90,6 +91,8 @@ class RegionMeasurement:
     test_cells: CellSums | None = None  # finer cells for the direction test of a small region
     spectral: SpectralLay | None = None  # the second, independent estimate (image axes)
     tensor_standard_error_deg: float | None = None  # of the summed tensor's angle, from the spectrum
+    families: SpectralFamilies | None = None  # crossed lay: the families of marks in the spectrum (image axes)
+    family_cells: np.ndarray | None = None  # (rows, cols, 2 or 3) their spectral energy per cell; share off both
 
 
 def _cell_lays(m: RegionMeasurement) -> tuple[np.ndarray, np.ndarray]:
@@ -438,6 +441,7 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     expected = _expected_per_cell(region, m, centre_px)
     deviation_cells = wrap_deviation(c.lay, expected)
     v = Verdict(lay=lay, extra=extra, deviating=np.zeros(sums.area.shape, dtype=bool))
+    patch_expected = None
     if region.lay in (LayPattern.DIRECTIONAL, LayPattern.CIRCULAR, LayPattern.RADIAL):
         # local check: cells with clear texture whose lay deviates beyond tolerance
         v.deviating = c.clear & (np.abs(deviation_cells) > region.tolerance_deg)
@@ -446,21 +450,24 @@ def judge_region(region: Region, m: RegionMeasurement) -> RegionResult:
     elif region.lay in (LayPattern.CIRCULAR, LayPattern.RADIAL):
         judge_centred(region, c, centre_px, deviation_cells, v)
     elif region.lay is LayPattern.CROSSED:
-        judge_crossed(region, histogram, v)
+        patch_expected = judge_crossed(region, histogram, m, c, v)
     elif region.lay in (LayPattern.MULTIDIRECTIONAL, LayPattern.PARTICULATE):
         judge_nondirectional(region, c, sums, coherence, v)
     # LayPattern.ANY: texture is present, nothing more is judged
     _review_reasons(region, m, c, v)
-    return _result(region, m, base, c, v, expected)
+    return _result(region, m, base, c, v, expected, patch_expected)
 
 
-def _result(region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdict, expected) -> RegionResult:
+def _result(
+    region: Region, m: RegionMeasurement, base: dict, c: Cells, v: Verdict, expected, patch_expected=None
+) -> RegionResult:
     sums = m.cells
     grain = None
     follow = c.clear & ~v.deviating
     if region.lay is LayPattern.DIRECTIONAL and follow.any():
         grain = [float(a[follow].sum() / sums.area[follow].sum()) for a in (sums.jxx, sums.jxy, sums.jyy)]
-    patches = _patches(v.deviating, m, expected, grain) if v.deviating.any() else ()
+    at = expected if patch_expected is None else patch_expected
+    patches = _patches(v.deviating, m, at, grain) if v.deviating.any() else ()
     deviating = float(sum(p.area_fraction for p in patches))
     if deviating > region.max_deviating_fraction:
         biggest = patches[0]

@@ -273,14 +273,32 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
         )
     k = np.unravel_index(int(np.argmax(signal)), signal.shape)
     f0 = np.array([fx[k], fy[k]])
-    # a line: its main lobe (3 x 3 padded bins) holds most of the band's power above what the noise
-    # leaves after subtraction (E[max(P - N, 0)] = N / e per bin for exponential ordinates). The rfft
-    # stores half the plane: interior columns stand for two bins, and a lobe reaching past column 0
-    # continues in the mirrored bins (-row, -column); the lobe at -f is the same, so it counts twice.
-    count = np.full(signal.shape[1], 2.0)
+    lobe = line_lobe_power(signal, k, pad * a.shape[1])
+    count = half_plane_count(signal.shape[1], pad * a.shape[1])
+    rest = float(np.sum(count * signal)) - float(np.sum(count * band)) * spectrum.noise_power / math.e
+    if lobe < LINE_SHARE * max(rest, lobe, 1e-300):
+        finest = finest_period(power, fx, fy, spectrum.noise_power)
+        return SpectralLay(peaks[0].lay_deg, "lobe", float(np.hypot(*f0)), None, spectrum, finest)
+    lay, freq, se = refine_line(a, w, mean, f0, float(np.max(power)), noise_sigma, mask)
+    finest = finest_period(power, fx, fy, spectrum.noise_power)
+    return SpectralLay(lay, "line", freq, se, spectrum, finest)
+
+
+def half_plane_count(columns: int, transform_cols: int) -> np.ndarray:
+    """How many bins of the full plane each rfft column stands for: 2, but 1 at 0 (and at Nyquist)."""
+    count = np.full(columns, 2.0)
     count[0] = 1.0
-    if (pad * a.shape[1]) % 2 == 0:
+    if transform_cols % 2 == 0:
         count[-1] = 1.0
+    return count
+
+
+def line_lobe_power(signal: np.ndarray, k: tuple[int, int], transform_cols: int) -> float:
+    """Power of a line's main lobe: the 3 x 3 padded bins about ``k``, at +f and -f.
+
+    The rfft stores half the plane: a lobe reaching past column 0 continues in the mirrored bins
+    (-row, -column); the lobe at -f is the same, so it counts twice.
+    """
     cells = {
         ((k[0] + dr) % signal.shape[0], k[1] + dc)
         if k[1] + dc >= 0
@@ -289,20 +307,26 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
         for dc in (-1, 0, 1)
         if k[1] + dc < signal.shape[1]
     }
-    lobe = 2.0 * sum(float(signal[r, c]) for r, c in cells)
-    rest = float(np.sum(count * signal)) - float(np.sum(count * band)) * spectrum.noise_power / math.e
-    if lobe < LINE_SHARE * max(rest, lobe, 1e-300):
-        finest = finest_period(power, fx, fy, spectrum.noise_power)
-        return SpectralLay(peaks[0].lay_deg, "lobe", float(np.hypot(*f0)), None, spectrum, finest)
+    return 2.0 * sum(float(signal[r, c]) for r, c in cells)
+
+
+def refine_line(a, w, mean, f0, peak_power: float, noise_sigma: float, mask):
+    """A line's lay refined to the maximum of the exact windowed Fourier transform, near ``f0``.
+
+    Nelder-Mead from the padded periodogram's maximum ``f0`` (cycles/px, x and y up). Returns the
+    lay (degrees, image axes), the line's frequency and its standard error: the Cramer-Rao bound
+    of a sinusoid's orientation at the measured amplitude and noise, times
+    :data:`HANN_VARIANCE_FACTOR` (None without a noise level).
+    """
     rows, cols = a.shape
     wa = w * (a - mean)
     xs = np.arange(cols, dtype=np.float64)
     ys_up = -np.arange(rows, dtype=np.float64)
     res = optimize.minimize(
         lambda q: -_dtft_power(q, wa, xs, ys_up),
-        f0,
+        np.asarray(f0, dtype=np.float64),
         method="Nelder-Mead",
-        options={"xatol": 2e-7, "fatol": 1e-9 * float(np.max(power))},
+        options={"xatol": 2e-7, "fatol": 1e-9 * peak_power},
     )
     fxo, fyo = res.x
     lay = float(np.mod(math.degrees(math.atan2(fyo, fxo)) + 90.0, 180.0))
@@ -314,8 +338,7 @@ def _spectral_lay(block: np.ndarray, mask: np.ndarray | None, *, noise_sigma: fl
             _orientation_crb(mask if mask is not None else np.ones(a.shape, bool), lay, amplitude / noise_sigma, k_rad)
         )
         se *= math.sqrt(HANN_VARIANCE_FACTOR)
-    finest = finest_period(power, fx, fy, spectrum.noise_power)
-    return SpectralLay(lay, "line", float(math.hypot(fxo, fyo)), se, spectrum, finest)
+    return lay, float(math.hypot(fxo, fyo)), se
 
 
 def _orientation_crb(mask: np.ndarray, lay_deg: float, snr: float, k_rad: float) -> float:

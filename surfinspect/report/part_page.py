@@ -31,7 +31,7 @@ from .regions import (
     _tolerance_text,
     _verdict_sentence,
 )
-from .rose import _draw_deviation_bars, _draw_rose, _figure_list
+from .rose import _draw_deviation_bars, _draw_rose, _figure_list, spectrum_petals
 from .scene import PART_LOOKS, build_scene, measured_angles
 
 _PART_HEADER_H = 40.0
@@ -182,10 +182,26 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                 expected = [] if varies else list(region.expected_angles)
                 c.setFillColor(colors.black)
                 c.setFont(SANS_BOLD, 7.5)
-                c.drawCentredString(cx, y - 9, f"{region.name}: orientation histogram")
+                spectrum = kind == "spectrum"
+                title = "angular power spectrum" if spectrum else "orientation histogram"
+                c.drawCentredString(cx, y - 9, f"{region.name}: {title}")
                 as_printed = dataclasses.replace(region, lay_deg=d["lay_deg"], extra=d["extra"])  # the JSON's values
-                _draw_rose(c, cx, y - 66, 46, region, expected, measured_angles(as_printed))
+                petals = spectrum_petals(d) if spectrum else None
+                _draw_rose(
+                    c,
+                    cx,
+                    y - 66,
+                    46,
+                    region,
+                    expected,
+                    () if spectrum else measured_angles(as_printed),
+                    petals,
+                    30.0 if spectrum else None,
+                )
                 c.setFont(SANS, 6.5)
+                if spectrum:
+                    _spectrum_caption(c, cx, y, d)
+                    continue
                 if varies:
                     exp_text = f"expected {_expected_text(region)}: varies per cell"
                 elif expected:
@@ -196,3 +212,18 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                 c.drawCentredString(cx, y - 136, f"measured {_measured_text(region, d)}")
 
         layout.block(_FIGURE_H, draw, gap=4)
+
+
+def _spectrum_caption(c: Canvas, cx: float, y: float, d) -> None:
+    """What the spectrum rose shows: the directions it gives (the verdict's) and the families' balance."""
+    extra = d["extra"]
+    found = extra.get("crossed_lay_deg") or []
+    unc = extra.get("crossed_uncertainty_deg") or [None] * len(found)
+    parts = []
+    for v, u in zip(found, unc):
+        if isinstance(v, (int, float)):
+            parts.append(format_angle(v, axial=True) + (f" ± {format_angle(u)}" if isinstance(u, (int, float)) else ""))
+    c.drawCentredString(cx, y - 128, "directions " + (" / ".join(parts) if parts else "not found") + " (k = 2)")
+    balance = extra.get("balance")
+    note = f"; balance {balance:.2f}" if isinstance(balance, (int, float)) else ""
+    c.drawCentredString(cx, y - 136, f"power per direction, 30 dB scale{note}")

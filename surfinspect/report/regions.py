@@ -96,7 +96,14 @@ def _measured_text(region: RegionResult, d: Mapping) -> str:
         return "no single lay"
     if pattern == "crossed" and isinstance(d["extra"].get("crossed_lay_deg"), list):
         found = d["extra"]["crossed_lay_deg"]
-        return " / ".join("not found" if v is None else format_angle(v, axial=True) for v in found)
+        unc = d["extra"].get("crossed_uncertainty_deg")
+        unc = unc if isinstance(unc, list) and len(unc) == len(found) else [None] * len(found)
+        return " / ".join(
+            "not found"
+            if v is None
+            else format_angle(v, axial=True) + (f", U = {format_angle(u)}" if isinstance(u, (int, float)) else "")
+            for v, u in zip(found, unc)
+        )
     if d["lay_deg"] is None:
         return "—"
     text = format_angle(d["lay_deg"], axial=True)
@@ -153,8 +160,16 @@ def _figures_text(region: RegionResult, d: Mapping) -> str:
             for v, dv in zip(found, devs)
         ]
         said.append("grains " + " and ".join(grains))
+    extra.pop("angular_spectrum", None)  # drawn beside the histogram
+    unc = extra.pop("crossed_uncertainty_deg", None)
+    if isinstance(unc, list) and any(isinstance(u, (int, float)) for u in unc):
+        said.append(
+            "U (k = 2) " + " and ".join("—" if u is None else format_angle(u) for u in unc) + " from the spectrum"
+        )
     if "balance" in extra:
-        said.append(f"balance {format_fixed(extra.pop('balance'), 2)} (weaker direction's share, 0.50 = even)")
+        said.append(
+            f"balance {format_fixed(extra.pop('balance'), 2)} (weaker family's share of the spectral energy, 0.50 = even)"
+        )
     if "rayleigh_p" in extra:
         r = extra.pop("rayleigh_resultant_length", None)
         z = extra.pop("rayleigh_statistic", None)

@@ -29,14 +29,20 @@ def _draw_rose(
     region: RegionResult,
     expected: Sequence[float],
     measured: Sequence[float],
+    petals: tuple[Sequence[float], Sequence[float]] | None = None,
+    range_db: float | None = None,
 ) -> None:
-    """Axial rose of the orientation histogram, mirrored to a full circle.
+    """Axial rose of the orientation histogram (or of ``petals``: bin edges and weights), mirrored to a full circle.
 
     Petal radius grows with the square root of the bin weight, so petal area
-    is proportional to the weight (common practice for rose diagrams, no source).
+    is proportional to the weight (common practice for rose diagrams, no source); with
+    ``range_db`` the radius is instead the weight in decibels over that range below the highest
+    bin (a spectrum's ridges are narrow and its floor far below them).
     """
-    edges = np.asarray(region.histogram.bin_edges_deg, dtype=float)
-    weights = np.asarray(region.histogram.weights, dtype=float)
+    if petals is None:
+        petals = (region.histogram.bin_edges_deg, region.histogram.weights)
+    edges = np.asarray(petals[0], dtype=float)
+    weights = np.asarray(petals[1], dtype=float)
     c.saveState()
     c.setLineWidth(0.4)
     c.setStrokeColor(colors.Color(0.7, 0.7, 0.7))
@@ -63,7 +69,10 @@ def _draw_rose(
         for a0, a1, w in zip(edges[:-1], edges[1:], weights):
             if w <= 0:
                 continue
-            r = radius * math.sqrt(w / wmax)
+            if range_db:
+                r = radius * max(0.0, 1.0 + 10.0 * math.log10(w / wmax) / range_db)
+            else:
+                r = radius * math.sqrt(w / wmax)
             for base in (0.0, 180.0):
                 path.moveTo(cx, cy)
                 path.arcTo(cx - r, cy - r, cx + r, cy + r, startAng=a0 + base, extent=a1 - a0)
@@ -110,11 +119,25 @@ def _cell_deviations(d: Mapping) -> np.ndarray:
     return np.asarray(wrap_deviation(lay[known], exp[known]), dtype=float).reshape(-1)
 
 
+def spectrum_petals(d: Mapping) -> tuple[list, list] | None:
+    """Bin edges and weights of a crossed region's angular spectrum, from the JSON (None without one)."""
+    spec = (d.get("extra") or {}).get("angular_spectrum")
+    if not isinstance(spec, Mapping):
+        return None
+    edges, weights = spec.get("bin_edges_deg"), spec.get("weights")
+    if not isinstance(edges, list) or not isinstance(weights, list) or len(edges) != len(weights) + 1:
+        return None
+    return edges, weights
+
+
 def _figure_list(fig: _PartFigures) -> list[tuple[str, RegionResult, dict]]:
-    """One rose per region; a region whose expected lay varies also gets its cells' deviations."""
+    """One rose per region; a crossed region's angular spectrum beside it; a region whose expected lay
+    varies also gets its cells' deviations."""
     out = []
     for region, d in zip(fig.part.regions, fig.regions):
         out.append(("rose", region, d))
+        if region.lay_pattern == "crossed" and spectrum_petals(d) is not None:
+            out.append(("spectrum", region, d))
         if (
             region.lay_pattern in _CENTRED
             and region.verdict is not RegionVerdict.NO_TEXTURE

@@ -30,8 +30,9 @@ from test_overlay import (
     nearest_palette_name,
 )
 
-from surfinspect import results
+from surfinspect import inspect_image, parse_recipe, results
 from surfinspect.errors import InputError
+from surfinspect.measure import synth
 from surfinspect.pdfa.fonts import SANS_BOLD
 from surfinspect.report.pdf import (
     CAUTION,
@@ -632,3 +633,22 @@ def test_patch_table_names_patches_as_the_picture_does():
     table = " ".join(texts[1].split("Deviating patches")[1].split())
     # PATCH_CELLS of test_overlay: cols 8..11 and rows 4..6 of 20 px cells from (20, 20)
     assert "face P1 180, 100, 80, 60" in table
+
+
+def test_crossed_region_shows_its_angular_spectrum_beside_the_histogram():
+    # two summed gratings at 30 and 120 deg (analytic truth): the spectrum rose names both directions
+    shape = (200, 200)
+    img = 0.5 + synth.sine_grating(shape, 30, 8, amplitude=0.2, mean=0.0)
+    img = (img + synth.sine_grating(shape, 120, 8, amplitude=0.2, mean=0.0, phase=1.0)).astype(np.float32)
+    recipe = parse_recipe(
+        "recipe: x\nrevision: 1\nregions:\n  - name: face\n    rect: [8, 8, 184, 184]\n    lay: crossed\n"
+        "    lay_deg: [30, 120]\n    tolerance_deg: 3\n",
+        "x.yaml",
+    )
+    part = inspect_image(img, recipe)
+    assert part.regions[0].extra["angular_spectrum"]["weights"]
+    reader = PdfReader(io.BytesIO(render_report([part], [img], report_id="R1", generated_at=WHEN)))
+    text = " ".join(page_texts(reader))
+    assert "face: orientation histogram" in text and "face: angular power spectrum" in text
+    assert "directions 30.00° ± " in text and "120.00° ± " in text and "balance 0.50" in text
+    assert "bin_edges_deg" not in text  # the spectrum is drawn, not printed as numbers
