@@ -24,6 +24,7 @@ release decision). Dispositions of a doubtful part: ``use-as-is``,
 
 from __future__ import annotations
 
+import json
 from typing import Callable
 
 from ..errors import InputError
@@ -403,6 +404,14 @@ def sign_batch(
     return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
 
 
+def _signed_report(row: SignoffRow) -> str | None:
+    """The report edition a stored sign-off signed (its record's ``report_sha256``)."""
+    try:
+        return json.loads(row.record_json).get("report_sha256")
+    except (ValueError, AttributeError):
+        return None
+
+
 def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff) -> bytes:
     """The signed edition with its PDF signature (:mod:`.pdf_signature`): sign-off 1 signs the report rendered
     with its sign-off block; each later one is an incremental update of the edition before it, so that every
@@ -419,14 +428,16 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         raise InputError(
             f"--key: the owner's certificate that issued the certificate of {key.fingerprint[:16]}… is missing"
         )
+    # later sign-offs of the same report edition add their signature to the signed PDF before them; the first
+    # sign-off of a report edition (the first one, or one written after parts were re-inspected) renders it
+    same = [s for s in archive.signoffs(batch_id) if _signed_report(s) == record["report_sha256"]]
     appearance = box = None
-    if number == 1:
+    if not same:
         base = render_edition(signoff)
     else:
-        earlier = archive.signoffs(batch_id)
-        previous = earlier[number - 2]
+        previous = same[-1]
         base = archive.read_object(previous.signed_report_sha256)
-        box = slot_box(number) if '"dispositions_sha256"' in earlier[0].record_json else None  # edition 1 has boxes
+        box = slot_box(len(same) + 1) if '"dispositions_sha256"' in same[0].record_json else None  # it has boxes
         if box is not None:
             since = tuple(d for d in signoff.dispositions if d.decided_at_utc > previous.signed_at_utc)
             appearance = slot_appearance(signoff, since)

@@ -28,6 +28,7 @@ from ..fsutil import sha256_bytes
 from . import chain, signing
 from .backend import IndexBackend, IndexBusy, IndexDamaged
 from .chain import GENESIS_SHA256, EventKind
+from .editions import EditionsMixin
 from .location import check_folder, open_index, parse_location
 from .objects import ObjectStore
 from .records import (
@@ -75,7 +76,7 @@ class BatchPlan:
         self.batch, self.resumed, self.pending = batch, resumed, pending  # pending: part keys, in batch order
 
 
-class Archive:
+class Archive(EditionsMixin):
     """An archive folder; open with ``create=True`` to make it when missing.
 
     Raises
