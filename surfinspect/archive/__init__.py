@@ -34,7 +34,7 @@ __getattr__, __dir__, __all__ = attach(
         "chain": ("EventKind", "canonical_bytes"),
         "register": ("Register", "Signer", "STATION_ROLE"),
         "store": ("Archive", "BatchPlan"),
-        "editions": ("Retried", "edition_events", "batch_state_at"),
+        "editions": ("Retried", "edition_events", "batch_state_at", "signs_newest_edition"),
         "records": (
             "ERROR_SCHEMA",
             "image_set_sha256",

@@ -23,7 +23,7 @@ from ..errors import InputError
 from . import chain, signing
 from .chain import EventKind
 from .records import ERROR_VERDICT, OLD_ERROR_VERDICT, image_set_sha256, index_rows_of, utc_now, verdict_counts
-from .schema import BatchRow, EventRow, PartRow
+from .schema import BatchRow, EventRow, PartRow, SignoffRow
 
 __all__ = [
     "Retried",
@@ -33,6 +33,8 @@ __all__ = [
     "batch_state_at",
     "BatchState",
     "is_not_inspected",
+    "signed_report_sha256",
+    "signs_newest_edition",
 ]
 
 
@@ -45,6 +47,19 @@ class Retried:
     image_sha256: str
     result_json: bytes
     overlay_png: bytes
+
+
+def signed_report_sha256(row: SignoffRow) -> str | None:
+    """The report edition a stored sign-off signed (its record's ``report_sha256``; None when unreadable)."""
+    try:
+        return json.loads(row.record_json).get("report_sha256")
+    except (ValueError, AttributeError):
+        return None
+
+
+def signs_newest_edition(batch: BatchRow, row: SignoffRow) -> bool:
+    """True when the sign-off signed the batch's newest report edition (not one parts were re-inspected since)."""
+    return signed_report_sha256(row) == batch.report_sha256
 
 
 def edition_events(events: Iterable[EventRow], batch_id: str) -> list[EventRow]:

@@ -24,7 +24,6 @@ release decision). Dispositions of a doubtful part: ``use-as-is``,
 
 from __future__ import annotations
 
-import json
 from typing import Callable
 
 from ..errors import InputError
@@ -33,6 +32,7 @@ from ..report.signoff_page import slot_appearance, slot_box
 from ..results import SIGNOFF_MEANINGS, DispositionNote, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, certificate_spki, owner_certificate
+from .editions import signed_report_sha256
 from .pdf_signature import sign_pdf, signature_reason
 from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
 from .register import OWNER_ROLE, PDF_KEY_ACTION, check_printed_text, entry_record
@@ -404,14 +404,6 @@ def sign_batch(
     return archive.add_signoff(row, signed_report_pdf=edition, key=key, expected_head=(events, head))
 
 
-def _signed_report(row: SignoffRow) -> str | None:
-    """The report edition a stored sign-off signed (its record's ``report_sha256``)."""
-    try:
-        return json.loads(row.record_json).get("report_sha256")
-    except (ValueError, AttributeError):
-        return None
-
-
 def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff) -> bytes:
     """The signed edition with its PDF signature (:mod:`.pdf_signature`): sign-off 1 signs the report rendered
     with its sign-off block; each later one is an incremental update of the edition before it, so that every
@@ -430,7 +422,7 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         )
     # later sign-offs of the same report edition add their signature to the signed PDF before them; the first
     # sign-off of a report edition (the first one, or one written after parts were re-inspected) renders it
-    same = [s for s in archive.signoffs(batch_id) if _signed_report(s) == record["report_sha256"]]
+    same = [s for s in archive.signoffs(batch_id) if signed_report_sha256(s) == record["report_sha256"]]
     appearance = box = None
     if not same:
         base = render_edition(signoff)

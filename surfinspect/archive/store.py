@@ -99,8 +99,7 @@ class Archive(EditionsMixin):
         backend = backend or open_index(where)
         self.index = backend
         try:
-            # an existing index is checked before anything is written into it or beside it; one whose tables
-            # another process has made but not yet filled is made here too (the write lock orders the two)
+            # an existing index is checked before anything is written; one another process is making, made too
             existed = self.index.exists()
             if create and (not existed or self._made_but_empty()):
                 self._create()

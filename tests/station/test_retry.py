@@ -86,6 +86,17 @@ def _sign(root, key):
     return main(["-q", "sign", "--archive", str(root), "--batch-id", "B1", "--key", str(key), "--meaning", "released"])
 
 
+def _station_says_newest_unsigned(root) -> tuple[bool, bool]:
+    from starlette.testclient import TestClient
+
+    from surfinspect.review.app import ReviewConfig, create_app
+
+    with TestClient(create_app(ReviewConfig(str(root)))) as c:
+        listing, page = c.get("/"), c.get("/batch/B1")
+    assert listing.status_code == page.status_code == 200
+    return "newest report edition not signed" in listing.text, "the newest edition is not signed off" in page.text
+
+
 def _events(root):
     with arc.Archive(root) as a:
         return a.events()
@@ -144,8 +155,12 @@ def test_retry_re_inspects_only_the_fixed_part_and_the_signed_edition_stays_vali
     assert main(["show", "--archive", str(root)]) == 0
     assert "released by R. OSTERMANN" in (listed := capsys.readouterr().out) and "the newest is not signed" in listed
 
+    # the review station says so too, on the batches page and the batch page
+    assert _station_says_newest_unsigned(root) == (True, True)
+
     # a sign-off of the new edition starts a signed PDF of its own; both verify
     assert _sign(root, keys["inspector"]) == 0
+    assert _station_says_newest_unsigned(root) == (False, False)
     report = verify_archive(root)
     assert report.problems == []
     assert [w for w in report.warnings if "newer edition" in w] != []  # sign-off 1 still names its older edition
