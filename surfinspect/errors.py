@@ -21,3 +21,15 @@ class InputError(Exception):
 
 class RecipeError(InputError):
     """One or more problems found while loading a recipe; ``problems`` lists them all."""
+
+
+class IndexDamaged(Exception):
+    """The archive index cannot be read or written as an archive index (damaged, missing table, not a database).
+
+    Raised by the archive's index backends (:mod:`surfinspect.archive.backend`); defined here so that the
+    command line maps it to exit code 2 without loading the archive.
+    """
+
+
+class IndexBusy(Exception):
+    """The archive index is read-only or locked by another writer beyond the busy timeout."""

@@ -5,6 +5,17 @@ from __future__ import annotations
 
 from surfinspect import parse_recipe
 
+#: The LW-220 recipe text for 96 x 96 px panels (one region, lay 90 within 3 deg), for tests that run the CLI.
+SMALL_PANEL_RECIPE = """\
+recipe: lw-220-wall-panel
+revision: 3
+regions:
+  - name: face
+    rect: [8, 8, 80, 80]
+    lay_deg: 90
+    tolerance_deg: 3.0
+"""
+
 
 def directional_recipe(rect, lay_deg, *, tolerance_deg=3.0, cell_px=32, extra=""):
     x, y, w, h = rect

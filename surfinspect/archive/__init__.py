@@ -5,6 +5,7 @@ no report, no station).
 Modules, one concern each: ``schema`` (tables and row types), ``backend`` (the index interface),
 ``sqlite_backend`` (SQLite behind it), ``objects`` (files by content hash), ``chain`` (canonical
 serialisation, event hashes, row replay), ``register`` (who may sign), ``records`` (plain records and ids), ``store`` (the Archive),
+``editions`` (report editions: re-inspected parts, the batch as an edition had it),
 ``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``certificates`` and ``pki``
 (X.509 for the owner and signers, stored with the register), ``pdf_signature`` (PAdES signing and
 validation), ``checks``, ``signed_checks``, ``pdf_checks`` and ``verify`` (the verifier and anchors).
@@ -33,6 +34,7 @@ __getattr__, __dir__, __all__ = attach(
         "chain": ("EventKind", "canonical_bytes"),
         "register": ("Register", "Signer", "STATION_ROLE"),
         "store": ("Archive", "BatchPlan"),
+        "editions": ("Retried", "edition_events", "batch_state_at", "signs_newest_edition"),
         "records": (
             "ERROR_SCHEMA",
             "image_set_sha256",

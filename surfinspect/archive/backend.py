@@ -16,15 +16,9 @@ import abc
 import contextlib
 from typing import Any, Iterator, Mapping, Sequence
 
+from ..errors import IndexBusy, IndexDamaged  # defined with the other errors the command line maps to exit 2
+
 __all__ = ["IndexBackend", "IndexDamaged", "IndexBusy"]
-
-
-class IndexDamaged(Exception):
-    """The index cannot be read or written as an archive index (damaged, missing table, not a database)."""
-
-
-class IndexBusy(Exception):
-    """The index is read-only or locked by another writer beyond the busy timeout."""
 
 
 Row = Mapping[str, Any]

@@ -57,6 +57,7 @@ class EventKind(str, enum.Enum):
     BATCH_STARTED = "batch started"
     BATCH_RESUMED = "batch resumed"
     PART_INSPECTED = "part inspected"
+    PART_REINSPECTED = "part re-inspected"
     REPORT_WRITTEN = "report written"
     SIGNED = "signed"
     DISPOSITION = "disposition"

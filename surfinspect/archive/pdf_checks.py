@@ -24,6 +24,7 @@ after the revocation, it is a problem.
 from __future__ import annotations
 
 import hashlib
+import json
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -50,6 +51,7 @@ class SignedEdition:
     edition_sha256: str
     edition: bytes | None
     pdf_public_key_hex: str | None = None  # the PDF key the register certified for the signer (None: none)
+    report_sha256: str | None = None  # the (unsigned) report edition the sign-off signed, from its record
 
 
 @dataclass(frozen=True)
@@ -102,22 +104,24 @@ def _signature_problems(sig: PdfSignatureCheck, record: SignedEdition) -> list[s
 
 
 def _edition_findings(
-    where: str, n: int, checks: list[PdfSignatureCheck], by_no: dict[int, SignedEdition], revoked: dict
+    where: str, lineage: list[SignedEdition], checks: list[PdfSignatureCheck], revoked: dict
 ) -> tuple[list[str], list[str]]:
+    """Findings of one signed edition; ``lineage``: the sign-offs of its report edition up to its own, in order."""
     problems, warnings = [], []
     names = [c.field_name for c in checks]
-    expected = [f"{SIGNATURE_FIELD_PREFIX}{i}" for i in range(1, n + 1)]
+    expected = [f"{SIGNATURE_FIELD_PREFIX}{e.signoff_no}" for e in lineage]
+    n = len(lineage)
     if names != expected:
         problems.append(f"{where}: carries PDF signatures {names or 'none'}, the archive records {expected}")
     for i, sig in enumerate(checks, start=1):
-        record = by_no.get(i)
-        if record is None or i > n:
+        if i > n:
             continue
+        record = lineage[i - 1]
         found = _signature_problems(sig, record)
         if sig.covered_sha256 != record.edition_sha256:
             found.append(
-                f"the bytes it covers (SHA-256 {sig.covered_sha256[:16]}…) are not signed edition {i} as recorded "
-                f"({record.edition_sha256[:16]}…)"
+                f"the bytes it covers (SHA-256 {sig.covered_sha256[:16]}…) are not signed edition "
+                f"{record.signoff_no} as recorded ({record.edition_sha256[:16]}…)"
             )
         if i < n and sig.modified_after not in _ALLOWED_LATER_CHANGES:
             found.append(f"the later revisions changed more than signatures add ({sig.modified_after})")
@@ -147,14 +151,17 @@ def edition_findings(
     """(problems, warnings) of every signed edition of one batch, each naming the edition."""
     problems: list[str] = []
     warnings: list[str] = []
-    by_no = {e.signoff_no: e for e in editions}
-    for record in sorted(editions, key=lambda e: e.signoff_no):
+    ordered = sorted(editions, key=lambda e: e.signoff_no)
+    for record in ordered:
         n = record.signoff_no
         where = f"batch {batch_id}: signed edition {n} (SHA-256 {record.edition_sha256[:16]}…)"
         if record.edition is None:
             problems.append(f"{where}: cannot be read, its PDF signatures are not checked")
             continue
-        p, w = _edition_findings(where, n, pdf_signatures(record.edition, owner_certificate), by_no, revoked)
+        # a sign-off adds its signature to the signed edition of the same report before it; the first sign-off
+        # of a newer report edition (parts re-inspected) starts a new signed PDF
+        lineage = [e for e in ordered if e.signoff_no <= n and e.report_sha256 == record.report_sha256]
+        p, w = _edition_findings(where, lineage, pdf_signatures(record.edition, owner_certificate), revoked)
         problems += p
         warnings += w
     return problems, warnings
@@ -204,6 +211,7 @@ def check_pdf_signatures(ctx) -> None:
                     s.signed_report_sha256,
                     data,
                     getattr(register.signers.get(s.key_fingerprint), "pdf_public_key_hex", None),
+                    report_sha256=_signed_report(s.record_json),
                 )
             )
         problems, warnings = edition_findings(batch.batch_id, editions, roots, revoked)
@@ -211,6 +219,14 @@ def check_pdf_signatures(ctx) -> None:
             ctx.fail(p)
         for w in warnings:
             ctx.warn(w)
+
+
+def _signed_report(record_json: str) -> str | None:
+    try:
+        record = json.loads(record_json)
+    except ValueError:
+        return None  # an unreadable record is named by the sign-off check
+    return record.get("report_sha256") if isinstance(record, dict) else None
 
 
 def _check_certificates(ctx, register, owner_cert) -> None:

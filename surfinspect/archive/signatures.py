@@ -32,6 +32,7 @@ from ..report.signoff_page import slot_appearance, slot_box
 from ..results import SIGNOFF_MEANINGS, DispositionNote, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, certificate_spki, owner_certificate
+from .editions import signed_report_sha256
 from .pdf_signature import sign_pdf, signature_reason
 from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
 from .register import OWNER_ROLE, PDF_KEY_ACTION, check_printed_text, entry_record
@@ -419,14 +420,16 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         raise InputError(
             f"--key: the owner's certificate that issued the certificate of {key.fingerprint[:16]}… is missing"
         )
+    # later sign-offs of the same report edition add their signature to the signed PDF before them; the first
+    # sign-off of a report edition (the first one, or one written after parts were re-inspected) renders it
+    same = [s for s in archive.signoffs(batch_id) if signed_report_sha256(s) == record["report_sha256"]]
     appearance = box = None
-    if number == 1:
+    if not same:
         base = render_edition(signoff)
     else:
-        earlier = archive.signoffs(batch_id)
-        previous = earlier[number - 2]
+        previous = same[-1]
         base = archive.read_object(previous.signed_report_sha256)
-        box = slot_box(number) if '"dispositions_sha256"' in earlier[0].record_json else None  # edition 1 has boxes
+        box = slot_box(len(same) + 1) if '"dispositions_sha256"' in same[0].record_json else None  # it has boxes
         if box is not None:
             since = tuple(d for d in signoff.dispositions if d.decided_at_utc > previous.signed_at_utc)
             appearance = slot_appearance(signoff, since)

@@ -13,6 +13,7 @@ from typing import Any
 from . import chain, signing
 from .chain import EventKind
 from .checks import Context, details_of
+from .editions import BatchState, batch_state_at, edition_at, edition_events
 from .records import CLOCK_ALLOWANCE_S, parse_utc, time_problem
 from .register import ACTIONS
 from .schema import RegisterRow
@@ -273,11 +274,17 @@ def _act_event(ctx: Context, kind: EventKind, batch_id: str, key: str, number: i
 
 
 def check_signoffs(ctx: Context) -> None:
-    """Each sign-off: signed by an enrolled person, at a real time, over this batch as it stands."""
+    """Each sign-off: signed by an enrolled person, at a real time, over this batch as it stood.
+
+    A sign-off covers the report edition current when it was made; after parts were re-inspected
+    (:mod:`.editions`) it is checked against the batch as the trail had it then, and a warning says
+    that a newer edition exists.
+    """
     if "signatures" not in ctx.usable:
         return
     for batch in ctx.batches():
         bid = batch.batch_id
+        editions = len(edition_events(ctx.events, bid))
         for s in ctx.archive.signoffs(bid):
             who = f"sign-off #{s.signoff_no} of batch {bid!r} by {s.signer_name} ({s.meaning}, {s.signed_at_utc})"
             act = _act_event(ctx, EventKind.SIGNED, bid, "signoff_no", s.signoff_no)
@@ -286,23 +293,46 @@ def check_signoffs(ctx: Context) -> None:
             record = _check_record(ctx, who, s, public, shown)
             if record is None:
                 continue
-            recorded_at = act.recorded_at if act else None
-            problem = time_problem(s.signed_at_utc, not_before=batch.finished_at, not_after=recorded_at)
-            if problem:
-                ctx.fail(f"{who}: signed_at_utc {problem}")
-            if record.get("report_sha256") != batch.report_sha256:
-                ctx.fail(f"{who}: the batch report in the index is not the one that was signed")
+            signed = edition_at(ctx.events, bid, act.seq) if act else editions
+            if act is not None and 0 < signed < editions:
+                ctx.warn(
+                    f"{who}: it signed report edition {signed}; the batch has a newer edition {editions} "
+                    "(parts re-inspected since), which this sign-off does not cover"
+                )
+                _check_signed_content(ctx, who, record, s, act, _state_then(ctx, bid, act.seq))
+            else:
+                _check_signed_content(ctx, who, record, s, act, None)
             _check_covered_dispositions(ctx, who, bid, record)
-            if "parts" in ctx.usable and "regions" in ctx.usable:
-                if record.get("batch_content_sha256") != ctx.archive.batch_content_sha256(bid):
-                    ctx.fail(f"{who}: the batch's index content (batch, parts, regions) is not what was signed")
-                results = ctx.archive.results_sha256(bid)
-                signed = record.get("results_sha256") or {}
-                if signed != results:
-                    changed = sorted(k for k in set(results) | set(signed) if results.get(k) != signed.get(k))
-                    ctx.fail(
-                        f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})"
-                    )
+
+
+def _state_then(ctx: Context, batch_id: str, seq: int) -> BatchState:
+    """The batch as the trail had it before event ``seq``, its regions in the order the index sorts them."""
+    rows = ctx.archive.index.select(
+        "regions", {"batch_id": batch_id}, order_by=("part_key", "region_name"), columns=("part_key", "region_name")
+    )
+    return batch_state_at(ctx.events, batch_id, seq, [(r["part_key"], r["region_name"]) for r in rows])
+
+
+def _check_signed_content(ctx: Context, who: str, record: dict, s, act, then: BatchState | None) -> None:
+    """The report, batch content and results a sign-off names, against the batch now (or ``then``, as it was)."""
+    bid = s.batch_id
+    batch = then.batch if then is not None else chain.encode_row("batches", ctx.archive.batch(bid).__dict__)
+    recorded_at = act.recorded_at if act else None
+    problem = time_problem(s.signed_at_utc, not_before=(batch or {}).get("finished_at"), not_after=recorded_at)
+    if problem:
+        ctx.fail(f"{who}: signed_at_utc {problem}")
+    if record.get("report_sha256") != (batch or {}).get("report_sha256"):
+        ctx.fail(f"{who}: the batch report in the index is not the one that was signed")
+    if "parts" not in ctx.usable or "regions" not in ctx.usable:
+        return
+    content = then.content_sha256 if then is not None else ctx.archive.batch_content_sha256(bid)
+    if record.get("batch_content_sha256") != content:
+        ctx.fail(f"{who}: the batch's index content (batch, parts, regions) is not what was signed")
+    results = then.results_sha256 if then is not None else ctx.archive.results_sha256(bid)
+    signed = record.get("results_sha256") or {}
+    if signed != results:
+        changed = sorted(k for k in set(results) | set(signed) if results.get(k) != signed.get(k))
+        ctx.fail(f"{who}: the results in the index are not the ones that were signed (parts: {', '.join(changed[:5])})")
 
 
 def _check_covered_dispositions(ctx: Context, who: str, batch_id: str, record: dict) -> None:
@@ -344,7 +374,23 @@ def check_dispositions(ctx: Context) -> None:
                 continue
             part = parts.get(d.part_key)
             if part is None or record.get("result_sha256") != part.result_sha256:
-                ctx.fail(f"{who}: the part's result in the index is not the one the disposition was made for")
+                if part is not None and _made_before_reinspection(ctx, d, act, record):
+                    ctx.warn(f"{who}: it was made for the part's earlier result; the part was re-inspected since")
+                else:
+                    ctx.fail(f"{who}: the part's result in the index is not the one the disposition was made for")
             problem = time_problem(d.decided_at_utc, not_before=None, not_after=act.recorded_at if act else None)
             if problem:
                 ctx.fail(f"{who}: decided_at_utc {problem}")
+
+
+def _made_before_reinspection(ctx: Context, d, act, record: dict) -> bool:
+    """Whether a disposition names the part's result as the trail had it at the act, re-inspected after it."""
+    if act is None:
+        return False
+    then = batch_state_at(ctx.events, d.batch_id, act.seq).results_sha256.get(d.part_key)
+    later = any(
+        e.kind == EventKind.PART_REINSPECTED.value and e.batch_id == d.batch_id and e.part_key == d.part_key
+        for e in ctx.events
+        if e.seq > act.seq
+    )
+    return later and then == record.get("result_sha256")

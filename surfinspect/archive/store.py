@@ -28,6 +28,7 @@ from ..fsutil import sha256_bytes
 from . import chain, signing
 from .backend import IndexBackend, IndexBusy, IndexDamaged
 from .chain import GENESIS_SHA256, EventKind
+from .editions import EditionsMixin
 from .location import check_folder, open_index, parse_location
 from .objects import ObjectStore
 from .records import (
@@ -75,7 +76,7 @@ class BatchPlan:
         self.batch, self.resumed, self.pending = batch, resumed, pending  # pending: part keys, in batch order
 
 
-class Archive:
+class Archive(EditionsMixin):
     """An archive folder; open with ``create=True`` to make it when missing.
 
     Raises
@@ -98,8 +99,7 @@ class Archive:
         backend = backend or open_index(where)
         self.index = backend
         try:
-            # an existing index is checked before anything is written into it or beside it; one whose tables
-            # another process has made but not yet filled is made here too (the write lock orders the two)
+            # an existing index is checked before anything is written; one another process is making, made too
             existed = self.index.exists()
             if create and (not existed or self._made_but_empty()):
                 self._create()

@@ -7,12 +7,21 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from ..errors import InputError
-from ..fsutil import check_output_file  # output files are checked in fsutil, beside the writes
 
 if TYPE_CHECKING:
     from ..recipe import Recipe
 
 __all__ = ["check_output_file", "check_number", "load_recipe", "batch_owner"]
+
+
+def check_output_file(*args, **kwargs):
+    """:func:`surfinspect.fsutil.check_output_file` (output files are checked in fsutil, beside the writes).
+
+    Imported when called: ``check`` writes nothing and need not load fsutil's hashing and temporary files.
+    """
+    from ..fsutil import check_output_file as check
+
+    return check(*args, **kwargs)
 
 
 def load_recipe(path: str | Path, console) -> Recipe:

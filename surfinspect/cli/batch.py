@@ -32,6 +32,7 @@ backend = module("surfinspect.archive.backend")
 sqlite3 = module("sqlite3")
 location = module("surfinspect.archive.location")
 batch = module("surfinspect.station.batch")
+retry = module("surfinspect.station.retry")
 
 HELP = "inspect every image in a folder (in parallel) into the archive, with report and CSV; resumable"
 
@@ -69,6 +70,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--overwrite",
         action="store_true",
         help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
+    )
+    parser.add_argument(
+        "--retry-errors",
+        action="store_true",
+        help="re-inspect only the parts of this finished batch recorded as not-inspected (their images fixed on "
+        "disk) and write a new report edition; earlier sign-offs stay valid for the edition they signed",
     )
     parser.add_argument(
         "--station-key",
@@ -173,7 +180,7 @@ def run(args: argparse.Namespace, console: Console) -> int:
         if folder is not None:
             folder.claim()
         with on_stop_signals():
-            outcome = batch.run_batch(config, on_part=progress)
+            outcome = retry.retry_errors(config) if args.retry_errors else batch.run_batch(config, on_part=progress)
     except _Stopped as stop:
         progress.close()  # the bar's last line first, then the message
         console.error(
@@ -196,6 +203,8 @@ def run(args: argparse.Namespace, console: Console) -> int:
     finally:
         progress.close()
         written = folder.finish() if folder is not None else []
+    if args.retry_errors:
+        return _say_retried(outcome, args, console, written)
     counts = outcome.counts
     if outcome.was_finished:
         console.info(f"batch {outcome.batch_id} was already finished: nothing inspected")
@@ -214,6 +223,36 @@ def run(args: argparse.Namespace, console: Console) -> int:
     elif written:
         console.info(f"report, CSV, results and overlays: wrote {len(written)} file(s) to {args.out}")
     else:
+        _say_where_the_report_is(args, console)
+    return outcome.exit_code
+
+
+def _say_retried(outcome, args: argparse.Namespace, console: Console, written: list) -> int:
+    """What ``--retry-errors`` did, part by part, and where the new edition is."""
+    word = archive.ERROR_VERDICT
+    if outcome.nothing_to_retry:
+        console.info(f"batch {outcome.batch_id}: nothing to retry: no part is recorded as {word}")
+        return outcome.exit_code
+    verdicts = {p.part_key: p.verdict for p in outcome.parts}
+    for key in outcome.retried:
+        console.info(f"{key}: re-inspected: {verdicts[key]} (was {word})")
+    for key, message in outcome.still:
+        console.warn(f"{key}: still {word}: {_reason(key, message)}")
+    if outcome.interruption:
+        console.error(f"batch {outcome.batch_id}: retry not recorded: {outcome.interruption}; run the command again")
+        return outcome.exit_code
+    counts = archive.verdict_counts(outcome.parts)
+    summary = ", ".join(f"{counts[v]} {v}" for v in ("accept", "reject", "review", word) if counts[v])
+    if outcome.retried:
+        console.info(
+            f"batch {outcome.batch_id}: report edition {outcome.edition} written ({len(outcome.parts)} parts: "
+            f"{summary}); sign-offs of earlier editions stay valid for the edition they signed"
+        )
+    else:
+        console.info(f"batch {outcome.batch_id}: nothing recorded; the report stays edition {outcome.edition}")
+    if written:
+        console.info(f"report, CSV, results and overlays: wrote {len(written)} file(s) to {args.out}")
+    elif outcome.retried:
         _say_where_the_report_is(args, console)
     return outcome.exit_code
 

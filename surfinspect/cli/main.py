@@ -20,8 +20,7 @@ import sys
 from typing import Sequence
 
 from .._version import __version__
-from ..archive.backend import IndexBusy, IndexDamaged
-from ..errors import EXIT_INPUT_ERROR, InputError
+from ..errors import EXIT_INPUT_ERROR, IndexBusy, IndexDamaged, InputError
 from .console import Console
 
 #: Environment variable: when set, an internal error shows its traceback instead of one line.
@@ -59,7 +58,10 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser(only: str | None = None) -> argparse.ArgumentParser:
-    """The parser of every command; with ``only``, the flags of that command alone ("": none; faster)."""
+    """The parser of every command; with ``only``, that command alone with its flags ("": every command, no flags).
+
+    The top-level usage then lists the one command; its module is the only command module imported.
+    """
     parser = _Parser(prog="surfinspect", description="Measure and judge the surface lay of panels.")
     parser.add_argument("--version", action="version", version=f"surfinspect {__version__}")
     parser.add_argument("-q", "--quiet", action="store_true", help="print nothing but errors")
@@ -69,7 +71,8 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
         "-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print nothing but errors"
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    for name in COMMANDS:
+    # a chosen command needs its own module only; the list of commands (--help, --version) needs every HELP
+    for name in (only,) if only else COMMANDS:
         module_name = name.replace("-", "_")  # owner-certificate lives in owner_certificate.py
         try:
             module = importlib.import_module(f".{module_name}", __package__)

@@ -9,6 +9,7 @@ their hash, without a suffix): ``report.pdf``, ``report.signed-N.pdf``,
 from __future__ import annotations
 
 import argparse
+import json
 
 from .._lazy import module
 from ..errors import InputError
@@ -18,6 +19,7 @@ from .console import Console
 
 archive = module("surfinspect.archive.store")
 location = module("surfinspect.archive.location")
+editions = module("surfinspect.archive.editions")
 batch = module("surfinspect.station.batch")
 
 HELP = "list the batches in an archive with their verdict counts and sign-offs; copy a batch's files out"
@@ -44,12 +46,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def _signoff_state(signoffs: list[archive.SignoffRow]) -> str:
+def _signoff_state(signoffs: list[archive.SignoffRow], report_sha256: str | None) -> str:
     if not signoffs:
         return "not signed"
     last = signoffs[-1]
     more = f" (+{len(signoffs) - 1} earlier)" if len(signoffs) > 1 else ""
-    return f"{last.meaning} by {last.signer_name} {last.signed_at_utc}{more}"
+    # after batch --retry-errors the batch has a newer report edition than the one signed
+    older = json.loads(last.record_json).get("report_sha256") != report_sha256
+    return f"{last.meaning} by {last.signer_name} {last.signed_at_utc}{more}" + (
+        "; an earlier edition: the newest is not signed" if older else ""
+    )
 
 
 def run(args: argparse.Namespace, console: Console) -> int:
@@ -73,6 +79,14 @@ def run(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
+def _signed_edition(events, s) -> int | str:
+    """The report edition a sign-off signed: the one current at its audit event."""
+    act = next(
+        (e for e in events if e.kind == "signed" and json.loads(e.details).get("signoff_no") == s.signoff_no), None
+    )
+    return editions.edition_at(events, s.batch_id, act.seq) if act else "?"
+
+
 def _show_batches(arc: archive.Archive, console: Console) -> None:
     rows = []
     for b in arc.batches():
@@ -88,7 +102,7 @@ def _show_batches(arc: archive.Archive, console: Console) -> None:
                 counts["review"],
                 counts[archive.ERROR_VERDICT],
                 "finished" if b.is_finished else f"unfinished ({counts['pending']} to do)",
-                _signoff_state(arc.signoffs(b.batch_id)),
+                _signoff_state(arc.signoffs(b.batch_id), b.report_sha256),
             ]
         )
     if not rows:
@@ -123,10 +137,20 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
         f"{'finished ' + b.finished_at if b.is_finished else 'unfinished'}"
     )
     console.info(", ".join(f"{n} {v}" for v, n in counts.items() if n) or "no parts")
+    events = arc.batch_events(batch_id)
     if b.report_sha256:
         console.info(
             f"report {arc.object_path(b.report_sha256).relative_to(arc.root)} "
             "(a PDF stored under its hash; --out DIR copies it out as report.pdf)"
+        )
+    retried = [e for e in events if e.kind == "part re-inspected"]
+    if retried:
+        console.info(
+            f"report edition {len(editions.edition_events(events, batch_id))}; parts re-inspected after the first "
+            "edition: "
+            + ", ".join(
+                f"{e.part_key} (edition {json.loads(e.details).get('edition')}, {e.recorded_at})" for e in retried
+            )
         )
     rows = []
     for p in parts:
@@ -140,7 +164,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
     signoffs = arc.signoffs(batch_id)
     if signoffs:
         console.table(
-            ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "comment"],
+            ["#", "signer", "meaning", "signed (UTC)", "key fingerprint", "signed report", "of edition", "comment"],
             [
                 [
                     s.signoff_no,
@@ -149,6 +173,7 @@ def _show_batch(arc: archive.Archive, batch_id: str, console: Console) -> None:
                     s.signed_at_utc,
                     s.key_fingerprint[:16] + "…",
                     str(arc.object_path(s.signed_report_sha256).relative_to(arc.root)),
+                    _signed_edition(events, s),
                     s.comment,
                 ]
                 for s in signoffs

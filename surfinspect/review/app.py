@@ -186,6 +186,7 @@ class _Views:
             "charts": charts,
             "chart_notes": notes,
             "signoffs": arc.signoffs(row.batch_id),
+            "newest_unsigned": pages.BatchSummary(row, {}, arc.signoffs(row.batch_id)).newest_unsigned,
             "keys": [] if self.config.read_only else actions.folder_keys(arc, self.key_dir),
             "dispositions": [d for c in cards for d in c.dispositions],
         }

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from ..archive import store as archive
+from ..archive.editions import signs_newest_edition
 from ..archive.records import ERROR_VERDICT, OLD_ERROR_VERDICT
 from ..errors import InputError
 from ..formatting import format_angle
@@ -49,6 +50,12 @@ class BatchSummary:
     @property
     def last_signoff(self) -> archive.SignoffRow | None:
         return self.signoffs[-1] if self.signoffs else None
+
+    @property
+    def newest_unsigned(self) -> bool:
+        """Signed off, but parts were re-inspected since into a newer report edition nobody signed."""
+        s = self.last_signoff
+        return s is not None and not signs_newest_edition(self.row, s)
 
 
 def batch_summaries(arc: archive.Archive, q: str = "", date_from: str = "", date_to: str = "") -> list[BatchSummary]:

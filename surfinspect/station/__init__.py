@@ -23,6 +23,7 @@ __getattr__, __dir__, __all__ = attach(
             "render_batch_report",
             "export_batch",
         ),
+        "retry": ("RetryOutcome", "retry_errors"),
         "demo": ("DEMO_PARTS", "make_demo_parts", "plate_on_fixture"),
         "watch": ("WatchConfig", "JudgedPart", "StationStatus", "WatchOutcome", "Station"),
     },

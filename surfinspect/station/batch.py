@@ -491,26 +491,26 @@ def _finish(
     return batch, None
 
 
-def _render_report_file(archive_dir: str, batch_id: str, generated_at: str, out: str) -> None:
+def _render_report_file(archive_dir: str, batch_id: str, generated_at: str, out: str, replaced=None) -> None:
     with open_archive(archive_dir) as arc:
-        write_bytes_atomic(out, render_batch_report(arc, batch_id, generated_at=generated_at))
+        write_bytes_atomic(out, render_batch_report(arc, batch_id, generated_at=generated_at, replaced=replaced))
 
 
 def _render_report_in_own_process(
-    arc: archive_mod.Archive, batch_id: str, generated_at: str
+    arc: archive_mod.Archive, batch_id: str, generated_at: str, replaced: dict | None = None
 ) -> tuple[bytes | None, str | None]:
     """The batch report's bytes, rendered in a process of its own; (None, why) when that process fails.
 
     Every part's picture and page is held while a report is made; in a
     process of its own that memory is given back when it ends, so the batch
     process stays the same size for 30 parts or 3000. The wait is bounded
-    like a part's (:data:`PART_TIMEOUT_ENV`).
+    like a part's (:data:`PART_TIMEOUT_ENV`). ``replaced``: see :func:`.batch_outputs.render_batch_report`.
     """
     timeout_s = env_limit(PART_TIMEOUT_ENV, 600.0, lo=1.0, hi=1e6)
     with tempfile.TemporaryDirectory(prefix="surfinspect-report-") as tmp:
         out = Path(tmp) / "report.pdf"
         with ProcessPoolExecutor(max_workers=1, mp_context=_pool_context()) as pool:
-            future = pool.submit(_render_report_file, arc.opened_as, batch_id, generated_at, str(out))
+            future = pool.submit(_render_report_file, arc.opened_as, batch_id, generated_at, str(out), replaced)
             try:
                 future.result(timeout=timeout_s)
             except BrokenProcessPool:

@@ -7,18 +7,20 @@ import io
 import os
 from datetime import datetime
 from pathlib import Path
+from typing import Mapping
 
 import numpy as np
 
 from .. import results
 from ..archive import store as archive_mod
+from ..archive.chain import EventKind
 from ..errors import InputError
 from ..fsutil import write_bytes_atomic
 from ..measure.imaging import read_image
 from ..results import SignOff
 from .runner import output_stems
 
-__all__ = ["CSV_COLUMNS", "regions_csv", "render_batch_report", "export_batch"]
+__all__ = ["CSV_COLUMNS", "regions_csv", "render_batch_report", "report_edition", "export_batch"]
 
 CSV_COLUMNS = (
     "batch_id",
@@ -40,9 +42,22 @@ CSV_COLUMNS = (
 )
 
 
-def _stored_parts(arc: archive_mod.Archive, batch_id: str):
-    """(row, stored result dict) for every recorded part, in batch order, read one at a time."""
-    return ((p, arc.read_result(p)) for p in arc.parts(batch_id) if p.result_sha256)
+def _stored_parts(arc: archive_mod.Archive, batch_id: str, replaced: Mapping[str, archive_mod.PartRow] | None = None):
+    """(row, stored result dict) for every recorded part, in batch order, read one at a time.
+
+    ``replaced``: rows of re-inspected parts (their objects stored, their rows not yet) that take the place of the
+    index's rows, for the edition about to be recorded.
+    """
+    rows = (replaced.get(p.part_key, p) for p in arc.parts(batch_id)) if replaced else arc.parts(batch_id)
+    return ((p, arc.read_result(p)) for p in rows if p.result_sha256)
+
+
+def report_edition(arc: archive_mod.Archive, batch_id: str, *, new: bool = False) -> int:
+    """The batch's current report edition (1 before and at the first close); with ``new``, the next one's number."""
+    written = arc.index.select(
+        "events", {"batch_id": batch_id, "kind": EventKind.REPORT_WRITTEN.value}, columns=("seq",)
+    )
+    return max(1, len(written) + (1 if new else 0))
 
 
 def _csv_value(v) -> str:
@@ -53,7 +68,9 @@ def _csv_value(v) -> str:
     return str(v)
 
 
-def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
+def regions_csv(
+    arc: archive_mod.Archive, batch_id: str, *, replaced: Mapping[str, archive_mod.PartRow] | None = None
+) -> bytes:
     """One CSV row per region of every part (one row for a part with an error or no region).
 
     Figures are written as the part's JSON holds them (same rounding);
@@ -62,7 +79,7 @@ def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow(CSV_COLUMNS)
-    for part, result in _stored_parts(arc, batch_id):
+    for part, result in _stored_parts(arc, batch_id, replaced):
         head = [batch_id, part.part_key, part.image_sha256 or "", part.verdict]
         regions = result.get("regions") or []
         if not regions:
@@ -90,7 +107,12 @@ def regions_csv(arc: archive_mod.Archive, batch_id: str) -> bytes:
 
 
 def render_batch_report(
-    arc: archive_mod.Archive, batch_id: str, *, signoff: SignOff | None = None, generated_at: str | None = None
+    arc: archive_mod.Archive,
+    batch_id: str,
+    *,
+    signoff: SignOff | None = None,
+    generated_at: str | None = None,
+    replaced: Mapping[str, archive_mod.PartRow] | None = None,
 ) -> bytes:
     """The batch PDF report from what the archive holds (signed edition when ``signoff`` is given).
 
@@ -98,7 +120,9 @@ def render_batch_report(
     inspected), as 8-bit grey to keep the memory of a large batch down. Parts
     whose image could not be read are counted on the summary and listed with their reasons.
     The signed edition is rendered with the unsigned report's own generation
-    time, so that the two differ only in the sign-off block.
+    time, so that the two differ only in the sign-off block. From the second
+    report edition on (parts re-inspected, ``replaced`` giving their new rows
+    before they are recorded) every page names the edition.
 
     Raises
     ------
@@ -108,7 +132,7 @@ def render_batch_report(
     from ..report.pdf import NotInspected, render_report
 
     batch = arc.batch(batch_id)
-    stored = list(_stored_parts(arc, batch_id))
+    stored = list(_stored_parts(arc, batch_id, replaced))
     judged = [(p, r) for p, r in stored if p.verdict != archive_mod.ERROR_VERDICT]
     failed = [
         (p.part_key, p.image_sha256 or "", p.error or "") for p, _ in stored if p.verdict == archive_mod.ERROR_VERDICT
@@ -118,10 +142,11 @@ def render_batch_report(
             f"batch {batch_id!r}: none of its {len(stored)} image(s) could be inspected; no report is made"
         )
     stamp = generated_at or batch.report_generated_at
+    edition = report_edition(arc, batch_id, new=bool(replaced))
     return render_report(
         [results.part_from_dict(r) for _, r in judged],
         [_picture_uint8(arc.object_path(p.image_sha256)) for p, _ in judged],
-        report_id=batch_id,
+        report_id=batch_id if edition == 1 else f"{batch_id}, edition {edition}",
         operator=batch.operator,
         station=batch.station,
         generated_at=None if stamp is None else datetime.fromisoformat(stamp.replace("Z", "+00:00")),

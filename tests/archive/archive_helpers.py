@@ -8,6 +8,7 @@ import sqlite3
 from dataclasses import dataclass
 
 import numpy as np
+import pytest
 
 from surfinspect import results
 from surfinspect.archive import signatures, signing
@@ -215,3 +216,17 @@ def query(root, statement, params=()):
     site = root if isinstance(root, Site) else Site(root)
     with site.connect() as db:
         return [tuple(r) for r in db.execute(site.statement(statement), params).fetchall()]
+
+
+#: Archive tests that run against both index backends; PostgreSQL's skip, saying why, without a server.
+BACKENDS = ["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)]
+
+
+def site_for(request, folder, backend) -> Site:
+    """A new, empty archive location of ``backend`` (a database dropped after the test for PostgreSQL)."""
+    if backend == "sqlite":
+        return Site(folder)
+    server = request.getfixturevalue("pg_server")
+    name = server.create_database()
+    request.addfinalizer(lambda: server.drop_database(name))
+    return Site(folder, server, name)

@@ -1,11 +1,13 @@
 """Archives of the first format stay checkable, read-only, by that format's rules.
 
-``data/format-1`` was written by the first release's archive code (a batch of two parts and
-one sign-off meaning "approved"); the test copies it before changing anything.
+``data/format-1`` holds what the first release's archive code wrote (a batch of two parts and
+one sign-off meaning "approved"), rebuilt deterministically by ``data/make_format_1.py``; the tests
+copy it before changing anything.
 """
 
 from __future__ import annotations
 
+import json
 import shutil
 import sqlite3
 from pathlib import Path
@@ -76,3 +78,26 @@ def test_nothing_new_is_written_into_a_first_format_archive(old):
     ):
         store.Archive(old)
     assert main(["-q", "signers", "list", "--archive", str(old)]) == 2
+
+
+def test_the_fixture_is_what_its_generator_writes_and_holds_no_absolute_path(tmp_path):
+    # data/make_format_1.py rebuilds data/format-1 from fixed values; compared row by row (the SQLite file's
+    # bytes may differ between SQLite versions) and object by object
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("make_format_1", DATA.parent / "make_format_1.py")
+    maker = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(maker)
+    maker.build(tmp_path / "rebuilt")
+
+    def content(root):
+        db = sqlite3.connect(root / "index.sqlite")
+        tables = [r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
+        rows = {t: sorted(db.execute(f"SELECT * FROM {t}").fetchall(), key=repr) for t in tables}
+        db.close()
+        return rows, [(p, b) for p, b in _tree(root) if p.startswith("objects")]
+
+    assert content(tmp_path / "rebuilt") == content(DATA)
+    stored = [json.loads(b) for p, b in _tree(DATA) if b.startswith(b"{")]
+    paths = [doc["image"]["path"] for doc in stored if "image" in doc]
+    assert len(paths) == 2 and all(not p.startswith("/") for p in paths), paths

@@ -8,7 +8,7 @@ import shutil
 import sqlite3
 
 import pytest
-from archive_helpers import BATCH, PARTS, Site, full_archive, query, render, sql
+from archive_helpers import BACKENDS, BATCH, PARTS, Site, full_archive, query, render, site_for, sql
 
 from surfinspect.archive import chain, signatures, signing
 from surfinspect.archive import store as arc
@@ -16,18 +16,8 @@ from surfinspect.archive import verify as ver
 from surfinspect.archive.schema import CHAINED_TABLES, TABLE_BY_NAME
 from surfinspect.cli import main
 
-#: Every tamper runs against both index backends; PostgreSQL's tests skip, saying why, without a server.
-BACKENDS = ["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)]
-
-
-def _site(request, folder, backend) -> Site:
-    """A new, empty archive location of ``backend`` (a database dropped after the test for PostgreSQL)."""
-    if backend == "sqlite":
-        return Site(folder)
-    server = request.getfixturevalue("pg_server")
-    name = server.create_database()
-    request.addfinalizer(lambda: server.drop_database(name))
-    return Site(folder, server, name)
+# Every tamper runs against both index backends (BACKENDS); PostgreSQL's tests skip, saying why, without a server.
+_site = site_for
 
 
 @pytest.fixture(scope="module", params=BACKENDS)

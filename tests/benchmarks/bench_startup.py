@@ -8,6 +8,13 @@ Prints the median wall time of ``python -c pass``, then of ``surfinspect --versi
 ``surfinspect check recipes/*.yaml`` and ``surfinspect --help`` as ratios to it (target: at most
 4x each), and the wall time of ``surfinspect inspect`` of one demo part into a new folder
 (target: at most 1.5 s, JSON, overlay and the PDF report included).
+
+Every command runs with Python's bytecode cache, as an installed package does (pip compiles the
+modules at install time): ``PYTHONDONTWRITEBYTECODE`` is removed from the commands' environment, so
+the warm-up run writes ``__pycache__`` and the timed runs read it. ``--no-bytecode-cache`` measures a
+checkout without it instead: it removes the package's ``__pycache__`` folders and sets
+``PYTHONDONTWRITEBYTECODE=1``, so every run compiles every surfinspect module it imports (Python
+still reads a cache that exists, which is why the folders are removed).
 """
 
 from __future__ import annotations
@@ -15,6 +22,7 @@ from __future__ import annotations
 import argparse
 import os
 import resource
+import shutil
 import statistics
 import subprocess
 import sys
@@ -26,16 +34,25 @@ ROOT = Path(__file__).resolve().parents[2]
 CLI = [sys.executable, "-m", "surfinspect"]
 
 
+ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+
+
 def timed(argv: list[str]) -> float:
     start = time.perf_counter()
-    subprocess.run(argv, cwd=ROOT, capture_output=True, check=False)
+    subprocess.run(argv, cwd=ROOT, capture_output=True, check=False, env=ENV)
     return time.perf_counter() - start
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=15)
+    ap.add_argument("--no-bytecode-cache", action="store_true", help="compile the package's modules on every run")
     args = ap.parse_args()
+    if args.no_bytecode_cache:
+        ENV["PYTHONDONTWRITEBYTECODE"] = "1"
+        for cache in (ROOT / "surfinspect").rglob("__pycache__"):
+            shutil.rmtree(cache)
+    print(f"bytecode cache: {'off' if ENV.get('PYTHONDONTWRITEBYTECODE') else 'on'} (PYTHONDONTWRITEBYTECODE)")
     recipes = sorted(str(p) for p in (ROOT / "recipes").glob("*.yaml"))
     commands = {
         "python -c pass": [sys.executable, "-c", "pass"],
@@ -64,7 +81,9 @@ def main() -> None:
         with tempfile.TemporaryDirectory() as tmp:
             before = resource.getrusage(resource.RUSAGE_CHILDREN)
             start = time.perf_counter()
-            subprocess.run([*CLI, "inspect", str(recipe), str(part), "--out", f"{tmp}/out"], capture_output=True)
+            subprocess.run(
+                [*CLI, "inspect", str(recipe), str(part), "--out", f"{tmp}/out"], capture_output=True, env=ENV
+            )
             times.append(time.perf_counter() - start)
             after = resource.getrusage(resource.RUSAGE_CHILDREN)
             cpu.append(after.ru_utime - before.ru_utime + after.ru_stime - before.ru_stime)

@@ -47,3 +47,24 @@ def test_help_texts_written_out_match_the_archives_words():
 
     assert f"({', '.join(SIGNOFF_MEANINGS[:2])} or {SIGNOFF_MEANINGS[2]})" in sign.HELP
     assert f"({', '.join(signatures.DECISIONS)})" in disposition.HELP
+
+
+_LOADED_OURS = """
+import sys
+from surfinspect.cli.main import main
+try:
+    main({argv!r})
+except SystemExit:
+    pass
+print("loaded:", *sorted(m for m in sys.modules if m.startswith("surfinspect.")))
+"""
+
+
+def test_check_loads_its_own_command_module_and_no_writer():
+    # `check` writes nothing: no other command's module, no fsutil (hashing, temporary files), no archive room
+    code = _LOADED_OURS.format(argv=["check", "recipes/lw-220-wall-panel.yaml"])
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    loaded = set(done.stdout.strip().splitlines()[-1].split()[1:])
+    commands = {f"surfinspect.cli.{c.replace('-', '_')}" for c in COMMANDS}
+    assert loaded & commands == {"surfinspect.cli.check"}
+    assert not {m for m in loaded if m == "surfinspect.fsutil" or m.startswith("surfinspect.archive")}

@@ -6,21 +6,14 @@ import json
 
 import cv2
 import pytest
+from recipe_helpers import SMALL_PANEL_RECIPE
 
 from surfinspect.archive import store as arc
 from surfinspect.archive.verify import verify_archive
 from surfinspect.cli import main
 from surfinspect.measure import synth
 
-RECIPE = """\
-recipe: lw-220-wall-panel
-revision: 3
-regions:
-  - name: face
-    rect: [8, 8, 80, 80]
-    lay_deg: 90
-    tolerance_deg: 3.0
-"""
+RECIPE = SMALL_PANEL_RECIPE
 
 
 @pytest.fixture
