@@ -27,7 +27,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import fft, signal
+from scipy import fft
 
 from .axial import wrap_deviation
 from .spectrum import (
@@ -177,6 +177,8 @@ def _peaks(power: np.ndarray, resolution: float, count: int) -> list[int]:
     peak (prominence at least half the height): a shoulder or ripple on another peak's flank is
     not a family of its own.
     """
+    from scipy import signal  # here, not at import: scipy.signal costs about a second to load
+
     n = power.size
     tripled = np.concatenate([power, power, power])
     where, props = signal.find_peaks(tripled, prominence=0.0, plateau_size=(1, None))

@@ -325,7 +325,7 @@ def direction_test(cells: CellSums, use: np.ndarray) -> tuple[float, int]:
     .. [1] Hotelling, H. (1931). The generalization of Student's ratio. Annals of Mathematical
        Statistics 2(3), 360-378. :doi:`10.1214/aoms/1177732979`
     """
-    from scipy import stats
+    from scipy.special import fdtrc  # the F distribution's survival, what scipy.stats.f.sf calls (stats: 0.4 s)
 
     n = int(use.sum())
     if n < 3:
@@ -340,7 +340,7 @@ def direction_test(cells: CellSums, use: np.ndarray) -> tuple[float, int]:
         return (0.0 if np.any(mean != 0) else 1.0), n
     if not np.isfinite(t2):
         return 0.0, n
-    return float(stats.f.sf((n - 2) / (2.0 * (n - 1)) * t2, 2, n - 2)), n
+    return float(fdtrc(2, n - 2, (n - 2) / (2.0 * (n - 1)) * t2)), n
 
 
 def _texture(region: Region, m: RegionMeasurement, c: Cells, ratio: float, coherence: float, extra: dict):

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from scipy import fft, optimize
+from scipy import fft
 
 __all__ = [
     "AngularSpectrum",
@@ -341,6 +341,8 @@ def refine_line(a, w, mean, f0, peak_power: float, noise_sigma: float, mask):
     of a sinusoid's orientation at the measured amplitude and noise, times
     :data:`HANN_VARIANCE_FACTOR` (None without a noise level).
     """
+    from scipy import optimize  # here, not at import: only crossed gratings are refined this way
+
     rows, cols = a.shape
     wa = w * (a - mean)
     xs = np.arange(cols, dtype=np.float64)

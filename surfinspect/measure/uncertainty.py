@@ -81,12 +81,12 @@ def cell_uncertainty(lays: np.ndarray, weights: np.ndarray, keep: np.ndarray) ->
     """
     if keep.sum() < 3:
         return None
-    from scipy import stats
+    from scipy.special import stdtrit  # Student's t quantile, what scipy.stats.t.ppf calls (stats costs 0.4 s)
 
     def expanded(lays_, weights_):
         # Student's t for the effective number of samples (Kish) instead of k = 2 for few blocks
         n_eff = weights_.sum() ** 2 / max(float(np.sum(weights_**2)), 1e-300)
-        k = max(COVERAGE_K, float(stats.t.ppf(0.975, max(n_eff - 1.0, 1.0))))
+        k = max(COVERAGE_K, float(stdtrit(max(n_eff - 1.0, 1.0), 0.975)))
         return k * standard_error(lays_, weights_)
 
     errors = [expanded(lays[keep], weights[keep])]

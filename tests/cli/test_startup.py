@@ -68,3 +68,15 @@ def test_check_loads_its_own_command_module_and_no_writer():
     commands = {f"surfinspect.cli.{c.replace('-', '_')}" for c in COMMANDS}
     assert loaded & commands == {"surfinspect.cli.check"}
     assert not {m for m in loaded if m == "surfinspect.fsutil" or m.startswith("surfinspect.archive")}
+
+
+def test_inspecting_a_directional_part_loads_neither_scipy_stats_nor_scipy_signal(tmp_path):
+    # scipy.stats and scipy.signal cost about 0.4 s and 1 s to load (python -X importtime): the engine takes
+    # the t and F distributions from scipy.special, and only crossed regions load scipy.signal
+    code = _PROBE.format(
+        argv=["-q", "inspect", "recipes/lw-220-wall-panel.yaml", "demo_parts/lw-220-0001.png", "--out", str(tmp_path)],
+        heavy=("scipy.stats", "scipy.signal", "scipy.optimize"),
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout.strip().splitlines()[-1].split()[1:] == []
+    assert (tmp_path / "lw-220-0001.json").is_file()  # it did inspect
