@@ -28,12 +28,15 @@ def test_four_stations_write_one_archive_at_once(tmp_path, pg_server, pg_databas
         folder.mkdir()
         for p in parts:
             shutil.copy(p, folder / p.name)
-        argv = [sys.executable, "-m", "surfinspect.cli.main", "-q", "batch", str(RECIPE), str(folder)]
+        argv = [sys.executable, "-m", "surfinspect", "-q", "batch", str(RECIPE), str(folder)]
         argv += ["--archive", url, "--batch-id", f"LINE{n}-0601", "--jobs", "1", "--operator", f"STATION {n}"]
         stations.append(subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=dict(os.environ)))
-    outcomes = [(s.wait(timeout=240), s.stderr.read().decode()) for s in stations]
+    # communicate() drains both pipes; stdout is kept in the message too, should a station exit 2 once more
+    outcomes = [
+        (s.returncode, err.decode(), out.decode()) for s in stations for out, err in [s.communicate(timeout=240)]
+    ]
     # the demo lot holds rejected parts: exit 1 is the judged outcome, not a failure
-    assert [code for code, _ in outcomes] == [1, 1, 1, 1], outcomes
+    assert [code for code, *_ in outcomes] == [1, 1, 1, 1], outcomes
     with arc.Archive(url) as a:
         assert sorted(b.batch_id for b in a.batches()) == [f"LINE{n}-0601" for n in range(4)]
         assert all(b.is_finished for b in a.batches())
