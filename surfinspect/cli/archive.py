@@ -9,11 +9,10 @@ from __future__ import annotations
 
 import argparse
 
+from ._options import LOCATION_HELP
 from .console import Console
 
 HELP = "copy an archive between backends (a folder and PostgreSQL) with every hash and signature intact"
-
-LOCATION_HELP = "a folder, or postgresql://USER@HOST:PORT/DATABASE?objects=FOLDER"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

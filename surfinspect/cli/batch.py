@@ -25,6 +25,7 @@ from ..errors import EXIT_INPUT_ERROR, InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
+from ._options import add_archive_option
 from .console import Console
 
 archive = module("surfinspect.archive.store")
@@ -40,12 +41,7 @@ HELP = "inspect every image in a folder (in parallel) into the archive, with rep
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="folder of images (PNG, TIFF, JPEG, BMP)")
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser, made=True)
     parser.add_argument(
         "--batch-id",
         required=True,

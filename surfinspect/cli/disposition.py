@@ -6,6 +6,7 @@ import argparse
 
 from .._lazy import module
 from ._keys import add_key_arguments, open_key
+from ._options import add_archive_option
 from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
@@ -16,12 +17,7 @@ HELP = "record a signed disposition (use-as-is, rework, scrap, re-inspect) of a 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser)
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch")
     parser.add_argument("--part", required=True, metavar="PART", help="the part's key in the batch (its file name)")
     parser.add_argument("--decision", required=True, choices=signatures.DECISIONS, help="what becomes of the part")

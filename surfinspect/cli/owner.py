@@ -11,6 +11,7 @@ import argparse
 
 from .._lazy import module
 from ._keys import add_key_arguments, open_key
+from ._options import add_archive_option
 from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
@@ -23,12 +24,7 @@ HELP = "give an archive its owner once (the key that enrols and revokes signers)
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     init = sub.add_parser("init", help="set the owner of an archive (made when missing)")
-    init.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(init, made=True)
     init.add_argument("--name", required=True, metavar="PRINTED NAME", help="the owner's name as printed on records")
     add_key_arguments(init, "--key", "the owner's private key file (from keygen)")
 

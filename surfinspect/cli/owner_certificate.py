@@ -22,6 +22,7 @@ from .._lazy import module
 from ..errors import InputError
 from ..fsutil import write_bytes_atomic
 from ._checks import check_output_file
+from ._options import add_archive_option
 from .console import Console
 
 pki = module("surfinspect.archive.pki")
@@ -35,12 +36,7 @@ _ENCODINGS = {".pem": "PEM", ".cer": "DER", ".crt": "DER", ".der": "DER"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser)
     parser.add_argument("--out", required=True, metavar="FILE", help="the certificate file: .pem, or .cer/.crt/.der")
     parser.add_argument(
         "--algorithm",

@@ -11,15 +11,14 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from ._options import add_archive_option
 from .console import Console
 
 HELP = "re-inspect archived parts under another recipe revision and list the verdicts that would change"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive", required=True, metavar="ARCHIVE", help="a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER"
-    )
+    add_archive_option(parser)
     parser.add_argument("--recipe", required=True, metavar="RECIPE", help="the recipe YAML to judge by now")
     parser.add_argument("--batch-id", action="append", default=[], metavar="ID", help="a batch (repeat; default: all)")
     parser.add_argument("--since", metavar="DATE", help="only batches started at or after (YYYY-MM-DD, UTC)")

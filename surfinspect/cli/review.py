@@ -11,6 +11,7 @@ from pathlib import Path
 
 from .._lazy import module
 from ..errors import InputError
+from ._options import add_archive_option
 from .console import Console
 
 location = module("surfinspect.archive.location")
@@ -19,11 +20,7 @@ HELP = "serve the review station: look at batches and parts in a browser, record
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER (needed unless --recipe-image)",
-    )
+    add_archive_option(parser, required=False, note=" (needed unless --recipe-image)")
     parser.add_argument(
         "--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1: this computer only)"
     )

@@ -15,6 +15,7 @@ from .._lazy import module
 from ..errors import InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner
+from ._options import add_archive_option
 from .console import Console
 
 archive = module("surfinspect.archive.store")
@@ -26,12 +27,7 @@ HELP = "list the batches in an archive with their verdict counts and sign-offs; 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser)
     parser.add_argument("--batch-id", metavar="ID", help="show one batch part by part, with its sign-offs")
     parser.add_argument(
         "--out",

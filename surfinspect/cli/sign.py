@@ -16,6 +16,7 @@ from .._lazy import module
 from ..fsutil import write_bytes_atomic
 from ._checks import check_output_file
 from ._keys import add_key_arguments, open_key
+from ._options import add_archive_option
 from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
@@ -28,12 +29,7 @@ HELP = "sign a finished batch off (released, withheld or examined) and store the
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser)
     parser.add_argument("--batch-id", required=True, metavar="ID", help="the batch to sign off")
     add_key_arguments(parser, "--key", "the signer's private key file (enrolled in the archive's register)")
     parser.add_argument(

@@ -11,6 +11,7 @@ import argparse
 
 from .._lazy import module
 from ._keys import add_key_arguments, open_key
+from ._options import add_archive_option
 from .console import Console
 
 signatures = module("surfinspect.archive.signatures")
@@ -24,12 +25,7 @@ HELP = "enrol, revoke and list the keys that may sign in an archive"
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     add = sub.add_parser("add", help="enrol a public key under a printed name and role")
-    add.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(add)
     add.add_argument("--pub", required=True, metavar="KEY.pub", help="the signer's public key file (from keygen)")
     add.add_argument("--name", required=True, metavar="PRINTED NAME", help="the name printed on what the key signs")
     add.add_argument(
@@ -37,12 +33,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     add_key_arguments(add, "--by", "the archive owner's private key file")
     revoke = sub.add_parser("revoke", help="withdraw an enrolled key from now on")
-    revoke.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(revoke)
     revoke.add_argument(
         "--key-fingerprint", required=True, metavar="HEX", help="the key's fingerprint (8 or more leading digits)"
     )
@@ -52,21 +43,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "pdf-key",
         help="certify the PDF key of an enrolled holder (or the owner) whose key file was upgraded (keygen --upgrade)",
     )
-    pdf.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(pdf)
     pdf.add_argument("--pub", required=True, metavar="KEY.pub", help="the holder's upgraded public key file")
     add_key_arguments(pdf, "--by", "the archive owner's private key file")
     listing = sub.add_parser("list", help="list the owner and every enrolled key")
-    listing.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(listing)
 
 
 def run(args: argparse.Namespace, console: Console) -> int:

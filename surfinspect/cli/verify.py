@@ -13,6 +13,7 @@ from .._lazy import module
 from ..archive.backend import IndexBusy, IndexDamaged
 from ..errors import InputError
 from ..fsutil import check_output_file
+from ._options import add_archive_option
 from .console import Console
 
 legacy_v1 = module("surfinspect.archive.legacy_v1")
@@ -24,12 +25,7 @@ HELP = "check an archive's index, audit chain, signer register, signatures and f
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder, or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser)
     parser.add_argument(
         "--batch-id",
         metavar="ID",

@@ -17,6 +17,7 @@ import signal
 
 from .._lazy import module
 from ._keys import add_key_arguments, open_key
+from ._options import add_archive_option
 from .batch import batch_fields, on_stop_signals
 from .console import Console
 
@@ -28,12 +29,7 @@ HELP = "judge each image as it arrives in a folder, publish verdicts (JSON lines
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("recipe", metavar="RECIPE", help="the recipe YAML file")
     parser.add_argument("folder", metavar="FOLDER", help="the folder the camera writes images into")
-    parser.add_argument(
-        "--archive",
-        required=True,
-        metavar="ARCHIVE",
-        help="the archive: a folder (made when missing), or postgresql://USER@HOST:PORT/DB?objects=FOLDER",
-    )
+    add_archive_option(parser, made=True)
     parser.add_argument(
         "--batch-id", required=True, metavar="ID", help="the batch id; run again with the same id to go on after a stop"
     )
