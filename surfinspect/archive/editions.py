@@ -52,9 +52,10 @@ class Retried:
 def signed_report_sha256(row: SignoffRow) -> str | None:
     """The report edition a stored sign-off signed (its record's ``report_sha256``; None when unreadable)."""
     try:
-        return json.loads(row.record_json).get("report_sha256")
-    except (ValueError, AttributeError):
-        return None
+        record = json.loads(row.record_json)
+    except (ValueError, TypeError):
+        return None  # an unreadable record is named by the sign-off check
+    return record.get("report_sha256") if isinstance(record, dict) else None
 
 
 def signs_newest_edition(batch: BatchRow, row: SignoffRow) -> bool:

@@ -24,12 +24,12 @@ after the revocation, it is a problem.
 from __future__ import annotations
 
 import hashlib
-import json
 from dataclasses import dataclass
 from datetime import datetime
 
 from cryptography import x509
 
+from .editions import signed_report_sha256
 from .pdf_signature import SIGNATURE_FIELD_PREFIX, PdfSignatureCheck, pdf_signatures, signature_reason
 
 __all__ = ["SignedEdition", "Revocation", "edition_findings"]
@@ -211,7 +211,7 @@ def check_pdf_signatures(ctx) -> None:
                     s.signed_report_sha256,
                     data,
                     getattr(register.signers.get(s.key_fingerprint), "pdf_public_key_hex", None),
-                    report_sha256=_signed_report(s.record_json),
+                    report_sha256=signed_report_sha256(s),
                 )
             )
         problems, warnings = edition_findings(batch.batch_id, editions, roots, revoked)
@@ -219,14 +219,6 @@ def check_pdf_signatures(ctx) -> None:
             ctx.fail(p)
         for w in warnings:
             ctx.warn(w)
-
-
-def _signed_report(record_json: str) -> str | None:
-    try:
-        record = json.loads(record_json)
-    except ValueError:
-        return None  # an unreadable record is named by the sign-off check
-    return record.get("report_sha256") if isinstance(record, dict) else None
 
 
 def _check_certificates(ctx, register, owner_cert) -> None:

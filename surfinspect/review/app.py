@@ -176,6 +176,7 @@ class _Views:
         row = self._batch(arc, request)
         cards = pages.part_cards(arc, row.batch_id)
         charts, notes = pages.batch_charts(cards, pages.tolerances_of(arc, cards))
+        signoffs = arc.signoffs(row.batch_id)
         return {
             "batch": row,
             "cards": pages.filter_and_sort(cards, verdict, sort),
@@ -185,8 +186,8 @@ class _Views:
             "sort": sort,
             "charts": charts,
             "chart_notes": notes,
-            "signoffs": arc.signoffs(row.batch_id),
-            "newest_unsigned": pages.BatchSummary(row, {}, arc.signoffs(row.batch_id)).newest_unsigned,
+            "signoffs": signoffs,
+            "newest_unsigned": pages.newest_unsigned(row, signoffs),
             "keys": [] if self.config.read_only else actions.folder_keys(arc, self.key_dir),
             "dispositions": [d for c in cards for d in c.dispositions],
         }

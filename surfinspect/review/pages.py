@@ -53,9 +53,12 @@ class BatchSummary:
 
     @property
     def newest_unsigned(self) -> bool:
-        """Signed off, but parts were re-inspected since into a newer report edition nobody signed."""
-        s = self.last_signoff
-        return s is not None and not signs_newest_edition(self.row, s)
+        return newest_unsigned(self.row, self.signoffs)
+
+
+def newest_unsigned(batch: archive.BatchRow, signoffs: list[archive.SignoffRow]) -> bool:
+    """Signed off, but parts were re-inspected since into a newer report edition nobody signed."""
+    return bool(signoffs) and not signs_newest_edition(batch, signoffs[-1])
 
 
 def batch_summaries(arc: archive.Archive, q: str = "", date_from: str = "", date_to: str = "") -> list[BatchSummary]:
