@@ -35,7 +35,7 @@ from psycopg import sql
 
 from ..errors import InputError
 from .backend import IndexBackend, IndexBusy, IndexDamaged, Row
-from .schema import TABLE_BY_NAME, TABLES, Table
+from .schema import TABLES, Table, checked_columns, table_named
 
 __all__ = ["PostgresBackend", "SCHEMA_VERSION", "VERSION_TABLE", "WRITE_LOCK_KEY", "display_url"]
 
@@ -83,25 +83,12 @@ def _migration_1(cur: psycopg.Cursor) -> None:
 MIGRATIONS = {1: _migration_1}
 
 
-def _table(name: str) -> Table:
-    if name not in TABLE_BY_NAME:
-        raise ValueError(f"unknown table {name!r}")
-    return TABLE_BY_NAME[name]
-
-
-def _checked(table: Table, names) -> list[str]:
-    bad = [n for n in names if n not in table.column_names]
-    if bad:
-        raise ValueError(f"table {table.name!r} has no column(s) {', '.join(map(repr, bad))}")
-    return list(names)
-
-
 def _where(table: Table, where: Row | None) -> tuple[sql.Composable, list]:
     """``col = %s`` for a value, ``col IS NULL`` for None (so the primary-key indexes are used)."""
     if not where:
         return sql.SQL(""), []
     parts, params = [], []
-    for n in _checked(table, where):
+    for n in checked_columns(table, where):
         if where[n] is None:
             parts.append(sql.SQL("{} IS NULL").format(sql.Identifier(n)))
         else:
@@ -207,8 +194,8 @@ class PostgresBackend(IndexBackend):
             tx.__exit__(None, None, None)
 
     def insert(self, table: str, row: Row) -> None:
-        t = _table(table)
-        names = _checked(t, row)
+        t = table_named(table)
+        names = checked_columns(t, row)
         stmt = sql.SQL("INSERT INTO {} ({}) VALUES ({})").format(
             sql.Identifier(t.name), _names(names), sql.SQL(", ").join(sql.Placeholder() * len(names))
         )
@@ -216,8 +203,8 @@ class PostgresBackend(IndexBackend):
             self._db.execute(stmt, [row[n] for n in names])
 
     def insert_ignore(self, table: str, row: Row) -> bool:
-        t = _table(table)
-        names = _checked(t, row)
+        t = table_named(table)
+        names = checked_columns(t, row)
         stmt = sql.SQL("INSERT INTO {} ({}) VALUES ({}) ON CONFLICT ({}) DO NOTHING").format(
             sql.Identifier(t.name),
             _names(names),
@@ -228,8 +215,8 @@ class PostgresBackend(IndexBackend):
             return self._db.execute(stmt, [row[n] for n in names]).rowcount == 1
 
     def update(self, table: str, key: Row, values: Row) -> int:
-        t = _table(table)
-        names = _checked(t, values)
+        t = table_named(table)
+        names = checked_columns(t, values)
         clause, params = _where(t, key)
         sets = sql.SQL(", ").join(sql.SQL("{} = %s").format(sql.Identifier(n)) for n in names)
         stmt = sql.SQL("UPDATE {} SET {}").format(sql.Identifier(t.name), sets) + clause
@@ -241,18 +228,18 @@ class PostgresBackend(IndexBackend):
     def select(
         self, table: str, where: Row | None = None, *, order_by: Sequence[str] = (), columns: Sequence[str] = ()
     ) -> list[dict[str, Any]]:
-        t = _table(table)
-        names = _checked(t, columns or t.column_names)
+        t = table_named(table)
+        names = checked_columns(t, columns or t.column_names)
         clause, params = _where(t, where)
         stmt = sql.SQL("SELECT {} FROM {}").format(_names(names), sql.Identifier(t.name)) + clause
         if order_by:
-            stmt += sql.SQL(" ORDER BY {}").format(_names(_checked(t, order_by)))
+            stmt += sql.SQL(" ORDER BY {}").format(_names(checked_columns(t, order_by)))
         with _translated():
             return [dict(zip(names, row)) for row in self._db.execute(stmt, params).fetchall()]
 
     def max_value(self, table: str, column: str, where: Row | None = None) -> Any:
-        t = _table(table)
-        (name,) = _checked(t, [column])
+        t = table_named(table)
+        (name,) = checked_columns(t, [column])
         clause, params = _where(t, where)
         stmt = sql.SQL("SELECT max({}) FROM {}").format(sql.Identifier(name), sql.Identifier(t.name)) + clause
         with _translated():

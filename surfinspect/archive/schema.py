@@ -24,6 +24,8 @@ __all__ = [
     "RegisterRow",
     "EventRow",
     "row_type",
+    "table_named",
+    "checked_columns",
 ]
 
 ARCHIVE_FORMAT = "surfinspect.archive/2"
@@ -170,6 +172,22 @@ TABLES: tuple[Table, ...] = (
 )
 
 TABLE_BY_NAME = {t.name: t for t in TABLES}
+
+
+def table_named(name: str) -> Table:
+    """The table of that name (a backend refuses any other: names are never taken from input)."""
+    if name not in TABLE_BY_NAME:
+        raise ValueError(f"unknown table {name!r}")
+    return TABLE_BY_NAME[name]
+
+
+def checked_columns(table: Table, names) -> list[str]:
+    """``names`` as a list, when every one is a column of ``table``."""
+    bad = [n for n in names if n not in table.column_names]
+    if bad:
+        raise ValueError(f"table {table.name!r} has no column(s) {', '.join(map(repr, bad))}")
+    return list(names)
+
 
 #: Tables whose every row is recorded, field by field, in the audit chain
 #: (``meta`` holds the chain's own head; ``events`` is the chain).

@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any, Iterator, Sequence
 
 from .backend import IndexBackend, IndexBusy, IndexDamaged, Row
-from .schema import TABLE_BY_NAME, TABLES, Table
+from .schema import TABLES, Table, checked_columns, table_named
 
 __all__ = ["SQLiteBackend", "INDEX_NAME", "BUSY_TIMEOUT_S"]
 
@@ -36,23 +36,10 @@ def _ddl(table: Table) -> str:
     return f"CREATE TABLE IF NOT EXISTS {table.name} ({', '.join(cols)})"
 
 
-def _table(name: str) -> Table:
-    if name not in TABLE_BY_NAME:
-        raise ValueError(f"unknown table {name!r}")
-    return TABLE_BY_NAME[name]
-
-
-def _checked(table: Table, names) -> list[str]:
-    bad = [n for n in names if n not in table.column_names]
-    if bad:
-        raise ValueError(f"table {table.name!r} has no column(s) {', '.join(map(repr, bad))}")
-    return list(names)
-
-
 def _where(table: Table, where: Row | None) -> tuple[str, list]:
     if not where:
         return "", []
-    names = _checked(table, where)
+    names = checked_columns(table, where)
     return " WHERE " + " AND ".join(f"{n} IS ?" for n in names), [where[n] for n in names]
 
 
@@ -105,15 +92,15 @@ class SQLiteBackend(IndexBackend):
             self._db.execute("COMMIT")
 
     def insert(self, table: str, row: Row) -> None:
-        t = _table(table)
-        names = _checked(t, row)
+        t = table_named(table)
+        names = checked_columns(t, row)
         marks = ", ".join("?" for _ in names)
         with _translated():
             self._db.execute(f"INSERT INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names])
 
     def insert_ignore(self, table: str, row: Row) -> bool:
-        t = _table(table)
-        names = _checked(t, row)
+        t = table_named(table)
+        names = checked_columns(t, row)
         marks = ", ".join("?" for _ in names)
         with _translated():
             cur = self._db.execute(
@@ -122,8 +109,8 @@ class SQLiteBackend(IndexBackend):
         return cur.rowcount == 1
 
     def update(self, table: str, key: Row, values: Row) -> int:
-        t = _table(table)
-        names = _checked(t, values)
+        t = table_named(table)
+        names = checked_columns(t, values)
         clause, params = _where(t, key)
         sets = ", ".join(f"{n} = ?" for n in names)
         with _translated():
@@ -133,17 +120,17 @@ class SQLiteBackend(IndexBackend):
     def select(
         self, table: str, where: Row | None = None, *, order_by: Sequence[str] = (), columns: Sequence[str] = ()
     ) -> list[dict[str, Any]]:
-        t = _table(table)
-        names = _checked(t, columns or t.column_names)
+        t = table_named(table)
+        names = checked_columns(t, columns or t.column_names)
         clause, params = _where(t, where)
-        order = f" ORDER BY {', '.join(_checked(t, order_by))}" if order_by else ""
+        order = f" ORDER BY {', '.join(checked_columns(t, order_by))}" if order_by else ""
         with _translated():
             cur = self._db.execute(f"SELECT {', '.join(names)} FROM {t.name}{clause}{order}", params)
             return [dict(zip(names, row)) for row in cur.fetchall()]
 
     def max_value(self, table: str, column: str, where: Row | None = None) -> Any:
-        t = _table(table)
-        (name,) = _checked(t, [column])
+        t = table_named(table)
+        (name,) = checked_columns(t, [column])
         clause, params = _where(t, where)
         with _translated():
             return self._db.execute(f"SELECT MAX({name}) FROM {t.name}{clause}", params).fetchone()[0]
