@@ -7,6 +7,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from .conditions import SATURATION_CODE_MARGIN
 from .derivatives import gaussian_derivative_kernels
 
 __all__ = ["STRIP_ROWS", "SLIVER_SHARE", "CellSums", "cell_sums", "merge_edge_slivers", "merge_outline_slivers"]
@@ -46,6 +47,9 @@ class CellSums:
     #: where a sliver's pixels went (:func:`merge_outline_slivers`): the flat index of the cell now
     #: holding them, -1 for a cell that holds its own; None when nothing was merged
     merged_into: np.ndarray | None = None
+    #: region pixels left out as clipped (``saturation_level``): at or above the level, or within a
+    #: kernel radius of such a pixel
+    clipped_px: int = 0
 
     @property
     def bins(self) -> int:
@@ -89,6 +93,7 @@ def cell_sums(
     keep: np.ndarray | None = None,
     background_sigma: float = 0.0,
     interior_only: bool = True,
+    saturation_level: float | None = None,
 ) -> CellSums:
     """Structure tensor and orientation histogram summed per cell of a region.
 
@@ -96,7 +101,9 @@ def cell_sums(
 
     1. Gaussian-derivative gradients of the strip (with a halo of image rows
        above and below, so strips join seamlessly), after subtracting the
-       smooth illumination background when ``background_sigma`` > 0.
+       smooth illumination background when ``background_sigma`` > 0. With a
+       ``saturation_level``, the strip's clipped pixels, grown by the kernel's
+       radius (:func:`.conditions.saturated_pixels`), are left out here.
     2. Products ``gx^2, gx gy, gy^2`` weighted by the measured pixels (region
        mask, ``keep``, and the image interior), summed per cell (rows of a cell
        first, by ``einsum``, then the columns; no product is stored).
@@ -139,6 +146,12 @@ def cell_sums(
     interior_only : bool
         Measure only pixels whose derivative kernel lies wholly inside the
         image, so that no mirrored pixel beyond the border enters a sum.
+    saturation_level : float, optional
+        Leave out pixels at or above this level (clipped highlights) and those within a kernel
+        radius of one, as ``keep = ~saturated_pixels(...)`` of the box grown by that radius
+        would, found strip by strip (the strip is in cache then, and few clipped pixels cost a
+        few index writes, not a mask multiplied over the image). ``CellSums.clipped_px``
+        counts the region pixels so left out.
 
     Returns
     -------
@@ -159,16 +172,20 @@ def cell_sums(
     full = np.count_nonzero(mask) == mask.size
     strips = _Strips(image, mask, keep, (x0, y0, w, h), cell_px, sigma, interior_only, background_sigma, full)
     strips.votes = _Votes(bins, float(angle_offset_deg) % 180.0, vote_step, cell_px, n_cols, w)
+    if saturation_level is not None:
+        strips.clip_threshold = np.float32(min(saturation_level, 1.0) - SATURATION_CODE_MARGIN)
     jxx, jxy, jyy, area = (np.zeros((n_rows, n_cols)) for _ in range(4))
     hist = np.zeros((n_rows, n_cols, bins))
+    clipped_px = 0
     from concurrent.futures import ThreadPoolExecutor
 
     # the vote counting (np.bincount) holds the GIL; the filters of the next strip run meanwhile
     with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        for cell_row0, n_strip, sums, strip_hist in pool.map(strips, range(0, n_rows, strips.strip_cells)):
+        for cell_row0, n_strip, sums, strip_hist, n_clipped in pool.map(strips, range(0, n_rows, strips.strip_cells)):
             sl = slice(cell_row0, cell_row0 + n_strip)
             jxx[sl], jxy[sl], jyy[sl], area[sl] = sums
             hist[sl] = strip_hist.reshape(n_strip, n_cols, bins)
+            clipped_px += n_clipped
     if full:  # whole cells, clipped at the box's edge
         region_area = np.outer(_span_counts(0, h, cell_px, n_rows), _span_counts(0, w, cell_px, n_cols))
     else:
@@ -183,6 +200,7 @@ def cell_sums(
         area=area,
         hist=hist,
         region_area=region_area,
+        clipped_px=clipped_px,
     )
 
 
@@ -203,7 +221,7 @@ class _Strips:
     ):
         x0, y0, w, h = box
         rows_img, cols_img = image.shape
-        self.image, self.box, self.cell_px = image, box, cell_px
+        self.image, self.box, self.cell_px, self.mask = image, box, cell_px, mask
         self.smooth, self.deriv = gaussian_derivative_kernels(sigma)
         self.halo = halo = len(self.smooth) // 2
         self.weights, self.inner = _measured_pixels(mask, keep, box, image.shape, halo if interior_only else 0, full)
@@ -214,6 +232,9 @@ class _Strips:
         self.col_counts = _span_counts(self.inner[2], self.inner[3], cell_px, self.n_cols)
         self.background = None
         self.votes: _Votes | None = None
+        self.clip_threshold: np.float32 | None = None
+        self.clip_kernel = np.ones((2 * halo + 1, 2 * halo + 1), np.uint8)
+        self.full = full
         if background_sigma > 0:
             from .conditions import illumination_background
 
@@ -223,7 +244,8 @@ class _Strips:
             )
 
     def gradients(self, r0: int, r1: int):
-        """gx, gy (y up) of box rows r0:r1 and the box's columns (views of the filters' outputs)."""
+        """gx, gy (y up) of box rows r0:r1 and the box's columns (views of the filters' outputs),
+        and the clipped pixels of those rows grown by the kernel's radius (None: none)."""
         x0, y0, w, _ = self.box
         ry0, ry1 = max(0, y0 + r0 - self.halo), min(self.image.shape[0], y0 + r1 + self.halo)
         view = self.image[ry0:ry1, self.cx0 : self.cx1]
@@ -238,34 +260,65 @@ class _Strips:
         gx = cv2.sepFilter2D(block, cv2.CV_32F, self.deriv, self.smooth, borderType=border)[inner]
         gy = cv2.sepFilter2D(block, cv2.CV_32F, self.smooth, self.deriv, borderType=border)[inner]
         np.negative(gy, out=gy)  # rows grow downward; the part frame's y grows upward
-        return gx, gy
+        return gx, gy, self._clipped(view, inner)
+
+    def _clipped(self, view: np.ndarray, inner) -> np.ndarray | None:
+        """Clipped pixels of the strip's ``inner`` part, grown by the halo (bool), or None.
+
+        What :func:`.conditions.saturated_pixels` gives (a test holds them equal), with the steps
+        it would repeat here left out. The view holds every pixel within the halo of the inner part
+        (or the image ends there), so growing its clipped pixels is growing those of the whole box.
+        """
+        if self.clip_threshold is None or view.size == 0 or cv2.minMaxLoc(view)[1] < self.clip_threshold:
+            return None
+        clipped = view >= self.clip_threshold
+        grown = cv2.dilate(clipped.view(np.uint8), self.clip_kernel, borderType=cv2.BORDER_CONSTANT)
+        return grown[inner].view(bool)
 
     def __call__(self, cell_row0: int):
         cell_px, h = self.cell_px, self.box[3]
         r0 = cell_row0 * cell_px  # strip rows relative to the box
         r1 = min(h, r0 + self.strip_cells * cell_px)
         n_strip_cells = -(-(r1 - r0) // cell_px)
-        gx, gy = self.gradients(r0, r1)
+        gx, gy, clipped = self.gradients(r0, r1)
+        n_clipped, weights, sparse = 0, None, None
+        if self.weights is not None:
+            weights = self.weights[r0:r1]
+        if clipped is not None:
+            n_clipped = int(np.count_nonzero(clipped if self.full else clipped & self.mask[r0:r1]))
+            if weights is None and 16 * n_clipped < clipped.size:
+                points = cv2.findNonZero(clipped.view(np.uint8)).reshape(-1, 2)  # (x, y); far faster than np.nonzero
+                sparse = points[:, 1], points[:, 0]  # a few index writes where the clipped pixels are
+            else:
+                weights = ~clipped if weights is None else weights & ~clipped
         # rows and columns of this strip whose kernel lies inside the image (box coordinates - r0)
         in_r0, in_r1, in_c0, in_c1 = self.inner
         a0, a1 = max(0, in_r0 - r0), max(0, min(r1, in_r1) - r0)
-        if self.weights is None:  # a full box: only the border band (if any) is left out, by slicing
+        if weights is None:  # every pixel of the strip measured: only the border band (if any) is left out, by slicing
             for g in (gx, gy):
                 g[:a0] = 0.0
                 g[a1:] = 0.0
                 g[:, :in_c0] = 0.0
                 g[:, in_c1:] = 0.0
             area = np.outer(_span_counts(a0, a1, cell_px, n_strip_cells), self.col_counts)
+            if sparse is not None:
+                ys, xs = sparse
+                inside = (ys >= a0) & (ys < a1) & (xs >= in_c0) & (xs < in_c1)
+                ys, xs = ys[inside], xs[inside]
+                gx[ys, xs] = 0.0  # exact zeros, as the mask's multiplication gives
+                gy[ys, xs] = 0.0
+                cells = (ys // cell_px) * self.n_cols + xs // cell_px
+                area -= np.bincount(cells, minlength=area.size).reshape(area.shape)
         else:
             m = np.zeros(gx.shape, np.float32)
-            m[a0:a1, in_c0:in_c1] = self.weights[r0 + a0 : r0 + a1, in_c0:in_c1]
+            m[a0:a1, in_c0:in_c1] = weights[a0:a1, in_c0:in_c1]
             gx *= m  # masked gradients: products and magnitudes vanish outside the measured pixels
             gy *= m
             area = _block_sum(m, cell_px, self.n_cols)
             del m
         n = self.n_cols
         sums = tuple(_block_sum(p, cell_px, n, times=q) for p, q in ((gx, gx), (gx, gy), (gy, gy))) + (area,)
-        return cell_row0, n_strip_cells, sums, self.votes.count(gx, gy, n_strip_cells)
+        return cell_row0, n_strip_cells, sums, self.votes.count(gx, gy, n_strip_cells), n_clipped
 
 
 def merge_edge_slivers(sums: CellSums) -> CellSums:
@@ -288,7 +341,9 @@ def merge_edge_slivers(sums: CellSums) -> CellSums:
             merged = a[:-1].copy()
             merged[-1] += a[-1]
             arrays[k] = np.moveaxis(merged, 0, axis)
-    return CellSums(origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, **arrays)
+    return CellSums(
+        origin_px=sums.origin_px, cell_px=sums.cell_px, shape_px=sums.shape_px, clipped_px=sums.clipped_px, **arrays
+    )
 
 
 #: A cell holding fewer region pixels than this share of a full cell is merged into a neighbour.
@@ -350,6 +405,7 @@ def merge_outline_slivers(sums: CellSums) -> CellSums:
         cell_px=sums.cell_px,
         shape_px=sums.shape_px,
         merged_into=merged_into.reshape(rows, cols),
+        clipped_px=sums.clipped_px,
         **arrays,
     )
 
@@ -404,7 +460,11 @@ class _Votes:
         bins, stride, step = self.bins, self.stride, self.step
         gx = np.ascontiguousarray(gx[::step, ::step])
         gy = np.ascontiguousarray(gy[::step, ::step])
-        magnitude = cv2.magnitude(gx, gy)
+        # not cv2.magnitude: its vector and scalar paths round the last bit apart, so the votes would
+        # depend on where the allocator put the strip (tests/measure/test_cells.py finds that out)
+        magnitude = np.square(gx)
+        magnitude += np.square(gy)
+        np.sqrt(magnitude, out=magnitude)
         angle = cv2.phase(gx, gy, angleInDegrees=True)  # gradient direction in [0, 360), error ~0.01 deg
         # lay = gradient + 90 - offset (mod 180). Rather than a costly per-pixel modulo, bin the
         # unreduced angle: position t = (angle + 90 - offset) * bins / 180 + bins + 0.5 lies in

@@ -11,6 +11,7 @@ from __future__ import annotations
 import datetime as _dt
 import math
 from dataclasses import dataclass, replace
+from functools import partial
 from pathlib import PurePath
 
 import cv2
@@ -353,55 +354,56 @@ def inspect_region(
 def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, recipe: Recipe, sigma_n: float):
     """Mask what the camera could not see, sum the cells and gather what judging needs."""
     bbox, mask, outer, holes = where
-    x0, y0, w, h = bbox
     radius = len(gaussian_derivative_kernels(region.sigma_px)[0]) // 2
-    rows, cols = pixels.shape
-    gy0, gx0 = max(0, y0 - radius), max(0, x0 - radius)
-    grown = saturated_pixels(
-        pixels[gy0 : min(rows, y0 + h + radius), gx0 : min(cols, x0 + w + radius)], recipe.saturation_level, radius
-    )
-    keep = None
-    masked = 0.0
-    region_px = measured_px = np.count_nonzero(mask)
-    if grown is not None:
-        grown = grown[y0 - gy0 : y0 - gy0 + h, x0 - gx0 : x0 - gx0 + w]
-        keep = ~grown
-        hidden = np.count_nonzero(grown if region_px == mask.size else mask & grown)
-        masked = float(hidden / max(region_px, 1))
-        measured_px = region_px - hidden
-    cells = cell_sums(
-        pixels,
-        mask,
-        bbox,
-        cell_px=region.cell_px,
-        sigma=region.sigma_px,
-        angle_offset_deg=frame.rotation_deg,
-        vote_step=HISTOGRAM_VOTE_STEP,
-        threads=THREADS,
-        keep=keep,
-        background_sigma=region.illumination_px,
-    )
-    test_cells = None
-    if cells.area.size < MIN_TEST_CELLS and region.lay is LayPattern.DIRECTIONAL:
-        # too few cells for a strong direction test: test on cells of a third the size (cheap: the region is small)
-        test_cells = cell_sums(
+    # the region's measured pixels in a part of its box (what the central samples read)
+    measured = partial(_measured_part, pixels, mask, bbox, recipe.saturation_level, radius)
+    from concurrent.futures import ThreadPoolExecutor
+
+    # the central samples read only the image: they run beside the cell sums, whose strips leave
+    # a core idle part of the time (the vote counting holds the GIL, the filters do not)
+    with ThreadPoolExecutor(max_workers=1) as beside:
+        grid = beside.submit(_block_grid_sample, pixels, bbox, mask)
+        central = None
+        if region.lay is LayPattern.DIRECTIONAL:
+            central = beside.submit(_spectral_sample, pixels, region, bbox, measured, sigma_n)
+        cells = cell_sums(
             pixels,
             mask,
             bbox,
-            cell_px=max(8, region.cell_px // 3),
+            cell_px=region.cell_px,
             sigma=region.sigma_px,
-            keep=keep,
+            angle_offset_deg=frame.rotation_deg,
+            vote_step=HISTOGRAM_VOTE_STEP,
+            threads=THREADS,
             background_sigma=region.illumination_px,
+            saturation_level=recipe.saturation_level,
         )
-    cells = merge_outline_slivers(merge_edge_slivers(cells))
-    spectral = tensor_se = None
-    if region.lay is LayPattern.DIRECTIONAL:
-        spectral, tensor_se = _spectral_sample(pixels, region, bbox, mask, keep, sigma_n, measured_px)
+        region_px = np.count_nonzero(mask)
+        hidden = cells.clipped_px
+        masked = float(hidden / max(region_px, 1)) if hidden else 0.0
+        measured_px = region_px - hidden
+        test_cells = None
+        if cells.area.size < MIN_TEST_CELLS and region.lay is LayPattern.DIRECTIONAL:
+            # too few cells for a strong direction test: test on cells of a third the size (cheap: the region is small)
+            test_cells = cell_sums(
+                pixels,
+                mask,
+                bbox,
+                cell_px=max(8, region.cell_px // 3),
+                sigma=region.sigma_px,
+                background_sigma=region.illumination_px,
+                saturation_level=recipe.saturation_level,
+            )
+        cells = merge_outline_slivers(merge_edge_slivers(cells))
+        spectral = tensor_se = None
+        if central is not None:
+            spectral, tensor_se, sample_px = central.result()
+            if tensor_se is not None:  # from the sample's pixels to the whole region's measured ones
+                tensor_se *= math.sqrt(float(sample_px) / max(float(measured_px), 1.0))
+        block_grid_found = grid.result()
     families = family_cells = None
     if region.lay is LayPattern.CROSSED:
-        families, family_cells = _crossed_sample(
-            pixels, region, bbox, mask if keep is None else mask & keep, sigma_n, cells
-        )
+        families, family_cells = _crossed_sample(pixels, region, bbox, measured, sigma_n, cells)
     centre_px = None
     if region.centre is not None:
         cx, cy = frame.to_image([region.centre])[0]
@@ -416,7 +418,7 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         exclude_px=holes,
         pixel_size_mm=recipe.pixel_size_mm,
         masked_fraction=masked,
-        block_grid=_block_grid_sample(pixels, bbox, mask),
+        block_grid=block_grid_found,
         test_cells=test_cells,
         spectral=spectral,
         tensor_standard_error_deg=tensor_se,
@@ -425,41 +427,61 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     )
 
 
-def _spectral_sample(pixels: np.ndarray, region: Region, bbox, mask, keep, sigma_n: float, measured_px: int):
-    """The spectral lay and the tensor angle's spectral standard error, from the region's central part.
+def _measured_part(pixels: np.ndarray, mask: np.ndarray, bbox, level: float | None, radius: int, r0, r1, c0, c1):
+    """Region pixels of box rows ``r0:r1`` and columns ``c0:c1`` that are measured: not clipped at ``level``.
 
-    At most :data:`SPECTRAL_SIDE` px square, so the cost stays bounded; the standard error is scaled
-    from that part to the whole region's ``measured_px`` pixels (region pixels not masked; variance
+    The clipped pixels are grown from the image around that part (``radius`` px beyond it, or to the
+    image's edge), which is what growing those of the whole box gives there.
+    """
+    part = mask[r0:r1, c0:c1]
+    if level is None:
+        return part
+    x0, y0, _, _ = bbox
+    rows, cols = pixels.shape
+    gy0, gx0 = max(0, y0 + r0 - radius), max(0, x0 + c0 - radius)
+    grown = saturated_pixels(
+        pixels[gy0 : min(rows, y0 + r1 + radius), gx0 : min(cols, x0 + c1 + radius)], level, radius
+    )
+    if grown is None:
+        return part
+    top, left = y0 + r0 - gy0, x0 + c0 - gx0
+    return part & ~grown[top : top + (r1 - r0), left : left + (c1 - c0)]
+
+
+def _spectral_sample(pixels: np.ndarray, region: Region, bbox, measured, sigma_n: float):
+    """The spectral lay, the tensor angle's spectral standard error and the measured pixels they had.
+
+    From the region's central part, at most :data:`SPECTRAL_SIDE` px square, so the cost stays
+    bounded; the caller scales the standard error to the whole region's measured pixels (variance
     inversely proportional to the measured area).
     """
     x0, y0, w, h = bbox
     side = SPECTRAL_SIDE
     r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
     r1, c1 = min(h, r0 + side), min(w, c0 + side)
-    crop = mask[r0:r1, c0:c1] if keep is None else mask[r0:r1, c0:c1] & keep[r0:r1, c0:c1]
+    crop = measured(r0, r1, c0, c1)
     crop_px = np.count_nonzero(crop)
     if crop_px < 64:
-        return None, None
+        return None, None, crop_px
     block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]
     spectral = spectral_lay(block, crop, noise_sigma=sigma_n)
     if region.illumination_px > 0:
         block = block - illumination_background(block, region.illumination_px).sample(0, r1 - r0, 0, c1 - c0)
-    se = tensor_angle_standard_error(block, crop, sigma=region.sigma_px)
-    return spectral, se * math.sqrt(float(crop_px) / max(float(measured_px), 1.0))
+    return spectral, tensor_angle_standard_error(block, crop, sigma=region.sigma_px), crop_px
 
 
-def _central(bbox, mask: np.ndarray, side: int):
+def _central(bbox, side: int):
     """Box rows and columns ``(r0, r1, c0, c1)`` of the central ``side`` x ``side`` px of a region box."""
     _, _, w, h = bbox
     r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
     return r0, min(h, r0 + side), c0, min(w, c0 + side)
 
 
-def _crossed_sample(pixels: np.ndarray, region: Region, bbox, mask: np.ndarray, sigma_n: float, cells):
+def _crossed_sample(pixels: np.ndarray, region: Region, bbox, measured, sigma_n: float, cells):
     """The families of marks of a crossed region (its central part) and their energy cell by cell."""
     x0, y0, _, _ = bbox
-    r0, r1, c0, c1 = _central(bbox, mask, CROSSED_SIDE)
-    crop = mask[r0:r1, c0:c1]
+    r0, r1, c0, c1 = _central(bbox, CROSSED_SIDE)
+    crop = measured(r0, r1, c0, c1)
     if crop.sum() < 1024:  # under 32 x 32 px: no direction can be resolved
         return None, None
     block = pixels[y0 + r0 : y0 + r1, x0 + c0 : x0 + c1]

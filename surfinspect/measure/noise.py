@@ -16,8 +16,15 @@ __all__ = ["noise_sigma", "noise_gradient_energy"]
 #: Immerkaer's mask is the outer product of two second differences, applied separably.
 _SECOND_DIFFERENCE = np.array([1, -2, 1], dtype=np.float32)
 
+#: An image larger than this is sampled in evenly spaced strips of rows holding about this many
+#: pixels: the estimate's relative standard error on white noise is ``sqrt(pi/2 - 1) / sqrt(n)``
+#: (the spread of a mean of |Gaussian| values), 0.04 % at 4 MP, far below what any use of it needs.
+NOISE_SAMPLE_PX = 4_000_000
 
-def noise_sigma(image: np.ndarray, mask: np.ndarray | None = None, *, threads: int = 1) -> float:
+
+def noise_sigma(
+    image: np.ndarray, mask: np.ndarray | None = None, *, threads: int = 1, max_pixels: int | None = NOISE_SAMPLE_PX
+) -> float:
     """Fast estimate of the standard deviation of additive white noise.
 
     Parameters
@@ -27,6 +34,9 @@ def noise_sigma(image: np.ndarray, mask: np.ndarray | None = None, *, threads: i
         Restrict the estimate to these pixels.
     threads : int
         Strips filtered at once (OpenCV releases the GIL).
+    max_pixels : int or None
+        Above this many pixels, only every k-th strip of :data:`.cells.STRIP_ROWS` rows is read,
+        k the smallest that brings the sample to at most this size (None: every pixel).
 
     Returns
     -------
@@ -63,7 +73,8 @@ def noise_sigma(image: np.ndarray, mask: np.ndarray | None = None, *, threads: i
     from concurrent.futures import ThreadPoolExecutor
 
     with ThreadPoolExecutor(max_workers=max(1, threads)) as pool:
-        parts = list(pool.map(strip, range(1, rows - 1, STRIP_ROWS)))
+        every = 1 if max_pixels is None else max(1, -(-rows * cols // max(int(max_pixels), 1)))
+        parts = list(pool.map(strip, range(1, rows - 1, STRIP_ROWS * every)))
     total, count = sum(p[0] for p in parts), sum(p[1] for p in parts)
     if count == 0:
         return 0.0

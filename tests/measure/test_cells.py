@@ -69,3 +69,57 @@ def test_engine_lay_at_the_border_is_unbiased(where):
             region = inspect_image(img, directional_recipe(BORDER_BOXES[where], lay)).regions[0]
             worst = max(worst, abs(wrap_deviation(region.lay_deg, lay)))
     assert worst <= 0.02
+
+
+def _clipped_panel(spots: int, seed: int = 5) -> np.ndarray:
+    img = synth.brushed_panel(SHAPE, 30.0, seed=seed, shading=0.0)
+    rng = np.random.default_rng(seed)
+    img.flat[rng.integers(0, img.size, spots)] = 1.0  # clipped pixels scattered over the frame
+    return synth.add_glare(img, (250.0, 60.0), 25.0)  # and a clipped highlight near the top edge
+
+
+CLIP_CASES = {
+    "full frame, few clipped": ((0, 0, 320, 256), None, 40),
+    "full frame, most clipped": ((0, 0, 320, 256), None, 40_000),
+    "interior box, clipped just outside it": ((30, 50, 200, 150), None, 400),
+    "circle in a box at the border": ((0, 0, 200, 180), "circle", 400),
+}
+
+
+@pytest.mark.parametrize("case", list(CLIP_CASES))
+def test_clipped_pixels_found_in_strips_equal_the_grown_mask_of_the_box(case):
+    # the definition: saturated_pixels of the box grown by the kernel radius (or to the image's
+    # edge), its complement passed as keep. The strips find the same pixels, sparse or dense.
+    from surfinspect.measure.conditions import saturated_pixels
+
+    (x, y, w, h), shape, spots = CLIP_CASES[case]
+    img = _clipped_panel(spots)
+    mask = np.ones((h, w), bool)
+    if shape == "circle":
+        yy, xx = np.mgrid[:h, :w]
+        mask = (yy - h / 2) ** 2 + (xx - w / 2) ** 2 <= (0.45 * min(h, w)) ** 2
+    r = 4  # the kernel radius of sigma 1
+    gy0, gx0 = max(0, y - r), max(0, x - r)
+    grown = saturated_pixels(img[gy0 : y + h + r, gx0 : x + w + r], 1.0, r)
+    grown = grown[y - gy0 : y - gy0 + h, x - gx0 : x - gx0 + w]
+    reference = cell_sums(img, mask, (x, y, w, h), cell_px=24, keep=~grown, vote_step=2, threads=2)
+    found = cell_sums(img, mask, (x, y, w, h), cell_px=24, saturation_level=1.0, vote_step=2, threads=2)
+    for field in ("jxx", "jxy", "jyy", "area", "hist", "region_area"):
+        np.testing.assert_array_equal(getattr(found, field), getattr(reference, field), err_msg=field)
+    assert found.clipped_px == np.count_nonzero(grown & mask) > 0
+    assert reference.clipped_px == 0  # keep alone is not counted as clipped
+
+
+def test_the_same_pixels_give_the_same_sums_wherever_they_lie_in_memory():
+    # a measurement is repeatable to the last bit: the image copied to buffers of every alignment
+    # (0-15 float32 elements past a 64-byte boundary) gives identical sums and histograms
+    img = _clipped_panel(40)
+    results = []
+    for offset in range(16):
+        buffer = np.empty(img.size + 16, np.float32)
+        copy = buffer[offset : offset + img.size].reshape(img.shape)
+        copy[...] = img
+        results.append(cell_sums(copy, np.ones(SHAPE, bool), (0, 0, 320, 256), cell_px=24, saturation_level=1.0))
+    for r in results[1:]:
+        for field in ("jxx", "jxy", "jyy", "area", "hist"):
+            np.testing.assert_array_equal(getattr(r, field), getattr(results[0], field), err_msg=field)
