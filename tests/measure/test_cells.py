@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from surfinspect.measure import synth
 from surfinspect.measure.cells import cell_sums
@@ -90,24 +92,58 @@ CLIP_CASES = {
 def test_clipped_pixels_found_in_strips_equal_the_grown_mask_of_the_box(case):
     # the definition: saturated_pixels of the box grown by the kernel radius (or to the image's
     # edge), its complement passed as keep. The strips find the same pixels, sparse or dense.
-    from surfinspect.measure.conditions import saturated_pixels
-
     (x, y, w, h), shape, spots = CLIP_CASES[case]
     img = _clipped_panel(spots)
     mask = np.ones((h, w), bool)
     if shape == "circle":
         yy, xx = np.mgrid[:h, :w]
         mask = (yy - h / 2) ** 2 + (xx - w / 2) ** 2 <= (0.45 * min(h, w)) ** 2
-    r = 4  # the kernel radius of sigma 1
-    gy0, gx0 = max(0, y - r), max(0, x - r)
-    grown = saturated_pixels(img[gy0 : y + h + r, gx0 : x + w + r], 1.0, r)
-    grown = grown[y - gy0 : y - gy0 + h, x - gx0 : x - gx0 + w]
+    grown = _grown_box_mask(img, (x, y, w, h))
     reference = cell_sums(img, mask, (x, y, w, h), cell_px=24, keep=~grown, vote_step=2, threads=2)
     found = cell_sums(img, mask, (x, y, w, h), cell_px=24, saturation_level=1.0, vote_step=2, threads=2)
     for field in ("jxx", "jxy", "jyy", "area", "hist", "region_area"):
         np.testing.assert_array_equal(getattr(found, field), getattr(reference, field), err_msg=field)
     assert found.clipped_px == np.count_nonzero(grown & mask) > 0
     assert reference.clipped_px == 0  # keep alone is not counted as clipped
+
+
+def _grown_box_mask(img, box, radius=4):
+    """The definition: ``saturated_pixels`` of the box grown by the radius (or to the image's edge)."""
+    from surfinspect.measure.conditions import saturated_pixels
+
+    x, y, w, h = box
+    gy0, gx0 = max(0, y - radius), max(0, x - radius)
+    grown = saturated_pixels(img[gy0 : y + h + radius, gx0 : x + w + radius], 1.0, radius)
+    if grown is None:
+        return np.zeros((h, w), bool)
+    return grown[y - gy0 : y - gy0 + h, x - gx0 : x - gx0 + w]
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    x=st.integers(0, 200),
+    y=st.integers(0, 150),
+    w=st.integers(1, 320),
+    h=st.integers(1, 256),
+    spots=st.sampled_from([0, 1, 30, 3000, 60_000]),
+    cell=st.sampled_from([8, 24, 32]),
+    holes=st.booleans(),
+    seed=st.integers(0, 2**16),
+)
+def test_clipped_pixels_in_strips_match_the_definition_for_any_box(x, y, w, h, spots, cell, holes, seed):
+    # fuzzed boxes (at every border, one pixel wide, larger than a strip), clipped densities from none
+    # to most of the frame, whole or holed masks: the strips' sums equal those of keep = ~grown
+    w, h = min(w, 320 - x), min(h, 256 - y)
+    rng = np.random.default_rng(seed)
+    img = synth.brushed_panel(SHAPE, 60.0, seed=seed % 7, shading=0.0)
+    img.flat[rng.integers(0, img.size, spots)] = 1.0
+    mask = rng.random((h, w)) > 0.3 if holes else np.ones((h, w), bool)
+    grown = _grown_box_mask(img, (x, y, w, h))
+    reference = cell_sums(img, mask, (x, y, w, h), cell_px=cell, keep=~grown, vote_step=2, threads=2)
+    found = cell_sums(img, mask, (x, y, w, h), cell_px=cell, saturation_level=1.0, vote_step=2, threads=2)
+    for field in ("jxx", "jxy", "jyy", "area", "hist", "region_area"):
+        np.testing.assert_array_equal(getattr(found, field), getattr(reference, field), err_msg=field)
+    assert found.clipped_px == np.count_nonzero(grown & mask)
 
 
 def test_the_same_pixels_give_the_same_sums_wherever_they_lie_in_memory():
