@@ -31,7 +31,7 @@ from .regions import (
     _tolerance_text,
     _verdict_sentence,
 )
-from .rose import _draw_deviation_bars, _draw_rose, _figure_list, spectrum_petals
+from .rose import SPECTRUM_RANGE_DB, _draw_deviation_bars, _draw_rose, _figure_list, spectrum_caption, spectrum_petals
 from .scene import PART_LOOKS, build_scene, measured_angles
 
 _PART_HEADER_H = 40.0
@@ -196,7 +196,7 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
                     expected,
                     () if spectrum else measured_angles(as_printed),
                     petals,
-                    30.0 if spectrum else None,
+                    SPECTRUM_RANGE_DB if spectrum else None,
                 )
                 c.setFont(SANS, 6.5)
                 if spectrum:
@@ -216,14 +216,6 @@ def _layout_figures(layout: _Layout, fig: _PartFigures) -> None:
 
 def _spectrum_caption(c: Canvas, cx: float, y: float, d) -> None:
     """What the spectrum rose shows: the directions it gives (the verdict's) and the families' balance."""
-    extra = d["extra"]
-    found = extra.get("crossed_lay_deg") or []
-    unc = extra.get("crossed_uncertainty_deg") or [None] * len(found)
-    parts = []
-    for v, u in zip(found, unc):
-        if isinstance(v, (int, float)):
-            parts.append(format_angle(v, axial=True) + (f" ± {format_angle(u)}" if isinstance(u, (int, float)) else ""))
-    c.drawCentredString(cx, y - 128, "directions " + (" / ".join(parts) if parts else "not found") + " (k = 2)")
-    balance = extra.get("balance")
-    note = f"; balance {balance:.2f}" if isinstance(balance, (int, float)) else ""
-    c.drawCentredString(cx, y - 136, f"power per direction, 30 dB scale{note}")
+    first, second = spectrum_caption(d)
+    c.drawCentredString(cx, y - 128, first)
+    c.drawCentredString(cx, y - 136, second)

@@ -130,6 +130,27 @@ def spectrum_petals(d: Mapping) -> tuple[list, list] | None:
     return edges, weights
 
 
+#: The depth of a spectrum's rose: petals reach from this far below the highest bin (dB) to the rim.
+SPECTRUM_RANGE_DB = 30.0
+
+
+def spectrum_caption(d: Mapping) -> tuple[str, str]:
+    """The two lines under a crossed region's spectrum rose: its directions with U (k = 2), and its scale and balance."""
+    extra = d.get("extra") or {}
+    found = extra.get("crossed_lay_deg") or []
+    unc = extra.get("crossed_uncertainty_deg") or [None] * len(found)
+    parts = []
+    for v, u in zip(found, unc):
+        if isinstance(v, (int, float)):
+            parts.append(format_angle(v, axial=True) + (f" ± {format_angle(u)}" if isinstance(u, (int, float)) else ""))
+    balance = extra.get("balance")
+    note = f"; balance {balance:.2f}" if isinstance(balance, (int, float)) else ""
+    return (
+        "directions " + (" / ".join(parts) if parts else "not found") + " (k = 2)",
+        f"power per direction, {SPECTRUM_RANGE_DB:.0f} dB scale{note}",
+    )
+
+
 def _figure_list(fig: _PartFigures) -> list[tuple[str, RegionResult, dict]]:
     """One rose per region; a crossed region's angular spectrum beside it; a region whose expected lay
     varies also gets its cells' deviations."""

@@ -16,6 +16,7 @@ from ..archive.records import ERROR_VERDICT, OLD_ERROR_VERDICT
 from ..errors import InputError
 from ..formatting import format_angle
 from ..qualify.spc import capability, individuals_chart
+from ..report.rose import SPECTRUM_RANGE_DB, spectrum_caption, spectrum_petals
 from ..report.scene import PALETTE, PART_LOOKS
 from ..results import PartVerdict
 from .svg import VERDICT_SHAPES, control_chart_svg, rose_svg
@@ -188,6 +189,7 @@ def part_view(arc: archive.Archive, batch_id: str, position: int) -> PartView | 
         view["rose_svg"] = (
             rose_svg(hist["bin_edges_deg"], hist["weights"], expected_deg=expected) if hist.get("weights") else ""
         )
+        view["spectrum_svg"], view["spectrum_caption"] = _spectrum_rose(reg, expected)
         view["expected_text"] = ", ".join(format_angle(e) for e in expected) or "-"
         view["patch_numbers"] = []
         for p in reg.get("patches", []):
@@ -198,6 +200,16 @@ def part_view(arc: archive.Archive, batch_id: str, position: int) -> PartView | 
     prev_position = rows[index - 1].position if index > 0 else None
     next_position = rows[index + 1].position if index + 1 < len(rows) else None
     return PartView(card, result, prev_position, next_position, regions, patches)
+
+
+def _spectrum_rose(reg: dict[str, Any], expected: list) -> tuple[str, tuple[str, ...]]:
+    """A crossed region's angular spectrum as the report draws it (30 dB rose, its directions), or nothing."""
+    petals = spectrum_petals(reg) if reg.get("lay_pattern") == "crossed" else None
+    if petals is None:
+        return "", ()
+    found = [v for v in (reg.get("extra") or {}).get("crossed_lay_deg") or [] if isinstance(v, (int, float))]
+    svg = rose_svg(*petals, expected_deg=expected, measured_deg=found, range_db=SPECTRUM_RANGE_DB)
+    return svg, spectrum_caption(reg)
 
 
 def tolerances_of(arc: archive.Archive, cards: list[PartCard]) -> dict[str, float]:

@@ -23,15 +23,25 @@ def _f(v: float) -> str:
     return f"{v:.1f}"
 
 
-def rose_svg(bin_edges_deg: Sequence[float], weights: Sequence[float], *, expected_deg=None, size: int = 220) -> str:
+def rose_svg(
+    bin_edges_deg: Sequence[float],
+    weights: Sequence[float],
+    *,
+    expected_deg=None,
+    measured_deg=None,
+    range_db: float | None = None,
+    size: int = 220,
+) -> str:
     """A rose plot of an axial histogram: each bin drawn at angle a and a + 180 (lay has no sense of direction).
 
     Angles counter-clockwise from +X with +Y up (the project's convention),
-    so 90 deg points up on the page.
+    so 90 deg points up on the page. A petal's area grows with its weight; with ``range_db`` its
+    radius is instead the weight in decibels over that range below the highest bin, as the report
+    draws a spectrum. ``measured_deg`` draws solid lines along the measured directions.
     """
     c = size / 2.0
     r_max = c - 14.0
-    top = max(weights) if len(weights) else 0.0
+    top = max(weights) if len(weights) and all(math.isfinite(w) for w in weights) else 0.0
     parts = [
         f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {size} {size}" width="{size}" height="{size}" '
         'role="img" class="rose">',
@@ -47,7 +57,12 @@ def rose_svg(bin_edges_deg: Sequence[float], weights: Sequence[float], *, expect
     parts.append(f'<text x="{_f(c + 3)}" y="11" class="rose-label">90°</text>')
     if top > 0:
         for lo, hi, w in zip(bin_edges_deg[:-1], bin_edges_deg[1:], weights):
-            r = r_max * math.sqrt(w / top)  # area proportional to weight
+            if w <= 0:
+                continue
+            if range_db:
+                r = r_max * max(0.0, 1.0 + 10.0 * math.log10(w / top) / range_db)
+            else:
+                r = r_max * math.sqrt(w / top)  # area proportional to weight
             if r < 0.5:
                 continue
             for turn in (0.0, 180.0):
@@ -62,6 +77,11 @@ def rose_svg(bin_edges_deg: Sequence[float], weights: Sequence[float], *, expect
         dx, dy = math.cos(math.radians(angle)) * r_max, -math.sin(math.radians(angle)) * r_max
         parts.append(
             f'<line x1="{_f(c - dx)}" y1="{_f(c - dy)}" x2="{_f(c + dx)}" y2="{_f(c + dy)}" class="rose-expected"/>'
+        )
+    for angle in [] if measured_deg is None else list(measured_deg):
+        dx, dy = math.cos(math.radians(angle)) * r_max, -math.sin(math.radians(angle)) * r_max
+        parts.append(
+            f'<line x1="{_f(c - dx)}" y1="{_f(c - dy)}" x2="{_f(c + dx)}" y2="{_f(c + dy)}" class="rose-measured"/>'
         )
     parts.append("</svg>")
     return "".join(parts)

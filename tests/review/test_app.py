@@ -390,3 +390,39 @@ def test_a_part_that_could_not_be_inspected_is_shown_and_can_be_disposed_of(tmp_
         part = c.get(f"/batch/B2/part/{pos}")
         assert part.status_code == 200 and "could not be inspected" in part.text and "Record a disposition" in part.text
         assert c.get(f"/batch/B2/part/{pos}/thumb.png").status_code == 404
+
+
+@pytest.fixture(scope="module")
+def crossed_archive(tmp_path_factory):
+    """One cross-brushed part (families at 30 and 120 deg) in an archive made by `surfinspect batch`."""
+    import cv2
+
+    from surfinspect.measure import synth
+
+    base = tmp_path_factory.mktemp("crossed")
+    (base / "images").mkdir()
+    tex = synth.brushed_texture((320, 320), 30.0, seed=1) + synth.brushed_texture((320, 320), 120.0, seed=2)
+    cv2.imwrite(str(base / "images" / "xb-0001.png"), synth.to_uint8(synth.shade_and_noise(tex / tex.std(), seed=3)))
+    recipe = base / "xb.yaml"
+    recipe.write_text(
+        "recipe: xb-cross-brushed\nrevision: 1\nregions:\n  - name: face\n    rect: [10, 10, 300, 300]\n"
+        "    lay: crossed\n    lay_deg: [30, 120]\n    tolerance_deg: 3\n"
+    )
+    args = ["-q", "batch", str(recipe), str(base / "images"), "--archive", str(base / "archive"), "--batch-id", "XB"]
+    assert run_cli(args) == 0
+    return base / "archive"
+
+
+def test_a_crossed_region_shows_its_angular_spectrum_as_the_report_does(crossed_archive):
+    from surfinspect.report.rose import spectrum_caption
+
+    with TestClient(create_app(ReviewConfig(crossed_archive)), raise_server_exceptions=False) as c:
+        page = c.get("/batch/XB/part/0")
+    assert page.status_code == 200
+    assert page.text.count('class="rose"') == 2  # the histogram's rose and the spectrum's
+    assert 'class="rose-box spectrum"' in page.text
+    with store.Archive(crossed_archive) as arc:
+        region = arc.read_result(arc.parts("XB")[0])["regions"][0]
+    for line in spectrum_caption(region):  # the report's caption, word for word (HTML-escaped)
+        assert line.replace("±", "&#177;") in page.text or line in page.text
+    assert page.text.count('class="rose-measured"') == 2  # both directions found

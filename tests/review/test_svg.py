@@ -29,3 +29,19 @@ def test_rose_draws_each_bin_both_ways_along_its_axis():
     assert len(paths) == 2  # the 90-95 deg bin, drawn at 90 and at 270 deg
     ys = sorted(float(y) for _, y in paths)
     assert ys[0] < 20 and ys[1] > 180  # +Y is up on the page: 90 deg points to the top
+
+
+def test_a_spectrum_rose_draws_decibels_below_the_top_bin():
+    # radius = r_max * (1 + 10 log10(w / top) / range): the top bin reaches the rim, a bin 10 dB
+    # down two thirds of it at a 30 dB range, one 30 dB down (or lower) is not drawn
+    edges = [0.0, 10.0, 50.0, 90.0, 130.0, 180.0]
+    svg = rose_svg(edges, [1.0, 0.1, 1e-3, 1e-4, 0.0], size=200, range_db=30.0, measured_deg=[5.0])
+    r_max = 100.0 - 14.0
+    radii = sorted(
+        {
+            round(((float(x) - 100.0) ** 2 + (float(y) - 100.0) ** 2) ** 0.5, 0)
+            for x, y in re.findall(r'<path d="M100.0,100.0 L([\d.]+),([\d.]+)', svg)
+        }
+    )
+    assert radii == [round(r_max * 2 / 3, 0), round(r_max, 0)]
+    assert svg.count('class="rose-measured"') == 1
