@@ -433,3 +433,4 @@ class SignOff:
     chain_head: str = ""  # "N <sha256>": the archive's audit chain head the signature covers (an anchor on paper)
     dispositions: tuple[DispositionNote, ...] = ()  # the batch's dispositions this sign-off covers (printed with it)
     signoff_no: int = 1
+    role: str = ""  # the signer's role in the register (inspector, quality, ...), printed beside the name

@@ -41,6 +41,7 @@ import re
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 
+import pikepdf
 from asn1crypto import keys as asn1_keys
 from asn1crypto import x509 as asn1_x509
 from cryptography import x509
@@ -59,7 +60,14 @@ from pyhanko_certvalidator.registry import SimpleCertificateStore
 
 from .certificates import certificate_der, certificate_key_raw, certificate_name, certificate_spki
 
-__all__ = ["SIGNATURE_FIELD_PREFIX", "PdfSignatureCheck", "sign_pdf", "pdf_signatures", "signature_reason"]
+__all__ = [
+    "SIGNATURE_FIELD_PREFIX",
+    "PdfSignatureCheck",
+    "outline_pages",
+    "sign_pdf",
+    "pdf_signatures",
+    "signature_reason",
+]
 
 #: Signature fields are named after the sign-off they carry: ``signoff-1``, ``signoff-2``, ...
 SIGNATURE_FIELD_PREFIX = "signoff-"
@@ -137,6 +145,7 @@ def sign_pdf(
     signed_at: datetime,
     appearance: bytes | None = None,
     box: tuple[float, float, float, float] | None = None,
+    on_page: int = -1,
 ) -> bytes:
     """``pdf`` with one more PAdES B-B signature, appended as an incremental update.
 
@@ -153,8 +162,9 @@ def sign_pdf(
     signed_at : datetime
         The signing time written into the signature (the sign-off's time).
     appearance, box : bytes, tuple, optional
-        A one-page PDF drawn as the signature's visible appearance in ``box`` (x1, y1, x2, y2, points) on the
-        last page; without them the signature is invisible (but printable).
+        A one-page PDF drawn as the signature's visible appearance in ``box`` (x1, y1, x2, y2, points) on
+        page ``on_page`` (0-based; -1, the default, is the last page); without them the signature is invisible
+        (but printable).
     """
     key_info = asn1_keys.PrivateKeyInfo.load(
         key.private_bytes(serialization.Encoding.DER, serialization.PrivateFormat.PKCS8, serialization.NoEncryption())
@@ -175,8 +185,8 @@ def sign_pdf(
     writer.signed_at = signed_at
     style = None
     if appearance is not None and box is not None:
-        last_page = int(writer.root["/Pages"]["/Count"]) - 1
-        spec = fields.SigFieldSpec(field_name, on_page=last_page, box=box)
+        page = on_page if on_page >= 0 else int(writer.root["/Pages"]["/Count"]) + on_page
+        spec = fields.SigFieldSpec(field_name, on_page=page, box=box)
         style = StaticStampStyle(
             background=_PdfPageBytes(appearance, field_name),
             border_width=0,
@@ -190,6 +200,23 @@ def sign_pdf(
         )
     out = _TimedSigner(meta, signer, new_field_spec=spec, signed_at=signed_at, stamp_style=style).sign_pdf(writer)
     return out.getvalue()
+
+
+def outline_pages(pdf: bytes) -> dict[str, int]:
+    """The page (0-based) each top-level outline entry (bookmark) of ``pdf`` goes to, by title; the last page
+    under the key ``""``. Entries whose destination is not a page of the document are left out."""
+    with pikepdf.open(io.BytesIO(pdf)) as doc:
+        pages = {page.obj.objgen: k for k, page in enumerate(doc.pages)}
+        found = {"": len(doc.pages) - 1}
+        item = doc.Root.get("/Outlines", {}).get("/First") if "/Outlines" in doc.Root else None
+        for _ in range(1000):  # a bounded walk: a damaged outline may loop
+            if item is None:
+                break
+            dest = item.get("/Dest")
+            if isinstance(dest, pikepdf.Array) and len(dest) and dest[0].objgen in pages:
+                found.setdefault(str(item.get("/Title", "")), pages[dest[0].objgen])
+            item = item.get("/Next")
+    return found
 
 
 class _PdfPageBytes(content.PdfContent):

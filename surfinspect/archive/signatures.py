@@ -28,12 +28,12 @@ from typing import Callable
 
 from ..errors import InputError
 from ..fsutil import sha256_bytes
-from ..report.signoff_page import slot_appearance, slot_box
+from ..report.signoff_page import SHEET_OUTLINE, legacy_slot_box, sheet_slot, slot_appearance
 from ..results import SIGNOFF_MEANINGS, DispositionNote, SignOff
 from . import chain, pki, signing
 from .certificates import certificate_der, certificate_spki, owner_certificate
 from .editions import signed_report_sha256
-from .pdf_signature import sign_pdf, signature_reason
+from .pdf_signature import outline_pages, sign_pdf, signature_reason
 from .records import CLOCK_ALLOWANCE_S, OLD_ERROR_VERDICT, parse_utc, time_problem
 from .register import OWNER_ROLE, PDF_KEY_ACTION, check_printed_text, entry_record
 from .schema import DispositionRow, RegisterRow, SignoffRow
@@ -386,6 +386,7 @@ def sign_batch(
             for d in dispositions
         ),
         signoff_no=number,
+        role=signer.role,
     )
     edition = _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, signoff)
     row = SignoffRow(
@@ -423,16 +424,16 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
     # later sign-offs of the same report edition add their signature to the signed PDF before them; the first
     # sign-off of a report edition (the first one, or one written after parts were re-inspected) renders it
     same = [s for s in archive.signoffs(batch_id) if signed_report_sha256(s) == record["report_sha256"]]
-    appearance = box = None
+    appearance = place = None
     if not same:
         base = render_edition(signoff)
     else:
         previous = same[-1]
         base = archive.read_object(previous.signed_report_sha256)
-        box = slot_box(len(same) + 1) if '"dispositions_sha256"' in same[0].record_json else None  # it has boxes
-        if box is not None:
+        place = _later_place(base, len(same) + 1, '"dispositions_sha256"' in same[0].record_json)
+        if place is not None:
             since = tuple(d for d in signoff.dispositions if d.decided_at_utc > previous.signed_at_utc)
-            appearance = slot_appearance(signoff, since)
+            appearance = slot_appearance(signoff, since, place[1])
     return sign_pdf(
         base,
         private,
@@ -442,8 +443,24 @@ def _pdf_signed_edition(archive, batch_id, key, number, record, render_edition, 
         reason=signature_reason(record["meaning"], record["comment"]),
         signed_at=pki.utc(record["signed_at_utc"]),
         appearance=appearance,
-        box=box,
+        box=place[1] if place else None,
+        on_page=place[0] if place else -1,
     )
+
+
+def _later_place(base: bytes, position: int, has_boxes: bool) -> tuple[int, tuple] | None:
+    """(page, box) of the ``position``-th sign-off of a signed edition, or None for an invisible signature.
+
+    An edition with a sign-off sheet names its pages in its outline; one signed before the sheet
+    (``has_boxes``: its sign-off 1 record lists dispositions) has four boxes on its last page; an older one none.
+    """
+    pages = outline_pages(base)
+    if SHEET_OUTLINE[0] in pages:
+        slot = sheet_slot(position)
+        page = pages.get(SHEET_OUTLINE[slot[0]]) if slot is not None else None
+        return (page, slot[1]) if page is not None else None
+    box = legacy_slot_box(position) if has_boxes else None
+    return (pages[""], box) if box is not None else None
 
 
 def pdf_signing_key(archive, key: signing.SigningKey, register=None) -> tuple:

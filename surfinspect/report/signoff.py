@@ -8,6 +8,7 @@ from reportlab.pdfgen.canvas import Canvas
 from ..pdfa.fonts import MONO, SANS, SANS_BOLD, SANS_OBLIQUE
 from ..results import SIGNOFF_MEANINGS, SignOff
 from .layout import _FRAME_W, _MARGIN, REPLACED_CHARACTERS_NOTE, _fit_text, _titled_box, printable_text
+from .signoff_page import SHEET_PAGES
 
 _SIGNOFF_LINE = 14.5
 _SIGNOFF_VALUE_X = 90.0
@@ -25,6 +26,7 @@ def _signoff_rows(signoff: SignOff | None) -> list[tuple[str, str | None, str]]:
     comment, comment_replaced = printable_text(signoff.comment)
     rows = [
         ("Name (printed)", name, SANS_BOLD),
+        *([("Role", printable_text(signoff.role)[0], SANS)] if signoff.role else []),
         ("Meaning", signoff.meaning.upper(), SANS_BOLD),
         ("Time (UTC)", signoff.signed_at_utc, SANS),
         ("Key fingerprint", signoff.key_fingerprint, MONO),
@@ -48,7 +50,8 @@ def _signoff_height(signoff: SignOff | None) -> float:
 def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
     c.saveState()
     height = _signoff_height(signoff)
-    _titled_box(c, y, height, "SIGN-OFF", line_width=1.2, title_size=10)
+    title = "SIGN-OFF" if signoff is None else f"SIGN-OFF {signoff.signoff_no}"  # a fact of this edition, not a state
+    _titled_box(c, y, height, title, line_width=1.2, title_size=10)
     if signoff is None:
         c.setFont(SANS_BOLD, 8.5)
         c.drawString(_MARGIN + 70, y - 15, "NOT SIGNED")
@@ -57,9 +60,10 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
     else:
         c.setFont(SANS, 7)
         c.drawString(
-            _MARGIN + 70,
+            _MARGIN + 92,
             y - 15,
-            "Signed electronically; the archive's verify command checks the signature against the record.",
+            f"Sign-off {signoff.signoff_no}, as it signed this edition; every sign-off, later ones too, is on the "
+            "sign-off sheet at the end.",
         )
     line_y = y - 32
     for label, value, font in _signoff_rows(signoff):
@@ -81,8 +85,15 @@ def _signoff_block(c: Canvas, y: float, signoff: SignOff | None) -> None:
     c.restoreState()
 
 
-def signoff_state(signoff: SignOff | None) -> str:
-    """The sign-off state in one line, as the footer of every page prints it."""
+def signoff_state(signoff: SignOff | None, pages: int | None = None) -> str:
+    """What the footer of every page says of the sign-offs, in one line.
+
+    An unsigned report says so (it is never signed itself: a sign-off renders a signed edition). A signed
+    edition prints no state, which a later sign-off (an incremental update) could not redraw: it points to the
+    sign-off sheet, the last :data:`.signoff_page.SHEET_PAGES` of its ``pages``.
+    """
     if signoff is None:
         return "NOT SIGNED"
-    return f"Signed: {signoff.meaning.upper()} by {printable_text(signoff.signer_name)[0]}, {signoff.signed_at_utc}"
+    if pages is None:
+        return "Signed edition: every sign-off is on the sign-off sheet at the end"
+    return f"Signed edition: every sign-off is on the sign-off sheet, pages {pages - SHEET_PAGES + 1}-{pages}"

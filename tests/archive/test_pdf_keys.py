@@ -193,14 +193,17 @@ def test_every_signoff_and_disposition_is_readable_in_the_edition_that_carries_i
         pdf.flatten_annotations("print")
         pdf.save(flat)
     pages = [page.extract_text() for page in PdfReader(flat).pages]
-    covered = pages[-2]  # printed by sign-off 1: the dispositions up to it
+    covered = pages[-3]  # printed by sign-off 1: the dispositions up to it
     assert "p2.png: REWORK by R. OSTERMANN" in covered and "rebrush the face along 90 deg" in covered
     assert "SCRAP" not in covered
-    last = pages[-1]  # sign-off 2's box, drawn by its signature's appearance in the incremental update
-    for text in ("SIGN-OFF 2", "R. OSTERMANN", "RELEASED", "released on the line", "p2.png: SCRAP by R. OSTERMANN",
-                 "the rebrushed face is still off", "Dispositions since sign-off 1: 1", "SIGN-OFF 3"):  # fmt: skip
-        assert text in last, text
-    assert PdfReader(tmp_path / "s1.pdf").pages[-1].extract_text().count("not signed yet") == 4
+    sheet = pages[-2]  # sign-off 1's box printed with it; sign-off 2's drawn by its signature's appearance
+    for text in ("SIGN-OFF 1", "EXAMINED", "examined on the line", "Covers the 1 disposition(s) recorded up to it",
+                 "SIGN-OFF 2", "R. OSTERMANN, inspector", "RELEASED", "released on the line",
+                 "p2.png: SCRAP by R. OSTERMANN", "the rebrushed face is still off",
+                 "Covers 2 disposition(s); new since the sign-off before it: 1", "SIGN-OFF 3"):  # fmt: skip
+        assert text in sheet, text
+    opened = [page.extract_text() for page in PdfReader(tmp_path / "s1.pdf").pages[-2:]]
+    assert sum(t.count("kept for this sign-off: the appearance of its PDF") for t in opened) == 20  # sign-offs 2-21
     with arc.Archive(root) as a:
         roots = pki.trust_roots(a)
     first, second = pdf_signatures((tmp_path / "s2.pdf").read_bytes(), roots)
@@ -208,7 +211,7 @@ def test_every_signoff_and_disposition_is_readable_in_the_edition_that_carries_i
     assert_pdfa_2b((tmp_path / "s2.pdf").read_bytes())  # the appearance's fonts are embedded too
     png = tmp_path / "last"
     if shutil.which("pdftoppm"):  # a picture of the page, to look at when the layout changes
-        subprocess.run(["pdftoppm", "-png", "-r", "60", "-f", str(len(pages)), str(tmp_path / "s2.pdf"), str(png)],
+        subprocess.run(["pdftoppm", "-png", "-r", "60", "-f", str(len(pages) - 1), str(tmp_path / "s2.pdf"), str(png)],
                        check=True, stdin=subprocess.DEVNULL, timeout=60)  # fmt: skip
     assert _cli(None, "verify", "--archive", root) == 0
     # a disposition record changed behind the archive's back: verify names the sign-offs that cover it

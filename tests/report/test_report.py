@@ -432,7 +432,7 @@ def test_part_without_regions_and_iso_time_string():
         render_report([lost], [None], report_id="Z", generated_at="yesterday")
 
 
-def test_every_page_footer_says_whether_the_report_is_signed():
+def test_every_page_footer_says_whether_the_report_is_signed_and_no_page_prints_a_signoff_state():
     parts = batch_of_three()
     pixels = [make_pixels()] * 3
     unsigned = page_texts(PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN))))
@@ -442,9 +442,16 @@ def test_every_page_footer_says_whether_the_report_is_signed():
     signed = page_texts(
         PdfReader(io.BytesIO(render_report(parts, pixels, report_id="F", generated_at=WHEN, signoff=sign)))
     )
-    # reference: the SignOff fields of results.py, printed verbatim on every page
-    assert all(signoff_state(sign) in t and "NOT SIGNED" not in t for t in signed)
-    assert signoff_state(sign) == "Signed: RELEASED by Anna Berg, 2031-04-02T10:30:00Z"
+    # a signed edition's footers point to the sign-off sheet (its last two pages) and print no state a later
+    # sign-off (an incremental update, which cannot redraw them) would make stale: no meaning, no name
+    n = len(signed)
+    assert signoff_state(sign, n) == f"Signed edition: every sign-off is on the sign-off sheet, pages {n - 1}-{n}"
+    assert all(signoff_state(sign, n) in t and "NOT SIGNED" not in t for t in signed)
+    assert signed[-2].startswith("Sign-off sheet") and signed[-1].startswith("Sign-off sheet (continued)")
+    for page in signed[1:-2]:  # outside the summary's sign-off block and the sheet
+        assert "Anna Berg" not in page and "RELEASED" not in page, page
+    assert "SIGN-OFF 1" in signed[-2] and "Anna Berg" in signed[-2] and "SIGN-OFF 2" in signed[-2]
+    assert "SIGN-OFFS 22 AND LATER: SEE THE ARCHIVE RECORD" in signed[-1] and "surfinspect verify" in signed[-1]
     # a long comment wraps inside the block: every word is there, and the block ends before the parts table
     summary = signed[0]
     assert " ".join(comment.split()) in " ".join(summary.split())
@@ -497,7 +504,7 @@ def test_signoff_block_shows_the_covered_report_and_keeps_every_comment_row_insi
     assert "????: panel 0002 re-brushed, é and € kept;" in " ".join(text.split())
     assert "(characters the report's font lacks shown as ?; the signed record keeps the exact text)" in text
     lines = _text_lines_with_baselines(page)
-    title_y = next(y for t, y in lines if t == "SIGN-OFF")
+    title_y = next(y for t, y in lines if t == "SIGN-OFF 1")
     # the frame drawn around the title: its top edge 15 pt above the title's baseline (the block's own layout)
     (box,) = [r for r in _rects(page, reader) if abs(r[1] + r[3] - (title_y + 15)) < 0.01]
     bottom, top = box[1], box[1] + box[3]
