@@ -181,6 +181,12 @@ class Register:
                 "(`surfinspect owner init`, then `surfinspect signers add`)"
             )
         signer = self.signers.get(fingerprint)
+        if signer is None and fingerprint == self.owner.key_fingerprint:
+            raise InputError(
+                f"{where}: this is the archive owner's key ({self.owner.printed_name}); it certifies the signer "
+                "register and signs nothing else: sign with a key of your own (`surfinspect keygen`), enrolled with "
+                "`surfinspect signers add ... --by OWNER_KEY`"
+            )
         if signer is None:
             raise InputError(
                 f"{where}: this key (fingerprint {fingerprint[:16]}…) is not enrolled in the archive's signer register; "

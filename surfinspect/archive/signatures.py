@@ -172,6 +172,11 @@ def enrol_signer(
     if register.key_holder(public.fingerprint) is not None:
         holder = register.key_holder(public.fingerprint)
         state = "revoked" if holder.revoked_at_utc else "enrolled"
+        if holder is register.owner:
+            raise InputError(
+                f"--pub: this is the archive owner's key ({holder.printed_name}); it certifies the register and "
+                "cannot be enrolled to sign: make a separate key with keygen and enrol that one"
+            )
         raise InputError(
             f"--pub: this key ({public.fingerprint[:16]}…) is already {state} for {holder.printed_name}; "
             "a key is enrolled once (make a new key with keygen)"

@@ -38,6 +38,18 @@ def test_sign_refuses_an_unenrolled_key(unsigned):
             signatures.sign_batch(a, BATCH, signing.SigningKey.generate(), meaning="released", render_edition=render)
 
 
+def test_the_owners_key_is_told_apart_from_an_unenrolled_one(unsigned):
+    # the owner certifies the register and signs nothing else; saying "not enrolled" to it while
+    # `signers add` says "already enrolled" left a new owner going round in circles
+    root, keys = unsigned
+    with arc.Archive(root) as a:
+        with pytest.raises(InputError, match=r"--key: this is the archive owner's key \(M\. QUALITY.*keygen"):
+            signatures.sign_batch(a, BATCH, keys.owner, meaning="released", render_edition=render)
+        with pytest.raises(InputError, match=r"--pub: this is the archive owner's key .*make a separate key"):
+            signatures.enrol_signer(a, keys.owner, public(keys.owner), "M. QUALITY 2", "quality manager")
+        assert a.signoffs(BATCH) == []
+
+
 def test_sign_refuses_a_revoked_key_and_keeps_what_it_signed_before(unsigned):
     root, keys = unsigned
     with arc.Archive(root) as a:
