@@ -5,6 +5,7 @@ no report, no station).
 Modules, one concern each: ``schema`` (tables and row types), ``backend`` (the index interface),
 ``sqlite_backend`` (SQLite behind it), ``objects`` (files by content hash), ``chain`` (canonical
 serialisation, event hashes, row replay), ``register`` (who may sign), ``records`` (plain records and ids), ``store`` (the Archive),
+``batch_writes`` (the Archive's writes of a batch: started, parts recorded, finished),
 ``editions`` (report editions: re-inspected parts, the batch as an edition had it),
 ``signatures`` (owner, enrolment, sign-off, disposition), ``signing`` (keys), ``certificates`` and ``pki``
 (X.509 for the owner and signers, stored with the register), ``pdf_signature`` (PAdES signing and
