@@ -182,12 +182,7 @@ class BatchWritesMixin:
                 "error": error,
                 "inspected_at": utc_now(),
             }
-            self.index.update("parts", {"batch_id": batch_id, "part_key": part_key}, values)
-            rows.append(("parts", {**planned.__dict__, **values}))
-            for region in region_rows:
-                row = {"batch_id": batch_id, "part_key": part_key, **region}
-                self.index.insert("regions", row)
-                rows.append(("regions", row))
+            rows += self._update_part(planned, values, region_rows)
             self._append_event(EventKind.PART_INSPECTED, batch_id, part_key, {}, rows)
         return self.part(batch_id, part_key)
 
@@ -235,8 +230,21 @@ class BatchWritesMixin:
             counts = verdict_counts(self.parts(batch_id))
             self._append_event(EventKind.REPORT_WRITTEN, batch_id, None, {"verdict_counts": counts}, rows)
             if station_key is not None:
-                self.register().require_signer(
-                    station_key.fingerprint, utc_now(), "--station-key", station_allowed=True
-                )
-                self._sign_head(station_key)
+                self._sign_head_by_station(station_key)
         return self.batch(batch_id)
+
+    def _update_part(self, before: PartRow, values: dict, region_rows) -> list[tuple[str, dict]]:
+        """Give a part's row ``values`` and add its region rows (inside a write); the rows, for its event."""
+        key = {"batch_id": before.batch_id, "part_key": before.part_key}
+        self.index.update("parts", key, values)
+        rows = [("parts", {**before.__dict__, **values})]
+        for region in region_rows:
+            row = {**key, **region}
+            self.index.insert("regions", row)
+            rows.append(("regions", row))
+        return rows
+
+    def _sign_head_by_station(self, station_key: signing.SigningKey) -> None:
+        """Sign the head a batch's report reached with an enrolled station key (inside a write)."""
+        self.register().require_signer(station_key.fingerprint, utc_now(), "--station-key", station_allowed=True)
+        self._sign_head(station_key)
