@@ -8,7 +8,6 @@ from their source without importing them (the ``__all__ = [...]`` statement only
 
 from __future__ import annotations
 
-import ast
 import importlib
 import importlib.util
 import re
@@ -36,6 +35,8 @@ def read_all(module: str) -> tuple[str, ...]:
         The module is not found, states no ``__all__`` at its top level, or states it as other than
         a literal list or tuple of strings.
     """
+    import ast  # here: 2 ms at start-up otherwise, and only a lookup in a room needs it
+
     spec = importlib.util.find_spec(module)
     source = spec.loader.get_source(module) if spec is not None and spec.loader is not None else None
     if source is None:
@@ -76,7 +77,8 @@ def attach(
     modules : tuple of str
         Submodules (relative to the package) whose ``__all__`` the package publishes, whole. A name
         two of them list is taken from the first. A submodule itself is also reachable as an
-        attribute.
+        attribute, and is what a name of its own (``archive.verify``) gives: the import system sets
+        it on the package when the submodule is imported, so it would be after the first lookup.
     aliases : mapping of str to (str, str), optional
         Public name to (submodule, name inside it): a name published under another name, or one
         taken alone from a module the package does not publish whole.
@@ -99,13 +101,13 @@ def attach(
     def __getattr__(name: str):
         if name == "__all__":
             return [*own, *sorted(where())]
-        if name.startswith("__"):  # a probe for another dunder (pickle, inspect): no file is read for it
+        if name.startswith("_"):  # never published (a dunder probe, ``from . import _safe_yaml``): nothing read
             raise AttributeError(f"module {package!r} has no attribute {name!r}")
+        if name in submodules:  # first, and without reading any __all__ (``from .. import recipe``)
+            return importlib.import_module(f"{package}.{name}")
         if name in where():
             module, inner = table[name]
             return getattr(importlib.import_module(f"{package}.{module}"), inner)
-        if name in submodules:
-            return importlib.import_module(f"{package}.{name}")
         raise AttributeError(f"module {package!r} has no attribute {name!r}")
 
     def __dir__() -> list[str]:

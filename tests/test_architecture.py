@@ -232,7 +232,7 @@ def test_a_lazy_package_publishes_its_modules_names_and_each_resolves(package_na
 
     modules, aliases, own = _attach_call(PACKAGE.parent.joinpath(*package_name.split("."), "__init__.py"))
     package = importlib.import_module(package_name)
-    expected, problems = {name: getattr(package, name) for name in own}, []
+    expected, problems = {}, []
     for module_name in modules:
         module = importlib.import_module(f"{package_name}.{module_name}")
         if read_all(module.__name__) != tuple(module.__all__):
@@ -243,8 +243,9 @@ def test_a_lazy_package_publishes_its_modules_names_and_each_resolves(package_na
                 problems.append(f"{name} is listed by two modules of {package_name} as different objects")
     for name, (module_name, inner) in aliases.items():
         expected[name] = getattr(importlib.import_module(f"{package_name}.{module_name}"), inner)
+    problems += [f"{name}: a published name must not begin with _" for name in expected if name.startswith("_")]
     assert not problems, "\n".join(problems)
-    assert sorted(package.__all__) == sorted(expected)
+    assert package.__all__ == [*own, *sorted(expected)] and all(hasattr(package, name) for name in own)
     assert set(dir(package)) >= set(expected)
     # A name that is also a submodule's (``archive.verify``) is that submodule once it is imported:
     # the import system sets it on the package.
