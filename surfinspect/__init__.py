@@ -12,17 +12,23 @@ The names are loaded on first use, so that a command that needs no image (``--ve
 """
 
 from ._lazy import attach
-from ._version import __version__
+from ._version import __version__ as __version__  # published: see own= below
 
-__getattr__, __dir__, _names = attach(
+# A chosen few names of several modules, so each is named here (``recipe`` is published whole).
+__getattr__, __dir__ = attach(
     __name__,
-    {
-        "measure.engine": ("inspect_image",),
-        "measure.imaging": ("read_image",),
-        "errors": ("InputError", "RecipeError"),
-        "recipe": ("LayPattern", "Recipe", "Region", "load_recipe", "parse_recipe"),
-        "results": ("PartResult", "PartVerdict", "RegionResult", "RegionVerdict"),
+    ("recipe",),
+    aliases={
+        "inspect_image": ("measure.engine", "inspect_image"),
+        "read_image": ("measure.imaging", "read_image"),
+        "InputError": ("errors", "InputError"),
+        "RecipeError": ("errors", "RecipeError"),
+        "PartResult": ("results", "PartResult"),
+        "PartVerdict": ("results", "PartVerdict"),
+        "RegionResult": ("results", "RegionResult"),
+        "RegionVerdict": ("results", "RegionVerdict"),
+        "result_to_json": ("results", "dumps"),
+        "result_from_json": ("results", "loads"),
     },
-    aliases={"result_to_json": ("results", "dumps"), "result_from_json": ("results", "loads")},
+    own=("__version__",),
 )
-__all__ = ["__version__", *_names]

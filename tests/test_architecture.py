@@ -204,24 +204,67 @@ def test_the_size_checker_sees_a_long_module_and_a_long_function(tmp_path):
 # ------------------------------------------------------------------ public names of the rooms
 
 
-@pytest.mark.parametrize("room", [r for r in FLOORS if r != "shared" and (PACKAGE / r / "__init__.py").exists()])
-def test_every_public_name_of_a_room_resolves_to_its_module(room):
-    """Each name a room's ``__init__`` lists (lazily) exists in the module it points at, and a
-    module that states its own ``__all__`` lists there every name the room gives for it."""
+def _attach_call(init: Path):
+    """The modules, aliases and own names a package's ``__init__`` gives ``_lazy.attach``, or None."""
+    for node in ast.walk(ast.parse(init.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.Call) and getattr(node.func, "id", None) == "attach":
+            keywords = {k.arg: ast.literal_eval(k.value) for k in node.keywords}
+            return ast.literal_eval(node.args[1]), keywords.get("aliases", {}), keywords.get("own", ())
+    return None
+
+
+LAZY_PACKAGES = sorted(".".join(_dotted(init)) for init in PACKAGE.rglob("__init__.py") if _attach_call(init))
+
+
+def test_the_rooms_publish_lazily():
+    assert {"surfinspect", "surfinspect.measure", "surfinspect.archive", "surfinspect.report"} <= set(LAZY_PACKAGES)
+
+
+@pytest.mark.parametrize("package_name", LAZY_PACKAGES)
+def test_a_lazy_package_publishes_its_modules_names_and_each_resolves(package_name):
+    """A package's lazily published ``__all__`` is the union of its modules' own ``__all__`` (as
+    imported) with its aliases and own names, and every name resolves to the object its module
+    holds; a name two modules list is one object in both; the ``__all__`` read from each module's
+    source, without importing it, is the one the imported module has."""
     import importlib
 
-    package = importlib.import_module(f"surfinspect.{room}")
-    missing, unlisted = [], []
-    for name in package.__all__:
-        try:
-            value = getattr(package, name)
-        except (AttributeError, ImportError) as exc:
-            missing.append(f"{room}.{name}: {exc}")
-            continue
-        home = getattr(value, "__module__", None)
-        module = sys.modules.get(home or "")
-        if module is not None and home.startswith(f"surfinspect.{room}.") and hasattr(module, "__all__"):
-            if name not in module.__all__:
-                unlisted.append(f"{home}.{name}")
-    assert not missing, "\n".join(missing)
-    assert not unlisted, "listed by the room but not in its module's __all__: " + ", ".join(unlisted)
+    from surfinspect._lazy import read_all
+
+    modules, aliases, own = _attach_call(PACKAGE.parent.joinpath(*package_name.split("."), "__init__.py"))
+    package = importlib.import_module(package_name)
+    expected, problems = {}, []
+    for module_name in modules:
+        module = importlib.import_module(f"{package_name}.{module_name}")
+        if read_all(module.__name__) != tuple(module.__all__):
+            problems.append(f"{module.__name__}: its __all__ as read from source is not the imported one")
+        for name in module.__all__:
+            value = getattr(module, name)  # an AttributeError here: a name in __all__ the module lacks
+            if expected.setdefault(name, value) is not value:
+                problems.append(f"{name} is listed by two modules of {package_name} as different objects")
+    for name, (module_name, inner) in aliases.items():
+        expected[name] = getattr(importlib.import_module(f"{package_name}.{module_name}"), inner)
+    problems += [f"{name}: a published name must not begin with _" for name in expected if name.startswith("_")]
+    assert not problems, "\n".join(problems)
+    assert package.__all__ == [*own, *sorted(expected)] and all(hasattr(package, name) for name in own)
+    assert set(dir(package)) >= set(expected)
+    # A name that is also a submodule's (``archive.verify``) is that submodule once it is imported:
+    # the import system sets it on the package.
+    expected.update({n: sys.modules[f"{package_name}.{n}"] for n in expected if f"{package_name}.{n}" in sys.modules})
+    wrong = [name for name, value in expected.items() if getattr(package, name) is not value]
+    assert not wrong, f"{package_name} resolves these to other objects than their modules hold: {wrong}"
+
+
+def test_the_static_read_of_all_refuses_what_it_cannot_read(tmp_path, monkeypatch):
+    """A module without ``__all__`` or with a computed one is an error, not an empty or wrong list."""
+    from surfinspect._lazy import read_all
+
+    (tmp_path / "lazy_probe_ok.py").write_text('import os\n\n__all__ = [\n    "a",\n    "b",\n]\na = b = 1\n')
+    (tmp_path / "lazy_probe_none.py").write_text("a = 1\n")
+    (tmp_path / "lazy_probe_sum.py").write_text('__all__ = ["a"] + ["b"]\n')
+    monkeypatch.syspath_prepend(str(tmp_path))
+    assert read_all("lazy_probe_ok") == ("a", "b")
+    assert "lazy_probe_ok" not in sys.modules  # read, not imported
+    with pytest.raises(ImportError, match="states no __all__"):
+        read_all("lazy_probe_none")
+    with pytest.raises(ImportError, match="not a literal list"):
+        read_all("lazy_probe_sum")

@@ -157,10 +157,7 @@ class EditionsMixin:
                 self._record_retried(batch_id, part, hashes, edition, station, operator)
             self._write_edition(batch, edition, report_pdf, regions_csv, report_generated_at)
             if station_key is not None:
-                self.register().require_signer(
-                    station_key.fingerprint, utc_now(), "--station-key", station_allowed=True
-                )
-                self._sign_head(station_key)
+                self._sign_head_by_station(station_key)
         return self.batch(batch_id)
 
     def batch_events(self, batch_id: str) -> list[EventRow]:
@@ -195,13 +192,7 @@ class EditionsMixin:
             "error": error,
             "inspected_at": utc_now(),
         }
-        key = {"batch_id": batch_id, "part_key": part.part_key}
-        self.index.update("parts", key, values)
-        rows.append(("parts", {**before.__dict__, **values}))
-        for region in region_rows:
-            row = {**key, **region}
-            self.index.insert("regions", row)
-            rows.append(("regions", row))
+        rows += self._update_part(before, values, region_rows)
         details = {
             "edition": edition,
             "station": station,

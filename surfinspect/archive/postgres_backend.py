@@ -194,25 +194,21 @@ class PostgresBackend(IndexBackend):
             tx.__exit__(None, None, None)
 
     def insert(self, table: str, row: Row) -> None:
+        self._insert(table, row)
+
+    def insert_ignore(self, table: str, row: Row) -> bool:
+        return self._insert(table, row, ignore=True).rowcount == 1
+
+    def _insert(self, table: str, row: Row, *, ignore: bool = False) -> psycopg.Cursor:
         t = table_named(table)
         names = checked_columns(t, row)
         stmt = sql.SQL("INSERT INTO {} ({}) VALUES ({})").format(
             sql.Identifier(t.name), _names(names), sql.SQL(", ").join(sql.Placeholder() * len(names))
         )
+        if ignore:
+            stmt += sql.SQL(" ON CONFLICT ({}) DO NOTHING").format(_names(t.primary_key))
         with _translated():
-            self._db.execute(stmt, [row[n] for n in names])
-
-    def insert_ignore(self, table: str, row: Row) -> bool:
-        t = table_named(table)
-        names = checked_columns(t, row)
-        stmt = sql.SQL("INSERT INTO {} ({}) VALUES ({}) ON CONFLICT ({}) DO NOTHING").format(
-            sql.Identifier(t.name),
-            _names(names),
-            sql.SQL(", ").join(sql.Placeholder() * len(names)),
-            _names(t.primary_key),
-        )
-        with _translated():
-            return self._db.execute(stmt, [row[n] for n in names]).rowcount == 1
+            return self._db.execute(stmt, [row[n] for n in names])
 
     def update(self, table: str, key: Row, values: Row) -> int:
         t = table_named(table)

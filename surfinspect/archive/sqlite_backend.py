@@ -92,21 +92,19 @@ class SQLiteBackend(IndexBackend):
             self._db.execute("COMMIT")
 
     def insert(self, table: str, row: Row) -> None:
-        t = table_named(table)
-        names = checked_columns(t, row)
-        marks = ", ".join("?" for _ in names)
-        with _translated():
-            self._db.execute(f"INSERT INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names])
+        self._insert("INSERT", table, row)
 
     def insert_ignore(self, table: str, row: Row) -> bool:
+        return self._insert("INSERT OR IGNORE", table, row).rowcount == 1
+
+    def _insert(self, verb: str, table: str, row: Row) -> sqlite3.Cursor:
         t = table_named(table)
         names = checked_columns(t, row)
         marks = ", ".join("?" for _ in names)
         with _translated():
-            cur = self._db.execute(
-                f"INSERT OR IGNORE INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names]
+            return self._db.execute(
+                f"{verb} INTO {t.name} ({', '.join(names)}) VALUES ({marks})", [row[n] for n in names]
             )
-        return cur.rowcount == 1
 
     def update(self, table: str, key: Row, values: Row) -> int:
         t = table_named(table)

@@ -25,7 +25,7 @@ from ..errors import EXIT_INPUT_ERROR, InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner, load_recipe
 from ._keys import open_key
-from ._options import add_archive_option
+from ._options import add_archive_option, add_overwrite_option
 from .console import Console
 
 archive = module("surfinspect.archive.store")
@@ -62,11 +62,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="also write each part's JSON and overlay, report.pdf and regions.csv here "
         "(a new or empty folder, or one holding this batch's earlier copy)",
     )
-    parser.add_argument(
-        "--overwrite",
-        action="store_true",
-        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
-    )
+    add_overwrite_option(parser, with_out=True)
     parser.add_argument(
         "--retry-errors",
         action="store_true",

@@ -7,6 +7,7 @@ from pathlib import Path
 
 from ..fsutil import OutputFolder
 from ._checks import load_recipe
+from ._options import add_overwrite_option
 from .console import Console
 
 HELP = "measure and judge the lay of one or more part images against a recipe"
@@ -18,11 +19,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", "-o", default="surfinspect-out", metavar="DIR", help="output folder (default: %(default)s)")
     p.add_argument("--operator", metavar="NAME", help="who inspected, printed in the report")
     p.add_argument("--no-report", action="store_true", help="write JSON and overlays only, no PDF")
-    p.add_argument(
-        "--overwrite",
-        action="store_true",
-        help="write into a folder that is not empty, removing first what surfinspect wrote there before",
-    )
+    add_overwrite_option(p)
 
 
 def run(args: argparse.Namespace, console: Console) -> int:

@@ -15,7 +15,7 @@ from .._lazy import module
 from ..errors import InputError
 from ..fsutil import OutputFolder
 from ._checks import batch_owner
-from ._options import add_archive_option
+from ._options import add_archive_option, add_overwrite_option
 from .console import Console
 
 archive = module("surfinspect.archive.store")
@@ -35,11 +35,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="with --batch-id: copy the batch's report(s), CSV, results and overlays here, readably named "
         "(a new or empty folder, or one holding this batch's earlier copy)",
     )
-    parser.add_argument(
-        "--overwrite",
-        action="store_true",
-        help="with --out: write into a folder that is not empty, removing first what surfinspect wrote there before",
-    )
+    add_overwrite_option(parser, with_out=True)
 
 
 def _signoff_state(signoffs: list[archive.SignoffRow], report_sha256: str | None) -> str:

@@ -494,26 +494,10 @@ def _crossed_sample(pixels: np.ndarray, region: Region, bbox, measured, sigma_n:
     lays = [f.lay_deg for f in present[:2]]
     separation = abs(wrap_deviation(lays[0], lays[1]))
     box = (x0, y0, cells.shape_px[1], cells.shape_px[0])
-    energy = family_energy_per_cell(
-        pixels,
-        box,
-        cells.cell_px,
-        cells.area.shape,
-        lays,
-        noise_sigma=sigma_n,
-        half_width_deg=min(45.0, separation / 2),
-    )
+    per_cell = partial(family_energy_per_cell, pixels, box, cells.cell_px, cells.area.shape, lays, noise_sigma=sigma_n)
+    energy = per_cell(half_width_deg=min(45.0, separation / 2))
     if separation >= OFF_CHECK_MIN_SEPARATION:  # the energy off both families: within a quarter of the separation
-        near = family_energy_per_cell(
-            pixels,
-            box,
-            cells.cell_px,
-            cells.area.shape,
-            lays,
-            noise_sigma=sigma_n,
-            half_width_deg=separation / 4,
-            with_total=True,
-        )
+        near = per_cell(half_width_deg=separation / 4, with_total=True)
         off = 1.0 - near[..., :2].sum(axis=-1) / np.maximum(near[..., 2], 1e-300)
         region_off = 1.0 - float(near[..., :2].sum()) / max(float(near[..., 2].sum()), 1e-300)
         if region_off <= OFF_CHECK_MAX_REGION_SHARE:  # else the marks lie below what a cell's window resolves

@@ -5,10 +5,4 @@ target sheets (``qualify``) and the reports (``report``) both use it, and it imp
 
 from .._lazy import attach
 
-__getattr__, __dir__, __all__ = attach(
-    __name__,
-    {
-        "fonts": ("SANS", "SANS_BOLD", "SANS_OBLIQUE", "MONO", "REPLACEMENT", "printable", "register_fonts"),
-        "document": ("DocumentInfo", "archival_canvas", "finish_archival", "srgb_profile", "SRGB_CONDITION"),
-    },
-)
+__getattr__, __dir__ = attach(__name__, ("fonts", "document"))

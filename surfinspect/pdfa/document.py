@@ -45,6 +45,8 @@ from reportlab.pdfgen.canvas import Canvas
 from .._version import __version__
 from . import fonts
 
+__all__ = ["DocumentInfo", "archival_canvas", "finish_archival", "srgb_profile", "SRGB_CONDITION"]
+
 #: The ICC profile's description, used as the output condition identifier (ISO 32000-1, 14.11.5).
 SRGB_CONDITION = "sRGB IEC61966-2.1"
 PDFA_PART = 2

@@ -22,6 +22,8 @@ from reportlab.lib.fonts import addMapping
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
 
+__all__ = ["SANS", "SANS_BOLD", "SANS_OBLIQUE", "MONO", "REPLACEMENT", "printable", "register_fonts"]
+
 #: reportlab names of the shipped faces (the PDF's /BaseFont comes from the font file).
 SANS = "LiberationSans"
 SANS_BOLD = "LiberationSans-Bold"

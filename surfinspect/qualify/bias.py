@@ -18,6 +18,8 @@ from scipy import stats
 from ..errors import InputError
 from ..measure.orientation import wrap_deviation
 
+__all__ = ["BiasAtNominal", "LinearityFit", "BiasStudy", "bias_study"]
+
 
 @dataclass(frozen=True)
 class BiasAtNominal:

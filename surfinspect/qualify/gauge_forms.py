@@ -9,6 +9,8 @@ from .._version import __version__
 from .bias import BiasStudy
 from .gauge import COMPONENT_LABELS, AnovaTable, GaugeStudy
 
+__all__ = ["gauge_to_dict", "bias_to_dict"]
+
 
 def _json_number(v: float | None, digits: int = 6) -> float | None:
     if v is None or not math.isfinite(v):

@@ -12,6 +12,8 @@ import numpy as np
 
 from ..errors import InputError
 
+__all__ = ["StudyTable", "read_study_csv"]
+
 
 @dataclass(frozen=True)
 class StudyTable:

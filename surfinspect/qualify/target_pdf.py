@@ -39,6 +39,8 @@ from .targets import (
     layout_targets,
 )
 
+__all__ = ["write_target_pdf"]
+
 
 def write_target_pdf(
     path: str | Path,

@@ -17,6 +17,8 @@ from ..qualify.gauge import D4_BY_SUBGROUP, GaugeStudy, GaugeVerdict
 from ..qualify.gauge_forms import ANOVA_HEADER, COMPONENT_HEADER, anova_text_rows, component_text_rows
 from ..results import CAUTION
 
+__all__ = ["write_gauge_pdf"]
+
 _INK = (0.12, 0.14, 0.18)
 _GRID = (0.78, 0.80, 0.84)
 _VERDICT_TINT = {

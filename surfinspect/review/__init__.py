@@ -13,10 +13,4 @@ keys), ``security`` (CSRF tokens, request limits, headers), ``media``
 
 from .._lazy import attach
 
-__getattr__, __dir__, __all__ = attach(
-    __name__,
-    {
-        "app": ("ReviewConfig", "create_app"),
-        "server": ("serve", "is_loopback"),
-    },
-)
+__getattr__, __dir__ = attach(__name__, ("app", "server"))

@@ -34,6 +34,8 @@ from . import actions, media, pages
 from .recipe_routes import RecipeViews
 from .security import CSRF_FIELD, SESSION_COOKIE, BodyLimit, Csrf, FailureThrottle, SecurityHeaders
 
+__all__ = ["ReviewConfig", "create_app"]
+
 HERE = Path(__file__).parent
 _BATCH_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
 _DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")

@@ -6,6 +6,8 @@ import ipaddress
 
 from .app import ReviewConfig, create_app
 
+__all__ = ["serve", "is_loopback"]
+
 #: Uvicorn's own limits: few connections, short keep-alive (a station serves a handful of people).
 LIMIT_CONCURRENCY = 32
 TIMEOUT_KEEP_ALIVE_S = 5
