@@ -2,8 +2,9 @@
 
 The archive speaks to its index only through :class:`IndexBackend`: rows are
 plain mappings of column name to value, tables and columns are those of
-:mod:`.schema`, and every write happens inside :meth:`IndexBackend.write`.
-SQL lives with its backend (:mod:`.sqlite_backend`), nowhere else.
+:mod:`.schema`, and every write happens inside :meth:`IndexBackend.write`
+(the first, which makes the tables, inside :meth:`IndexBackend.creating`).
+SQL lives with its backend (:mod:`.sqlite_backend`, :mod:`.postgres_backend`), nowhere else.
 
 A backend raises :class:`IndexDamaged` for anything its database reports as
 broken (a damaged page, a missing table, a file that is not a database), so
@@ -35,8 +36,18 @@ class IndexBackend(abc.ABC):
         """Whether an index (of any kind) is already there."""
 
     @abc.abstractmethod
-    def create_schema(self) -> None:
-        """Make every table of :data:`.schema.TABLES` that is missing (never alters an existing one)."""
+    @contextlib.contextmanager
+    def creating(self) -> Iterator[bool]:
+        """One write transaction that makes the index when the database holds none.
+
+        Under the write lock it makes every table of :data:`.schema.TABLES` and
+        yields True when no index is there; the caller writes the index's first
+        rows inside, so the tables and those rows commit together: nobody sees
+        the one without the other, and a kill or an exception leaves nothing.
+        It yields False, making nothing, when an index (of any kind) is there:
+        one a creator that took the lock first has made, or one that is not
+        ours (never altered). Creators queue on the lock like writers.
+        """
 
     @abc.abstractmethod
     @contextlib.contextmanager

@@ -8,8 +8,9 @@ files are copied by hash and re-hashed on arrival.
 
 The destination must be new (no index there): a copy never merges into an
 archive, which would be a second history under one id. The index rows go
-in one write transaction, after the files, so an interrupted copy leaves an
-empty index (run it again) and never half an archive.
+in one write transaction with the tables (:meth:`.backend.IndexBackend.creating`),
+after the files, so an interrupted copy leaves an empty index (run it again)
+and never half an archive.
 """
 
 from __future__ import annotations
@@ -34,6 +35,13 @@ class CopyOutcome:
     head_sha256: str
 
 
+def _not_new(where) -> InputError:
+    return InputError(
+        f"--to {where.display}: already holds an archive index; a copy goes into a new folder or an empty "
+        "database (allowed: a new --to)"
+    )
+
+
 def _destination(text: str):
     where = parse_location(text, "--to")
     if not where.is_database:
@@ -41,10 +49,7 @@ def _destination(text: str):
     index = open_index(where)
     try:
         if index.exists():
-            raise InputError(
-                f"--to {where.display}: already holds an archive index; a copy goes into a new folder or an empty "
-                "database (allowed: a new --to)"
-            )
+            raise _not_new(where)
     except BaseException:
         index.close()
         raise
@@ -77,8 +82,9 @@ def copy_archive(source: str, destination: str) -> CopyOutcome:
                     )
                 store.put_file(path, row["sha256"])
             try:
-                index.create_schema()
-                with index.write():
+                with index.creating() as new:
+                    if not new:  # made meanwhile (a second copy, or a station opening it)
+                        raise _not_new(where)
                     for table in TABLES:
                         for row in tables[table.name]:
                             index.insert(table.name, row)

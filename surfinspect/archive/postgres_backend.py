@@ -10,7 +10,10 @@ advisory lock (``pg_advisory_xact_lock``), the same lock for every writer of
 the database: writers queue, so each one reads the chain head and appends its
 event on top of the last committed one, and the audit trail stays one chain
 however many stations write at once. The lock is released by the commit or
-rollback, also when a station's connection dies.
+rollback, also when a station's connection dies. Making the index is such a
+write too (:meth:`PostgresBackend.creating`): the tables and the archive's
+first rows commit in one transaction, so no station ever finds the one
+without the other, and stations making a new archive at once queue.
 
 Type mapping: TEXT → ``text``, INTEGER → ``bigint``, REAL → ``double
 precision`` (IEEE-754 binary64 like SQLite's REAL, so a value reads back
@@ -79,7 +82,8 @@ def _migration_1(cur: psycopg.Cursor) -> None:
         cur.execute(_ddl(table))
 
 
-#: version → the step that brings an index of version - 1 to it (run in order, each in the write transaction)
+#: version → the step that brings an index of version - 1 to it, run in order in the transaction that makes the
+#: index (an index found at an older version is not migrated on open yet: with one version there is none)
 MIGRATIONS = {1: _migration_1}
 
 
@@ -155,20 +159,46 @@ class PostgresBackend(IndexBackend):
         with _translated():  # tables without a version row: not made by the tool, checked as they are
             return self._db.execute("SELECT to_regclass('meta') IS NOT NULL").fetchone()[0]
 
-    def create_schema(self) -> None:
-        """Make the tables, or migrate an index of an older schema version, in one locked transaction."""
+    def _index_committed(self) -> bool:
+        """Whether the version table or ``meta`` is there, read from ``pg_class`` with this statement's snapshot.
+
+        Not ``to_regclass``: it asks the session's catalog cache, which has not
+        yet learnt of a table another session committed while this one waited
+        for the advisory lock (it does when a relation lock is next taken), so
+        the second creator would make the tables again ("relation already
+        exists"; seen with four stations at once before this check).
+        """
+        with _translated():
+            return self._db.execute(
+                "SELECT EXISTS (SELECT 1 FROM pg_catalog.pg_class c JOIN pg_catalog.pg_namespace n"
+                " ON n.oid = c.relnamespace WHERE n.nspname = current_schema() AND c.relname IN (%s, 'meta'))",
+                (VERSION_TABLE,),
+            ).fetchone()[0]
+
+    @contextlib.contextmanager
+    def creating(self) -> Iterator[bool]:
+        """The write lock, then the version table and every migration step when the database holds no index.
+
+        PostgreSQL's DDL is transactional: the tables, their version rows and
+        what the caller writes inside commit together or not at all. A creator
+        that waited for the lock sees the index the first one committed and
+        makes nothing (:meth:`_index_committed`).
+        """
         with self.write():
-            cur = self._db.cursor()
-            cur.execute(
-                sql.SQL(
-                    "CREATE TABLE IF NOT EXISTS {} (version integer PRIMARY KEY, applied_at timestamptz NOT NULL)"
-                ).format(sql.Identifier(VERSION_TABLE))
-            )
-            version = self.schema_version() or 0
-            self._refuse_newer(version)
-            for step in range(version + 1, SCHEMA_VERSION + 1):
-                MIGRATIONS[step](cur)
-                cur.execute(sql.SQL("INSERT INTO {} VALUES (%s, now())").format(sql.Identifier(VERSION_TABLE)), (step,))
+            new = not self._index_committed()
+            if new:
+                versions = sql.Identifier(VERSION_TABLE)
+                with _translated():
+                    cur = self._db.cursor()
+                    cur.execute(
+                        sql.SQL(
+                            "CREATE TABLE {} (version integer PRIMARY KEY, applied_at timestamptz NOT NULL)"
+                        ).format(versions)
+                    )
+                    for step in range(1, SCHEMA_VERSION + 1):
+                        MIGRATIONS[step](cur)
+                        cur.execute(sql.SQL("INSERT INTO {} VALUES (%s, now())").format(versions), (step,))
+            yield new
 
     # -- writing
 

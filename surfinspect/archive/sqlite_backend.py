@@ -2,7 +2,9 @@
 
 Every write is one transaction taken with ``BEGIN IMMEDIATE`` (writers queue
 behind a busy timeout instead of failing on a lock upgrade), so two processes
-can write the same archive and a crash never leaves half a record. Table and
+can write the same archive and a crash never leaves half a record; the tables
+are made in the transaction that writes the archive's first rows
+(:meth:`SQLiteBackend.creating`), so never seen without them. Table and
 column names come only from :mod:`.schema`, never from data, and are checked
 against it before they are put into a statement.
 """
@@ -70,13 +72,30 @@ class SQLiteBackend(IndexBackend):
             self._db.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
 
     def exists(self) -> bool:
-        # sqlite makes the file before its first write: an empty file holds nothing yet
-        return self.path.is_file() and self.path.stat().st_size > 0
+        # sqlite makes the file before its first write: an empty file holds nothing yet. Nor may a file with
+        # pages: a creation killed after its pages spilled leaves them with a hot journal, which this read
+        # rolls back. A file that is not a database (or is damaged) is something: never made over.
+        if not (self.path.is_file() and self.path.stat().st_size > 0):
+            return False
+        try:
+            return self._holds_tables()
+        except IndexDamaged:
+            return True
 
-    def create_schema(self) -> None:
+    def _holds_tables(self) -> bool:
+        with _translated():
+            return self._db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0] > 0
+
+    @contextlib.contextmanager
+    def creating(self) -> Iterator[bool]:
+        """``BEGIN IMMEDIATE``, then the tables when the file holds none (SQLite's DDL is transactional)."""
         with self.write():
-            for table in TABLES:
-                self._db.execute(_ddl(table))
+            new = not self._holds_tables()
+            if new:
+                with _translated():
+                    for table in TABLES:
+                        self._db.execute(_ddl(table))
+            yield new
 
     @contextlib.contextmanager
     def write(self) -> Iterator[None]:

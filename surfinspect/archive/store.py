@@ -73,6 +73,11 @@ __all__ = [
 class Archive(BatchWritesMixin, EditionsMixin):
     """An archive folder; open with ``create=True`` to make it when missing.
 
+    Making it is one index transaction (tables, meta, the first event), so no
+    process ever finds half an archive, and processes opening one new archive
+    with ``create=True`` at once queue on the index's write lock: the first
+    makes it, the others open what it made.
+
     Raises
     ------
     InputError
@@ -93,12 +98,10 @@ class Archive(BatchWritesMixin, EditionsMixin):
         backend = backend or open_index(where)
         self.index = backend
         try:
-            # an existing index is checked before anything is written; one another process is making, made too
-            existed = self.index.exists()
-            if create and (not existed or self._made_but_empty()):
+            # an index that is there is only checked, never written (PostgreSQL: a newer schema is refused here)
+            if not self.index.exists() and create:
                 self._create()
-            else:
-                self._check_format()
+            self._check_format()
         except BaseException:
             self.index.close()
             raise
@@ -106,12 +109,12 @@ class Archive(BatchWritesMixin, EditionsMixin):
     # -- opening
 
     def _create(self) -> None:
+        """Tables, meta and the first event in one transaction; nothing when another process made the index first."""
         self.objects.make()
         try:
-            self.index.create_schema()
-            with self.index.write():
-                if self._meta("format") is not None:
-                    return  # another process made it meanwhile
+            with self.index.creating() as new:
+                if not new:
+                    return  # made meanwhile by a creator that took the lock first (or not ours: checked next)
                 # what meta holds besides the chain's own head is recorded in the first event
                 created = {"format": ARCHIVE_FORMAT, "archive_id": str(uuid.uuid4()), "created_at": utc_now()}
                 for key, value in (*created.items(), ("chain_length", "0"), ("chain_head_sha256", GENESIS_SHA256)):
@@ -119,11 +122,6 @@ class Archive(BatchWritesMixin, EditionsMixin):
                 self._append_event(EventKind.ARCHIVE_CREATED, None, None, created)
         except (IndexDamaged, IndexBusy) as exc:
             raise InputError(f"{self.index.location}: cannot write the archive index ({exc})") from None
-
-    def _made_but_empty(self) -> bool:  # tables made by another process that has not yet written meta
-        with contextlib.suppress(IndexDamaged):
-            return not self.index.select("meta", {})
-        return False
 
     def _check_format(self) -> None:
         try:

@@ -1,4 +1,4 @@
-"""The index backend contract, parametrised over the backends there are (SQLite now; PostgreSQL joins the list)."""
+"""The index backend contract, parametrised over the backends there are (SQLite and PostgreSQL)."""
 
 from __future__ import annotations
 
@@ -12,7 +12,8 @@ from surfinspect.archive.sqlite_backend import SQLiteBackend
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgres", marks=pytest.mark.postgres)])
-def backend(request, tmp_path):
+def empty_backend(request, tmp_path):
+    """A backend on a database that holds nothing yet."""
     if request.param == "sqlite":
         index = SQLiteBackend(tmp_path)
     else:
@@ -20,9 +21,15 @@ def backend(request, tmp_path):
 
         server = request.getfixturevalue("pg_server")
         index = PostgresBackend(server.url(request.getfixturevalue("pg_database")))
-    index.create_schema()
     yield index
     index.close()
+
+
+@pytest.fixture
+def backend(empty_backend):
+    with empty_backend.creating() as new:
+        assert new
+    return empty_backend
 
 
 def _file_row(n: int) -> dict:
@@ -35,6 +42,23 @@ def test_backend_is_an_index_backend(backend):
     for table in schema.TABLES:
         assert found[table.name] == table.column_names
     assert backend.integrity_problems() == []
+
+
+def test_the_tables_and_the_first_rows_commit_together_or_not_at_all(empty_backend):
+    index = empty_backend
+    with pytest.raises(RuntimeError, match="killed"):
+        with index.creating() as new:
+            assert new and set(schema.TABLE_BY_NAME) <= set(index.columns_found())  # made, inside
+            index.insert("files", _file_row(1))
+            raise RuntimeError("killed")
+    assert not index.exists() and index.columns_found() == {}  # not one table left behind
+    with index.creating() as new:
+        assert new
+        index.insert("files", _file_row(2))
+    assert index.exists() and index.select("files") == [_file_row(2)]
+    with index.creating() as new:  # a second creator finds the index and makes nothing
+        assert not new
+    assert index.select("files") == [_file_row(2)] and index.integrity_problems() == []
 
 
 def test_rows_in_rows_out(backend):

@@ -1,6 +1,7 @@
 """What only the PostgreSQL index has: its schema version, keys a person can drop, its URL, a reused batch id.
 
-Four stations writing at once: tests/station/test_plant.py (real `batch` processes).
+Four stations writing at once: tests/station/test_plant.py (real `batch` processes); stations making one
+new archive at once, one held or killed inside its creating transaction: tests/archive/test_opening.py.
 """
 
 from __future__ import annotations
@@ -77,18 +78,6 @@ def test_schema_is_made_with_its_version(site):
 
     with site.connect() as db:
         assert db.execute(f"SELECT version FROM {VERSION_TABLE}").fetchall() == [(SCHEMA_VERSION,)]
-    assert ver.verify_archive(site).problems == []
-
-
-def test_a_station_opening_while_another_makes_the_archive_makes_it_too(site):
-    """Four stations starting on one empty database: one has made the tables (its own transaction) and not
-    yet written meta when the next opens with ``create=True``. That station must make the archive, not
-    call it "unknown archive format" (exit 2, seen once under load in the four-station test)."""
-    location.open_index(location.parse_location(site)).create_schema()  # the first station, halfway
-    with arc.Archive(site, create=True) as a:
-        assert [e.kind for e in a.events()] == ["archive created"]
-    with arc.Archive(site, create=True) as a:  # the first station goes on: nothing made twice
-        assert [e.kind for e in a.events()] == ["archive created"]
     assert ver.verify_archive(site).problems == []
 
 
