@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from .conditions import SATURATION_CODE_MARGIN
+from .conditions import SATURATION_CODE_MARGIN, grown_by
 from .derivatives import gaussian_derivative_kernels
 
 __all__ = ["STRIP_ROWS", "SLIVER_SHARE", "CellSums", "cell_sums", "merge_edge_slivers", "merge_outline_slivers"]
@@ -233,7 +233,6 @@ class _Strips:
         self.background = None
         self.votes: _Votes | None = None
         self.clip_threshold: np.float32 | None = None
-        self.clip_kernel = np.ones((2 * halo + 1, 2 * halo + 1), np.uint8)
         self.full = full
         if background_sigma > 0:
             from .conditions import illumination_background
@@ -271,9 +270,7 @@ class _Strips:
         """
         if self.clip_threshold is None or view.size == 0 or cv2.minMaxLoc(view)[1] < self.clip_threshold:
             return None
-        clipped = view >= self.clip_threshold
-        grown = cv2.dilate(clipped.view(np.uint8), self.clip_kernel, borderType=cv2.BORDER_CONSTANT)
-        return grown[inner].view(bool)
+        return grown_by(view >= self.clip_threshold, self.halo)[inner]
 
     def __call__(self, cell_row0: int):
         cell_px, h = self.cell_px, self.box[3]

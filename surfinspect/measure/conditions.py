@@ -16,6 +16,7 @@ import numpy as np
 __all__ = [
     "SATURATION_CODE_MARGIN",
     "saturated_pixels",
+    "grown_by",
     "IlluminationBackground",
     "illumination_background",
     "BlockGrid",
@@ -49,8 +50,13 @@ def saturated_pixels(block: np.ndarray, level: float = 1.0, radius_px: int = 4) 
     clipped = block >= threshold
     if not clipped.any():
         return None
+    return grown_by(clipped, radius_px)
+
+
+def grown_by(pixels: np.ndarray, radius_px: int) -> np.ndarray:
+    """``pixels`` (bool) grown by a square of side ``2 radius + 1``; nothing grows in from beyond the array."""
     side = 2 * int(radius_px) + 1
-    grown = cv2.dilate(clipped.view(np.uint8), np.ones((side, side), np.uint8), borderType=cv2.BORDER_CONSTANT)
+    grown = cv2.dilate(pixels.view(np.uint8), np.ones((side, side), np.uint8), borderType=cv2.BORDER_CONSTANT)
     return grown.view(bool)
 
 

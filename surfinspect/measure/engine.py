@@ -380,7 +380,7 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
         )
         region_px = np.count_nonzero(mask)
         hidden = cells.clipped_px
-        masked = float(hidden / max(region_px, 1)) if hidden else 0.0
+        masked = float(hidden / max(region_px, 1))
         measured_px = region_px - hidden
         test_cells = None
         if cells.area.size < MIN_TEST_CELLS and region.lay is LayPattern.DIRECTIONAL:
@@ -427,15 +427,13 @@ def _measure_region(pixels: np.ndarray, region: Region, where, frame: Frame, rec
     )
 
 
-def _measured_part(pixels: np.ndarray, mask: np.ndarray, bbox, level: float | None, radius: int, r0, r1, c0, c1):
+def _measured_part(pixels: np.ndarray, mask: np.ndarray, bbox, level: float, radius: int, r0, r1, c0, c1):
     """Region pixels of box rows ``r0:r1`` and columns ``c0:c1`` that are measured: not clipped at ``level``.
 
     The clipped pixels are grown from the image around that part (``radius`` px beyond it, or to the
     image's edge), which is what growing those of the whole box gives there.
     """
     part = mask[r0:r1, c0:c1]
-    if level is None:
-        return part
     x0, y0, _, _ = bbox
     rows, cols = pixels.shape
     gy0, gx0 = max(0, y0 + r0 - radius), max(0, x0 + c0 - radius)
@@ -455,10 +453,8 @@ def _spectral_sample(pixels: np.ndarray, region: Region, bbox, measured, sigma_n
     bounded; the caller scales the standard error to the whole region's measured pixels (variance
     inversely proportional to the measured area).
     """
-    x0, y0, w, h = bbox
-    side = SPECTRAL_SIDE
-    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
-    r1, c1 = min(h, r0 + side), min(w, c0 + side)
+    x0, y0, _, _ = bbox
+    r0, r1, c0, c1 = _central(bbox, SPECTRAL_SIDE)
     crop = measured(r0, r1, c0, c1)
     crop_px = np.count_nonzero(crop)
     if crop_px < 64:
@@ -507,9 +503,8 @@ def _crossed_sample(pixels: np.ndarray, region: Region, bbox, measured, sigma_n:
 
 def _block_grid_sample(pixels: np.ndarray, bbox, mask: np.ndarray, side: int = 1024):
     """The block grid of a region, from its central ``side`` x ``side`` px at most (it repeats everywhere)."""
-    x0, y0, w, h = bbox
-    r0, c0 = max(0, (h - side) // 2), max(0, (w - side) // 2)
-    r1, c1 = min(h, r0 + side), min(w, c0 + side)
+    x0, y0, _, _ = bbox
+    r0, r1, c0, c1 = _central(bbox, side)
     crop = mask[r0:r1, c0:c1]
     if np.count_nonzero(crop) == crop.size:
         crop = None  # the same sums, without weighting every step by one
